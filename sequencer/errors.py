@@ -1,0 +1,59 @@
+"""The sequencer's exceptions: one base, each concrete error also a matching builtin.
+
+Every error carries structured fields and builds its message from them, so that the CLI can show
+one clear line and a multi-process run can pickle it across a process boundary.
+"""
+
+from __future__ import annotations
+
+
+class CcbenchError(Exception):
+    """Base of every error the sequencer raises on purpose. `exit_code` is what the CLI returns."""
+
+    exit_code = 1
+
+    def __init__(self, message: str) -> None:
+        super().__init__(message)
+        self.message = message
+
+    def __reduce__(self):  # keep pickling working for subclasses with other signatures
+        return (_rebuild, (type(self), self.__dict__))
+
+    def __str__(self) -> str:
+        return self.message
+
+
+def _rebuild(cls: type[CcbenchError], state: dict) -> CcbenchError:
+    err = cls.__new__(cls)
+    Exception.__init__(err, state.get("message", ""))
+    err.__dict__.update(state)
+    return err
+
+
+class RecipeError(CcbenchError, ValueError):
+    """A recipe or station file is wrong: names the file, line and field, and what was expected."""
+
+    exit_code = 2
+
+    def __init__(self, file: str, line: int | None, field: str, problem: str) -> None:
+        where = f"{file}:{line}" if line else file
+        super().__init__(f"{where}: {field} {problem}" if field else f"{where}: {problem}")
+        self.file, self.line, self.field, self.problem = file, line, field, problem
+
+
+class SafetyError(CcbenchError, RuntimeError):
+    """A planned or actual level would exceed a limit; nothing beyond it was sent."""
+
+    exit_code = 3
+
+
+class RunError(CcbenchError, RuntimeError):
+    """A run could not go on (instrument lost, run folder unusable...)."""
+
+    exit_code = 4
+
+
+class StoreError(CcbenchError, OSError):
+    """Results could not be written or read; what was written before is kept."""
+
+    exit_code = 5

@@ -1,0 +1,113 @@
+"""A whole run: each tray device measured, judged, stored, and only then shown.
+
+The core yields events to a callback; rendering them is the CLI's business.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+from .curve import Curve
+from .judge import Judgement, judge_curve
+from .plan import Plan
+from .recipe import FIGURES, Recipe
+from .runner import Recorder, Smu, measure_device
+from .safety import Guard
+from .store import RunStore
+
+
+@dataclass(frozen=True)
+class DeviceDone:
+    index: int
+    total: int
+    curve: Curve
+    judgement: Judgement
+    seconds: float
+
+
+@dataclass
+class RunSummary:
+    total: int
+    done: int = 0
+    passed: int = 0
+    failed: int = 0
+    aborted: int = 0
+    seconds: float = 0.0
+    status: str = "running"
+    reasons: dict[str, int] = field(default_factory=dict)
+
+    @property
+    def yield_fraction(self) -> float:
+        return self.passed / self.done if self.done else float("nan")
+
+    def count(self, judgement: Judgement) -> None:
+        self.done += 1
+        if judgement.verdict == "pass":
+            self.passed += 1
+        elif judgement.verdict == "aborted":
+            self.aborted += 1
+        else:
+            self.failed += 1
+        for reason in judgement.reasons:
+            key = reason.split(" ", 2)[0] if reason.startswith(("open", "short")) else _kind(reason)
+            self.reasons[key] = self.reasons.get(key, 0) + 1
+
+
+def _kind(reason: str) -> str:
+    for name in FIGURES:
+        label = name.replace("_", " ")
+        if reason.startswith(label):
+            return label
+    return reason.split(":")[0]
+
+
+def device_name(lot: str, channel: int) -> str:
+    return f"{lot}-{channel:03d}"
+
+
+def run_lot(
+    recipe: Recipe,
+    plan: Plan,
+    smu: Smu,
+    store: RunStore,
+    on_device: Callable[[DeviceDone], None],
+    clock: Callable[[], float] = time.monotonic,
+) -> RunSummary:
+    """Measure every channel of the plan in order. A safety stop or instrument failure ends
+    the run after the partial device is stored as aborted; the exception then propagates."""
+    guard = Guard(recipe.station.limits, smu.interlock_closed)
+    summary = RunSummary(total=len(plan.channels))
+    start = clock()
+    for index, channel in enumerate(plan.channels):
+        recorder = Recorder()
+        device = device_name(recipe.lot, channel)
+        t0 = clock()
+        try:
+            measure_device(smu, plan, channel, guard, recorder, clock)
+        except BaseException as exc:
+            curve = recorder.curve(device, channel, plan)
+            judgement = aborted(device, exc)
+            store.add_device(curve, judgement)
+            summary.count(judgement)
+            on_device(DeviceDone(index, len(plan.channels), curve, judgement, clock() - t0))
+            summary.seconds = clock() - start
+            raise
+        curve = recorder.curve(device, channel, plan)
+        judgement = judge_curve(curve, recipe.judge)
+        store.add_device(curve, judgement)
+        summary.count(judgement)
+        on_device(DeviceDone(index, len(plan.channels), curve, judgement, clock() - t0))
+    summary.seconds = clock() - start
+    summary.status = "completed"
+    return summary
+
+
+def aborted(device: str, exc: BaseException) -> Judgement:
+    from .judge import MISSING
+
+    why = str(exc) or type(exc).__name__
+    if isinstance(exc, KeyboardInterrupt):
+        why = "interrupted by the operator"
+    return Judgement(device, dict.fromkeys(FIGURES, MISSING), "aborted", (f"aborted: {why}",))

@@ -1,0 +1,120 @@
+"""Execute a plan on one device through an SMU. Every level passes the guard; the output is
+ramped down and switched off on every way out of a device."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Protocol
+
+import numpy as np
+
+from .curve import Curve
+from .plan import Plan
+from .safety import Guard
+
+RAMP_ABOVE_V = 5.0  # levels above this are stepped down before the output goes off
+RAMP_STEP_V = 5.0
+
+
+class Reading(Protocol):
+    voltage_v: float
+    current_a: float
+    in_compliance: bool
+
+
+class Smu(Protocol):
+    """What the runner needs of an instrument (instruments.smu.ScpiSmu provides it)."""
+
+    def configure(
+        self, *, limit_a: float, nplc: float, settle_s: float, current_range_a: float | None = None
+    ) -> None: ...
+    def set_voltage(self, volts: float) -> None: ...
+    def output(self, on: bool) -> None: ...
+    def measure(self) -> Reading: ...
+    def select_channel(self, channel: int) -> None: ...
+    def interlock_closed(self) -> bool: ...
+
+
+@dataclass
+class Recorder:
+    """Points as they arrive, so that an interrupted device keeps what it measured."""
+
+    segment: list[int] = field(default_factory=list)
+    level_v: list[float] = field(default_factory=list)
+    voltage_v: list[float] = field(default_factory=list)
+    current_a: list[float] = field(default_factory=list)
+    time_s: list[float] = field(default_factory=list)
+    in_compliance: list[bool] = field(default_factory=list)
+
+    def add(self, seg: int, level: float, reading: Reading, t: float) -> None:
+        self.segment.append(seg)
+        self.level_v.append(level)
+        self.voltage_v.append(reading.voltage_v)
+        self.current_a.append(reading.current_a)
+        self.time_s.append(t)
+        self.in_compliance.append(bool(reading.in_compliance))
+
+    def curve(self, device: str, channel: int, plan: Plan) -> Curve:
+        return Curve(
+            device=device,
+            channel=channel,
+            steps=tuple(s.step for s in plan.segments),
+            kinds=tuple(s.kind for s in plan.segments),
+            segment=np.asarray(self.segment, dtype=int),
+            level_v=np.asarray(self.level_v, dtype=float),
+            voltage_v=np.asarray(self.voltage_v, dtype=float),
+            current_a=np.asarray(self.current_a, dtype=float),
+            time_s=np.asarray(self.time_s, dtype=float),
+            in_compliance=np.asarray(self.in_compliance, dtype=bool),
+        )
+
+
+def ramp_levels(from_v: float) -> list[float]:
+    """Levels that bring the output from `from_v` to 0 V in steps of at most RAMP_STEP_V."""
+    if abs(from_v) <= RAMP_ABOVE_V:
+        return [0.0]
+    steps = int(np.ceil(abs(from_v) / RAMP_STEP_V))
+    return [float(v) for v in np.linspace(from_v, 0.0, steps + 1)[1:]]
+
+
+def measure_device(
+    smu: Smu,
+    plan: Plan,
+    channel: int,
+    guard: Guard,
+    recorder: Recorder,
+    clock: Callable[[], float] = time.monotonic,
+) -> None:
+    """Run every segment of the plan on one tray channel, filling `recorder`."""
+    smu.select_channel(channel)
+    guard.checked_interlock = False
+    start = clock()
+    level = 0.0
+    try:
+        output_on = False
+        for index, seg in enumerate(plan.segments):
+            guard.check_level(0.0, seg.compliance_a)
+            smu.configure(limit_a=seg.compliance_a, nplc=plan.nplc, settle_s=seg.settle_s)
+            for volts in seg.levels_v:
+                guard.check_level(volts, seg.compliance_a)
+                smu.set_voltage(volts)
+                level = volts
+                if not output_on:
+                    smu.output(True)
+                    output_on = True
+                reading = smu.measure()
+                recorder.add(index, volts, reading, clock() - start)
+                guard.check_reading(reading.voltage_v, reading.current_a)
+    finally:
+        switch_off(smu, level)
+
+
+def switch_off(smu: Smu, level_v: float) -> None:
+    """Ramp down from `level_v` and switch the output off; the output-off is always attempted."""
+    try:
+        for volts in ramp_levels(level_v):
+            smu.set_voltage(volts)
+    finally:
+        smu.output(False)
