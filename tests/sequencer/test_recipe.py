@@ -104,7 +104,7 @@ def test_yaml_syntax_error_has_a_line(tmp_path):
 def test_missing_station_file(tmp_path):
     path = tmp_path / "r.yaml"
     path.write_text(DEMO)
-    with pytest.raises(RecipeError, match="demo-station.yaml: file not found"):
+    with pytest.raises(RecipeError, match=r"demo-station\.yaml: file not found"):
         load_recipe(path)
 
 

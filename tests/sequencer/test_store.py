@@ -43,7 +43,7 @@ def test_results_in_journal_sqlite_and_csv(tmp_path):
     assert db.execute("PRAGMA user_version").fetchone()[0] == 1
     assert db.execute("SELECT status, lot FROM run").fetchone() == ("completed", "FK-TEST")
     rows = db.execute("SELECT device, verdict, dynamic_impedance_ohm FROM device ORDER BY device")
-    (a, va, za), (b, vb, zb) = rows.fetchall()
+    (_, va, za), (_, vb, zb) = rows.fetchall()
     assert (va, vb) == ("fail", "pass")
     assert za == pytest.approx(47e3) and zb == pytest.approx(220e3)
     assert db.execute("SELECT COUNT(*) FROM point").fetchone()[0] == 82
