@@ -51,7 +51,7 @@ class RunSummary:
         else:
             self.failed += 1
         for reason in judgement.reasons:
-            key = reason.split(" ", 2)[0] if reason.startswith(("open", "short")) else _kind(reason)
+            key = reason.split(":")[0] if reason.startswith(("open", "short")) else _kind(reason)
             self.reasons[key] = self.reasons.get(key, 0) + 1
 
 

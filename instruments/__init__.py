@@ -1,0 +1,154 @@
+"""Talking to real instruments: transports, SCPI helpers, dialects and the SMU driver.
+
+`connect()` is the front door: it opens a resource (or starts the embedded simulator for "sim"),
+asks *IDN? at once (a refused connection only shows on the first write) and hands back a
+`Connection` holding the `ScpiSmu`.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Mapping
+from pathlib import Path
+from types import TracebackType
+from typing import TextIO
+
+from instruments.dialect import Dialect, load_dialect
+from instruments.embedded import EmbeddedSimulator
+from instruments.errors import (
+    DialectError,
+    InstrumentDisconnected,
+    InstrumentError,
+    InstrumentTimeout,
+    ReplyError,
+    ScpiError,
+)
+from instruments.smu import Reading, ScpiSmu
+from instruments.transport import SpyTransport, Transport, open_visa
+
+logging.getLogger(__name__).addHandler(logging.NullHandler())
+log = logging.getLogger(__name__)
+
+SIM_RESOURCE = "sim"
+
+
+class Connection:
+    """An open instrument: `.smu`, `.resource` (the real resource string, also for "sim"),
+    `.identity`. Closing it puts the SMU in its safe state first, then stops an embedded
+    simulator."""
+
+    def __init__(
+        self,
+        smu: ScpiSmu,
+        resource: str,
+        *,
+        timeout_s: float,
+        spy_log: TextIO | None,
+        simulator: EmbeddedSimulator | None,
+    ) -> None:
+        self.smu = smu
+        self.resource = resource
+        self.identity = smu.identity
+        self._timeout_s = timeout_s
+        self._spy_log = spy_log
+        self._simulator = simulator
+        self.closed = False
+
+    def __enter__(self) -> Connection:
+        return self
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.close()
+
+    def reconnect(self) -> ScpiSmu:
+        """Open the resource again (for instance to switch the output off after a lost link).
+
+        Replaces and returns `.smu`; the old one is closed. Refuses an instrument whose *IDN?
+        differs from the original: commands meant for one instrument must not reach another.
+        """
+        if self.closed:
+            raise InstrumentError(self.resource, None, "the connection is closed", hint="connect")
+        self.smu.close()
+        transport = _open(self.resource, self._timeout_s, self._spy_log)
+        smu = ScpiSmu(transport, self.smu.dialect)
+        try:
+            identity = smu.identify()
+        except BaseException:
+            smu.close()
+            raise
+        if identity != self.identity:
+            smu.close()
+            detail = f"reconnected to {identity!r}, not the original {self.identity!r}"
+            raise InstrumentError(self.resource, None, detail, hint="check the cabling")
+        self.smu = smu
+        return smu
+
+    def close(self) -> None:
+        """Safe state (output off, 0 V; never raises), close the link, stop the simulator."""
+        if self.closed:
+            return
+        self.closed = True
+        try:
+            if not self.smu.safe_state():
+                log.warning("%s: closed without confirming the output is off", self.resource)
+            self.smu.close()
+        finally:
+            if self._simulator is not None:
+                self._simulator.stop()
+
+
+def connect(
+    resource: str,
+    *,
+    dialect: str | Path = "scpi1999",
+    timeout_s: float = 2.0,
+    spy_log: TextIO | None = None,
+    sim_options: Mapping[str, object] | None = None,
+) -> Connection:
+    """Open `resource` (a VISA resource string, or "sim" for the embedded simulator)."""
+    chosen = load_dialect(dialect)  # a bad dialect fails before anything is started or opened
+    if sim_options and resource != SIM_RESOURCE:
+        detail = f"simulator options were given for the resource {resource!r}"
+        raise InstrumentError(resource, None, detail, hint=f"use them with {SIM_RESOURCE!r} only")
+    simulator = EmbeddedSimulator() if resource == SIM_RESOURCE else None
+    try:
+        real = simulator.start(sim_options) if simulator is not None else resource
+        smu = ScpiSmu(_open(real, timeout_s, spy_log), chosen)
+        try:
+            smu.identify()
+        except BaseException:
+            smu.close()
+            raise
+    except BaseException:
+        if simulator is not None:
+            simulator.stop()
+        raise
+    return Connection(smu, real, timeout_s=timeout_s, spy_log=spy_log, simulator=simulator)
+
+
+def _open(resource: str, timeout_s: float, spy_log: TextIO | None) -> Transport:
+    transport: Transport = open_visa(resource, timeout_s=timeout_s)
+    return SpyTransport(transport, spy_log) if spy_log is not None else transport
+
+
+__all__ = [
+    "SIM_RESOURCE",
+    "Connection",
+    "Dialect",
+    "DialectError",
+    "EmbeddedSimulator",
+    "InstrumentDisconnected",
+    "InstrumentError",
+    "InstrumentTimeout",
+    "Reading",
+    "ReplyError",
+    "ScpiError",
+    "ScpiSmu",
+    "connect",
+    "load_dialect",
+]

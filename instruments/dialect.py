@@ -1,0 +1,208 @@
+"""Dialects: the SCPI text of each abstract SMU operation, read from a small YAML file.
+
+Adapting an instrument means writing a dialect file, not code. The loader checks every key, type
+and placeholder once, so a wrong file fails at start-up with file, line and key, never mid-run.
+"""
+
+from __future__ import annotations
+
+import string
+from dataclasses import dataclass, fields
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from instruments.errors import DialectError
+from instruments.scpi import format_number
+
+DIALECT_DIR = Path(__file__).resolve().parent / "dialects"
+
+# Placeholders each text must contain, exactly (a set_voltage without {volts} would silently send
+# a constant level: refused at load time).
+PLACEHOLDERS: dict[str, frozenset[str]] = {
+    "set_voltage": frozenset({"volts"}),
+    "set_current_limit": frozenset({"amps"}),
+    "set_settle": frozenset({"seconds"}),
+    "set_aperture_nplc": frozenset({"nplc"}),
+    "set_current_range": frozenset({"amps"}),
+    "output": frozenset({"state"}),
+    "select_channel": frozenset({"channel"}),
+}
+# Operations the driver cannot do without; every other SCPI key may be null (see the driver).
+REQUIRED = frozenset(
+    {"name", "identify", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
+    | {"measure", "measure_fields"}
+)
+MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
+
+
+@dataclass(frozen=True)
+class Dialect:
+    """One instrument's SCPI text per operation; None where the instrument has no such command."""
+
+    name: str
+    description: str | None
+    identify: str
+    reset: str
+    clear_status: str | None
+    operation_complete: str | None
+    next_error: str
+    source_voltage_mode: str | None
+    set_voltage: str
+    set_current_limit: str
+    set_settle: str | None
+    set_aperture_nplc: str | None
+    set_current_range: str | None
+    set_current_range_auto: str | None
+    sense_functions: str | None
+    output: str
+    output_query: str | None
+    measure: str
+    measure_fields: tuple[str, ...]
+    compliance_bit: int | None
+    select_channel: str | None
+    open_all_channels: str | None
+    interlock_query: str | None
+    source: str = "<built in>"
+
+    def render(self, key: str, **values: object) -> str:
+        """The SCPI text of `key` with its placeholders filled (floats as NR3, ints as NR1)."""
+        template = self.template(key)
+        wanted = PLACEHOLDERS.get(key, frozenset())
+        if set(values) != wanted:
+            detail = f"needs values for {sorted(wanted)}, was given {sorted(values)}"
+            raise DialectError(self.source, key, None, detail, hint="this is a driver bug")
+        return template.format(**{name: _scpi_text(v) for name, v in values.items()})
+
+    def template(self, key: str) -> str:
+        """The raw text of `key`; a DialectError when the dialect leaves it null."""
+        if key not in _TEXT_KEYS:
+            raise DialectError(self.source, key, None, "is not a dialect operation")
+        text: str | None = getattr(self, key)
+        if text is None:
+            detail = "is null: this instrument cannot do that operation"
+            raise DialectError(self.source, key, None, detail, hint="give the key a SCPI text")
+        return text
+
+
+_ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name != "source")
+_NON_TEXT = frozenset({"name", "description", "measure_fields", "compliance_bit"})
+_TEXT_KEYS = frozenset(_ALL_KEYS) - _NON_TEXT
+
+
+def _scpi_text(value: object) -> str:
+    if isinstance(value, bool):
+        raise TypeError("pass ON/OFF as text, not a bool")
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        return format_number(value)
+    if isinstance(value, str):
+        return value
+    raise TypeError(f"cannot put {type(value).__name__} into SCPI text")
+
+
+def load_dialect(name_or_path: str | Path) -> Dialect:
+    """The packaged dialect of that name ('scpi1999'), or the dialect file at that path."""
+    path = _resolve(name_or_path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise DialectError(path, None, None, f"cannot read: {exc.strerror or exc}") from exc
+    return parse_dialect(text, path)
+
+
+def _resolve(name_or_path: str | Path) -> Path:
+    packaged = DIALECT_DIR / f"{name_or_path}.yaml"
+    is_name = isinstance(name_or_path, str) and name_or_path.isidentifier()
+    return packaged if is_name and packaged.exists() else Path(name_or_path)
+
+
+def parse_dialect(text: str, source: str | Path = "<text>") -> Dialect:
+    """Validate dialect YAML text and build the Dialect; errors name `source`, key and line."""
+    lines = _key_lines(text, source)
+    try:
+        data = yaml.safe_load(text)
+    except yaml.YAMLError as exc:
+        raise DialectError(source, None, _yaml_line(exc), f"not valid YAML: {exc}") from exc
+    if not isinstance(data, dict):
+        raise DialectError(source, None, 1, "must be a mapping of keys to SCPI text")
+    _check_keys(data, lines, source)
+    values = {key: _check_value(key, data[key], lines.get(key), source) for key in _ALL_KEYS}
+    _check_measure(values, lines, source)
+    return Dialect(**values, source=str(source))
+
+
+def _key_lines(text: str, source: str | Path) -> dict[str, int]:
+    try:
+        node = yaml.compose(text)
+    except yaml.YAMLError as exc:
+        raise DialectError(source, None, _yaml_line(exc), f"not valid YAML: {exc}") from exc
+    if not isinstance(node, yaml.MappingNode):
+        return {}
+    return {str(k.value): k.start_mark.line + 1 for k, _ in node.value}
+
+
+def _yaml_line(exc: yaml.YAMLError) -> int | None:
+    mark = getattr(exc, "problem_mark", None)
+    return mark.line + 1 if mark is not None else None
+
+
+def _check_keys(data: dict[Any, Any], lines: dict[str, int], source: str | Path) -> None:
+    for key in data:
+        if key not in _ALL_KEYS:
+            detail = f"unknown key (known keys: {', '.join(_ALL_KEYS)})"
+            raise DialectError(source, str(key), lines.get(str(key)), detail)
+    last_line = max(lines.values(), default=None)
+    for key in _ALL_KEYS:
+        if key not in data:
+            raise DialectError(source, key, last_line, "missing (write null if not supported)")
+
+
+def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> Any:
+    if value is None:
+        if key in REQUIRED:
+            raise DialectError(source, key, line, "must not be null: the driver needs it")
+        return None
+    if key == "measure_fields":
+        if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
+            raise DialectError(source, key, line, "must be a list of field names")
+        return tuple(value)
+    if key == "compliance_bit":
+        if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 15:
+            raise DialectError(source, key, line, f"must be a bit number 0..15 (got {value!r})")
+        return value
+    if not isinstance(value, str) or not value.strip():
+        raise DialectError(source, key, line, f"must be text (got {value!r})")
+    if key in _TEXT_KEYS:
+        _check_placeholders(key, value, line, source)
+    return value
+
+
+def _check_placeholders(key: str, text: str, line: int | None, source: str | Path) -> None:
+    try:
+        found = {name for _, name, _, _ in string.Formatter().parse(text) if name is not None}
+    except ValueError as exc:
+        raise DialectError(source, key, line, f"bad braces in {text!r}: {exc}") from exc
+    wanted = PLACEHOLDERS.get(key, frozenset())
+    if found != wanted:
+        expected = ", ".join(f"{{{n}}}" for n in sorted(wanted)) or "no placeholder"
+        raise DialectError(source, key, line, f"must contain {expected} (got {text!r})")
+
+
+def _check_measure(values: dict[str, Any], lines: dict[str, int], source: str | Path) -> None:
+    names = values["measure_fields"]
+    line = lines.get("measure_fields")
+    unknown = set(names) - MEASURE_FIELD_NAMES
+    if unknown:
+        known = ", ".join(sorted(MEASURE_FIELD_NAMES))
+        raise DialectError(source, "measure_fields", line, f"unknown {sorted(unknown)} ({known})")
+    for name in ("voltage", "current"):
+        if names.count(name) != 1:
+            raise DialectError(source, "measure_fields", line, f"needs {name!r} exactly once")
+    if names.count("status") > 1:
+        raise DialectError(source, "measure_fields", line, "has 'status' more than once")
+    if values["compliance_bit"] is not None and "status" not in names:
+        detail = "compliance_bit is set but measure_fields has no 'status' field"
+        raise DialectError(source, "compliance_bit", lines.get("compliance_bit"), detail)

@@ -1,0 +1,237 @@
+"""The abstract SMU operations the sequencer needs, spoken in whatever dialect the instrument has.
+
+The driver formats SCPI only through `Dialect.render` and parses replies only through
+`instruments.scpi`; it never sees a socket. SCPI error-queue entries become exceptions in exactly
+one place, `ScpiSmu.check_errors`.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import numbers
+import time
+from collections import deque
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TypeVar
+
+from instruments.dialect import Dialect
+from instruments.errors import ReplyError, ScpiError
+from instruments.scpi import flat_fields, parse_bool, parse_error_entry, parse_int, parse_number
+from instruments.transport import Transport
+
+log = logging.getLogger(__name__)
+T = TypeVar("T")
+
+MAX_ERROR_READS = 20  # a queue holds about 10 entries; more reads means it never empties
+_RECENT = 8  # commands kept to say, in an error message, what the instrument was sent
+# Without a status bit, a reading this close to the programmed limit counts as in compliance.
+_LIMIT_FRACTION = 0.999
+
+
+@dataclass(frozen=True)
+class Reading:
+    """One measurement at the terminals: SI units, inf/nan where the instrument sent SCPI's
+    special values; `in_compliance` means the current limit was clamping (not a valid point)."""
+
+    voltage_v: float
+    current_a: float
+    in_compliance: bool
+
+
+class ScpiSmu:
+    """A source-measure unit sourcing voltage with a current limit, behind a `Transport`."""
+
+    def __init__(
+        self,
+        transport: Transport,
+        dialect: Dialect,
+        *,
+        sleep: Callable[[float], None] = time.sleep,
+    ) -> None:
+        self.transport = transport
+        self.dialect = dialect
+        self._sleep = sleep
+        self._identity: str | None = None
+        self._limit_a: float | None = None
+        self._settle_s = 0.0  # waited by the driver itself only when the dialect has no settle
+        self._recent: deque[str] = deque(maxlen=_RECENT)
+
+    @property
+    def resource(self) -> str:
+        return self.transport.resource
+
+    @property
+    def identity(self) -> str:
+        """The instrument's identification (asked once, then cached)."""
+        return self._identity if self._identity is not None else self.identify()
+
+    def identify(self) -> str:
+        self._identity = self._query("identify").strip()
+        return self._identity
+
+    def reset(self) -> None:
+        """Reset to the instrument's defaults, clear status and the error queue, wait until done."""
+        self._write("reset")
+        if self.dialect.clear_status is not None:
+            self._write("clear_status")
+        if self.dialect.operation_complete is not None:
+            self._parse("operation_complete", self._query("operation_complete"), parse_int)
+        self._limit_a = None
+
+    def safe_state(self) -> bool:
+        """Output off, then level 0 V. Never raises (it runs in `finally` blocks).
+
+        Each step is tried even if the one before failed; both are plain writes, so they need no
+        reply and work while a query is out of step. Problems are logged as warnings, and the
+        return value says whether both commands were sent (False: assume the output may be on).
+        """
+        sent = True
+        steps = (
+            ("output off", lambda: self.output(False)),
+            ("level 0 V", lambda: self.set_voltage(0.0)),
+        )
+        for name, step in steps:
+            try:
+                step()
+            except Exception as exc:  # any failure here must not hide the one being handled
+                log.warning("safe state: %s failed on %s: %s", name, self.resource, exc)
+                sent = False
+        return sent
+
+    def configure(
+        self,
+        *,
+        limit_a: float,
+        nplc: float,
+        settle_s: float,
+        current_range_a: float | None = None,
+    ) -> None:
+        """Source voltage with a current limit; set aperture, settling and range, then check."""
+        _check_positive(limit_a=limit_a, nplc=nplc)
+        if current_range_a is not None:
+            _check_positive(current_range_a=current_range_a)
+        if not (math.isfinite(settle_s) and settle_s >= 0):
+            raise ValueError(f"settle_s must be >= 0 s (got {settle_s!r})")
+        self._write_if_known("source_voltage_mode")
+        self.set_current_limit(limit_a)
+        self._configure_timing(nplc, settle_s)
+        self._configure_range(current_range_a)
+        self._write_if_known("sense_functions")
+        self.check_errors()
+
+    def set_voltage(self, volts: float) -> None:
+        self._write("set_voltage", volts=float(volts))
+
+    def set_current_limit(self, amps: float) -> None:
+        self._write("set_current_limit", amps=float(amps))
+        self._limit_a = float(amps)
+
+    def output(self, on: bool) -> None:
+        self._write("output", state="ON" if on else "OFF")
+
+    def output_is_on(self) -> bool:
+        return self._parse("output_query", self._query("output_query"), parse_bool)
+
+    def measure(self) -> Reading:
+        """One reading with one query; compliance from the status bit the dialect names."""
+        if self._settle_s:
+            self._sleep(self._settle_s)
+        reply = self._query("measure")
+        fields = flat_fields(reply)
+        names = self.dialect.measure_fields
+        if len(fields) != len(names):
+            detail = f"reply {reply!r} has {len(fields)} fields, the dialect expects {list(names)}"
+            raise ReplyError(self.resource, self.dialect.measure, detail)
+        values = dict(zip(names, fields, strict=True))
+        voltage = self._parse("measure", values["voltage"], parse_number)
+        current = self._parse("measure", values["current"], parse_number)
+        return Reading(voltage, current, self._in_compliance(values, current))
+
+    def select_channel(self, channel: int) -> None:
+        """Connect tray channel `channel` (1..N) alone to the SMU, then check it was accepted:
+        a refused switch would otherwise measure the wrong device."""
+        if isinstance(channel, bool) or not isinstance(channel, numbers.Integral) or channel < 1:
+            raise ValueError(f"channel must be an integer >= 1 (got {channel!r})")
+        self._write("select_channel", channel=int(channel))
+        self.check_errors()
+
+    def open_all_channels(self) -> None:
+        """Disconnect every tray channel (nothing to do when the dialect has no switch matrix)."""
+        self._write_if_known("open_all_channels")
+
+    def interlock_closed(self) -> bool:
+        """True when the fixture lid is closed. A dialect without `interlock_query` raises
+        DialectError: an interlock that cannot be read must never count as closed."""
+        return self._parse("interlock_query", self._query("interlock_query"), parse_bool)
+
+    def check_errors(self) -> None:
+        """Drain the error queue; raise ScpiError for its first entry, all of them listed."""
+        entries: list[tuple[int, str]] = []
+        hint = None
+        for _ in range(MAX_ERROR_READS):
+            entry = self._parse("next_error", self._query("next_error"), parse_error_entry)
+            if entry[0] == 0:
+                break
+            entries.append(entry)
+        else:
+            hint = f"the error queue was not empty after {MAX_ERROR_READS} reads: reset it"
+        sent = " ; ".join(self._recent) or None  # what was sent since the last check
+        self._recent.clear()
+        if entries:
+            code, text = entries[0]
+            raise ScpiError(self.resource, sent, code, text, entries=entries, hint=hint)
+
+    def close(self) -> None:
+        self.transport.close()
+
+    # -- internals -------------------------------------------------------------------------
+
+    def _write(self, key: str, **values: object) -> None:
+        message = self.dialect.render(key, **values)
+        self._recent.append(message)
+        self.transport.write(message)
+
+    def _write_if_known(self, key: str) -> None:
+        if getattr(self.dialect, key) is None:
+            log.debug("%s: dialect %s has no %s; skipped", self.resource, self.dialect.name, key)
+            return
+        self._write(key)
+
+    def _query(self, key: str) -> str:
+        return self.transport.query(self.dialect.render(key))
+
+    def _parse(self, key: str, text: str, parser: Callable[[str], T]) -> T:
+        try:
+            return parser(text)
+        except ReplyError as exc:
+            raise ReplyError(self.resource, self.dialect.template(key), exc.detail) from exc
+
+    def _configure_timing(self, nplc: float, settle_s: float) -> None:
+        if self.dialect.set_aperture_nplc is not None:
+            self._write("set_aperture_nplc", nplc=float(nplc))
+        self._settle_s = settle_s if self.dialect.set_settle is None else 0.0
+        if self.dialect.set_settle is not None:
+            self._write("set_settle", seconds=float(settle_s))
+
+    def _configure_range(self, current_range_a: float | None) -> None:
+        if current_range_a is None:
+            self._write_if_known("set_current_range_auto")
+        else:
+            self._write("set_current_range", amps=float(current_range_a))
+
+    def _in_compliance(self, values: dict[str, str], current_a: float) -> bool:
+        bit = self.dialect.compliance_bit
+        if bit is not None:
+            status = self._parse("measure", values["status"], parse_int)
+            return bool((status >> bit) & 1)
+        if self._limit_a is None or math.isnan(current_a):
+            return False
+        return abs(current_a) >= _LIMIT_FRACTION * self._limit_a
+
+
+def _check_positive(**values: float) -> None:
+    for name, value in values.items():
+        if not (math.isfinite(value) and value > 0):
+            raise ValueError(f"{name} must be a finite number > 0 (got {value!r})")

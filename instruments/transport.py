@@ -1,0 +1,370 @@
+"""Transports: how SCPI text reaches an instrument. The only module that imports pyvisa.
+
+A driver sees the small `Transport` protocol and nothing else. `open_visa` opens any VISA resource
+through pyvisa's pure-Python backend and turns everything pyvisa, the OS or pyserial can raise into
+our typed errors at one chokepoint (`VisaTransport._mapped`). Two more transports live in
+`instruments.loopback` (re-exported here): an in-process one for unit tests and a spy that records
+every exchange.
+
+pyvisa-py facts this module works around (measured, see SCPI.md):
+- a late reply after a timeout would be read as the answer to the next query, for good: after a
+  timeout the transport is marked out of step and resynchronised before its next query;
+- a peer that closed the socket looks like a slow instrument (the read spins until the timeout):
+  a query first waits for the socket itself and peeks, so a closed peer is reported at once;
+- a refused connection opens fine and only fails on the first write: `open_visa` asks `*IDN?`.
+"""
+
+from __future__ import annotations
+
+import functools
+import logging
+import math
+import select
+import socket
+import time
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any, Protocol, runtime_checkable
+
+import numpy as np
+import pyvisa
+from pyvisa import constants, rname
+from pyvisa import errors as visa_errors
+
+from instruments.errors import (
+    InstrumentDisconnected,
+    InstrumentError,
+    InstrumentTimeout,
+    ReplyError,
+)
+from instruments.scpi import (
+    block_dtype,
+    check_message,
+    decode_payload,
+    parse_block_header,
+    reply_error,
+)
+
+try:  # pyserial is an optional extra of pyvisa-py; without it there are no ASRL resources
+    import serial
+
+    _SERIAL_TIMEOUTS: tuple[type[Exception], ...] = (serial.SerialTimeoutException,)
+    _SERIAL_ERRORS: tuple[type[Exception], ...] = (serial.SerialException,)
+except ImportError:  # pragma: no cover - pyserial is installed in development
+    _SERIAL_TIMEOUTS = _SERIAL_ERRORS = ()
+
+log = logging.getLogger(__name__)
+
+# IEEE 488.2 makes *IDN? mandatory, so it is the one query every instrument can answer: the probe
+# that tells a fresh reply from a stale one when resynchronising.
+PROBE = "*IDN?"
+_QUIET_S = 0.1  # silence that ends a drain (what pyvisa-py's clear() waits for, too)
+_MAX_STALE = 4  # late replies discarded while resynchronising before giving up
+
+
+@runtime_checkable
+class Transport(Protocol):
+    """What a driver may do with an instrument connection. Messages carry no terminator.
+
+    `resource` is the resource string; `timeout_s` the reply timeout in seconds (finite, > 0).
+    """
+
+    @property
+    def resource(self) -> str: ...
+
+    @property
+    def timeout_s(self) -> float: ...
+
+    @timeout_s.setter
+    def timeout_s(self, value: float) -> None: ...
+
+    def write(self, message: str) -> None: ...
+
+    def query(self, message: str) -> str: ...
+
+    def query_block(
+        self, message: str, *, datatype: str = "f", big_endian: bool = False
+    ) -> np.ndarray: ...
+
+    def clear(self) -> None: ...
+
+    def close(self) -> None: ...
+
+
+def check_timeout(timeout_s: float) -> float:
+    """The timeout if finite and positive; an infinite one would hang pyvisa-py at 100 % CPU."""
+    if timeout_s is None or not math.isfinite(timeout_s) or timeout_s <= 0:
+        raise ValueError(f"timeout must be a finite number of seconds > 0 (got {timeout_s!r})")
+    return float(timeout_s)
+
+
+@functools.cache
+def _resource_manager() -> pyvisa.ResourceManager:
+    # One manager for the process: closing a manager closes every resource it opened.
+    return pyvisa.ResourceManager("@py")
+
+
+def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
+    """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers *IDN?."""
+    millis = round(check_timeout(timeout_s) * 1000)
+    try:
+        inst = _resource_manager().open_resource(
+            resource,
+            read_termination="\n",
+            write_termination="\n",
+            timeout=millis,
+            open_timeout=millis,
+        )
+    except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
+        raise _open_error(resource, exc) from exc
+    transport = VisaTransport(inst, resource, timeout_s)
+    try:
+        transport.learn_probe()
+    except BaseException:
+        transport.close()
+        raise
+    return transport
+
+
+def _open_error(resource: str, exc: Exception) -> InstrumentError:
+    hint = "write it like TCPIP0::127.0.0.1::5025::SOCKET (SOCKET and INSTR in upper case)"
+    if isinstance(exc, rname.InvalidResourceName):
+        return InstrumentError(resource, None, f"not a valid resource string: {exc}", hint=hint)
+    if isinstance(exc, ValueError):  # GPIB/USB without drivers, or a resource class in lower case
+        detail = f"cannot open this kind of resource: {exc}"
+        return InstrumentError(resource, None, detail, hint=f"install its driver, or {hint}")
+    return InstrumentDisconnected(resource, None, f"could not open: {exc}")
+
+
+class VisaTransport:
+    """A Transport over a pyvisa message-based resource; use `open_visa` to make one."""
+
+    def __init__(self, inst: Any, resource: str, timeout_s: float) -> None:
+        self._inst = inst
+        self.resource = resource
+        self._timeout_s = check_timeout(timeout_s)
+        self._session = _pyvisa_py_session(inst)
+        self._socket = _tcp_socket(self._session)
+        if self._socket is not None:
+            # pyvisa-py leaves Nagle on and cannot set VI_ATTR_TCPIP_NODELAY (SCPI.md 1.8). A
+            # command followed by a query then waits for the peer's delayed ACK: about 40 ms a
+            # point, measured here. Setting the option on its socket removes the stall.
+            self._socket.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        self._probe_reply: str | None = None
+        self._out_of_step = False
+        self._closed = False
+
+    @property
+    def timeout_s(self) -> float:
+        return self._timeout_s
+
+    @timeout_s.setter
+    def timeout_s(self, value: float) -> None:
+        self._timeout_s = check_timeout(value)
+        with self._mapped(None):
+            self._inst.timeout = round(self._timeout_s * 1000)
+
+    def learn_probe(self) -> str:
+        """Ask *IDN? once (also proves the connection) and remember it for resynchronising."""
+        self._probe_reply = self.query(PROBE)
+        return self._probe_reply
+
+    def write(self, message: str) -> None:
+        check_message(message)
+        with self._mapped(message):
+            self._check_alive(message)
+            self._inst.write(message)
+
+    def query(self, message: str) -> str:
+        self.write(self._in_step(message))
+        with self._mapped(message):
+            return self._read(message)
+
+    def query_block(
+        self, message: str, *, datatype: str = "f", big_endian: bool = False
+    ) -> np.ndarray:
+        dtype = block_dtype(datatype, big_endian)
+        self.write(self._in_step(message))
+        with self._mapped(message):
+            self._await_reply(message)
+            return self._read_block(dtype)
+
+    def clear(self) -> None:
+        """Drop everything the instrument sent and nobody read, then check the stream is in step."""
+        with self._mapped("<clear>"):
+            self._check_alive("<clear>")
+            self._out_of_step = True
+            self._resync("<clear>")
+
+    def close(self) -> None:
+        if self._closed:
+            return
+        self._closed = True
+        try:
+            self._inst.close()
+        except Exception as exc:  # the connection may be broken already; closing must not fail
+            log.debug("closing %s: %r", self.resource, exc)
+
+    # -- internals -------------------------------------------------------------------------
+
+    @contextmanager
+    def _mapped(self, command: str | None) -> Iterator[None]:
+        """The chokepoint: every exception from pyvisa, the OS or pyserial becomes ours here."""
+        try:
+            yield
+        except ReplyError as exc:
+            self._out_of_step = True  # the rest of a bad reply may still be on its way
+            if exc.resource:
+                raise
+            raise ReplyError(self.resource, command, exc.detail) from exc
+        except InstrumentError:
+            raise
+        except visa_errors.VisaIOError as exc:
+            if exc.error_code == constants.StatusCode.error_timeout:
+                raise self._after_timeout(command) from exc
+            detail = f"VISA I/O error {exc.abbreviation}: {exc.description}"
+            raise InstrumentError(self.resource, command, detail) from exc
+        except visa_errors.InvalidSession as exc:
+            raise InstrumentDisconnected(self.resource, command, "the session is closed") from exc
+        except _SERIAL_TIMEOUTS as exc:
+            detail = f"serial write timed out: {exc}"
+            raise InstrumentTimeout(self.resource, command, detail) from exc
+        except (ConnectionError, *_SERIAL_ERRORS) as exc:
+            detail = f"connection lost ({type(exc).__name__}: {exc})"
+            raise InstrumentDisconnected(self.resource, command, detail) from exc
+        except OSError as exc:
+            raise InstrumentError(self.resource, command, f"I/O error: {exc}") from exc
+        except ValueError as exc:  # undecodable bytes, pyvisa's own parse errors
+            self._out_of_step = True
+            raise ReplyError(self.resource, command, f"unreadable reply: {exc}") from exc
+        except BaseException:  # Ctrl-C or a signal mid-exchange: its reply may still come
+            self._out_of_step = True
+            raise
+
+    def _after_timeout(self, command: str | None) -> InstrumentError:
+        lost = self._link_lost()
+        if lost:
+            return InstrumentDisconnected(self.resource, command, lost)
+        self._out_of_step = True
+        detail = f"no complete reply within {self._timeout_s:g} s"
+        return InstrumentTimeout(self.resource, command, detail)
+
+    def _check_alive(self, command: str | None) -> None:
+        if self._closed:
+            raise InstrumentDisconnected(self.resource, command, "the connection was closed")
+        lost = self._link_lost()  # else the first write to a closed peer succeeds silently
+        if lost:
+            raise InstrumentDisconnected(self.resource, command, lost)
+
+    def _in_step(self, message: str) -> str:
+        """Resynchronise first if a reply went missing; returns the message to send next."""
+        check_message(message)
+        if self._out_of_step:
+            with self._mapped(message):
+                self._check_alive(message)
+                self._resync(message)
+        return message
+
+    def _read(self, command: str) -> str:
+        self._await_reply(command)
+        return self._inst.read().removesuffix("\r")
+
+    def _await_reply(self, command: str) -> None:
+        """Wait on the socket itself, so a peer that closed is seen at once, not after a timeout."""
+        if self._socket is None or getattr(self._session, "_pending_buffer", None):
+            return
+        ready, _, _ = select.select([self._socket], [], [], self._timeout_s)
+        if not ready:
+            raise self._after_timeout(command)
+        lost = self._link_lost()
+        if lost:
+            raise InstrumentDisconnected(self.resource, command, lost)
+
+    def _link_lost(self) -> str | None:
+        """Why the TCP link is gone, or None while it looks alive (a peek, never a wait)."""
+        if self._socket is None:
+            return None
+        try:
+            if self._socket.recv(1, socket.MSG_PEEK | socket.MSG_DONTWAIT) == b"":
+                return "the instrument closed the connection"
+        except BlockingIOError:
+            return None  # alive, nothing pending
+        except ConnectionRefusedError:
+            return "connection refused: nothing listens at that address and port"
+        except OSError as exc:  # reset, or our own socket closed
+            return f"connection lost ({exc.strerror or exc})"
+        return None
+
+    def _read_block(self, dtype: np.dtype) -> np.ndarray:
+        # Reads the payload with the termchar off, so LF bytes in it do not cost a read each.
+        head = self._inst.read_bytes(2)
+        digits = int(head[1:2]) if head[:1] == b"#" and head[1:2].isdigit() else 0
+        length_text = self._inst.read_bytes(digits) if digits else b""
+        _, length = parse_block_header(head + length_text)
+        attribute = constants.ResourceAttribute.termchar_enabled
+        self._inst.set_visa_attribute(attribute, constants.VI_FALSE)
+        try:
+            payload = self._inst.read_bytes(length + 1)
+        finally:
+            self._inst.set_visa_attribute(attribute, constants.VI_TRUE)
+        if payload[-1:] != b"\n":
+            raise reply_error(f"<block ending {payload[-4:]!r}>", "a block followed by LF")
+        return decode_payload(payload[:-1], dtype)
+
+    def _resync(self, command: str) -> None:
+        self._drain(command)
+        if self._probe_reply is not None:
+            self._inst.write(PROBE)
+            self._await_probe(command)
+        self._out_of_step = False
+
+    def _await_probe(self, command: str) -> None:
+        for _ in range(_MAX_STALE):
+            reply = self._read(PROBE)
+            if reply == self._probe_reply:
+                return
+            log.warning("%s: discarded a late reply %r", self.resource, reply)
+        detail = f"still out of step after discarding {_MAX_STALE} late replies"
+        raise InstrumentError(self.resource, command, detail, hint="reconnect to the instrument")
+
+    def _drain(self, command: str) -> None:
+        """Read and drop input until it has been quiet for 0.1 s (bounded by the timeout)."""
+        if self._socket is None:
+            self._inst.clear()
+            return
+        self._session._pending_buffer.clear()
+        deadline = time.monotonic() + max(self._timeout_s, 2 * _QUIET_S)
+        while select.select([self._socket], [], [], _QUIET_S)[0]:
+            if not self._socket.recv(65536):
+                detail = "the instrument closed the connection"
+                raise InstrumentDisconnected(self.resource, command, detail)
+            if time.monotonic() > deadline:
+                detail = "the instrument keeps sending; its output has no end to find"
+                raise InstrumentError(self.resource, command, detail, hint="reset it, reconnect")
+
+
+def _pyvisa_py_session(inst: Any) -> Any:
+    try:
+        return inst.visalib.sessions[inst.session]
+    except Exception:  # another backend, or no session: the socket fast paths are off
+        return None
+
+
+def _tcp_socket(session: Any) -> socket.socket | None:
+    sock = getattr(session, "interface", None)
+    has_buffer = isinstance(getattr(session, "_pending_buffer", None), bytearray)
+    return sock if isinstance(sock, socket.socket) and has_buffer else None
+
+
+from instruments.loopback import CallableTransport, SpyTransport  # noqa: E402
+
+__all__ = [
+    "PROBE",
+    "CallableTransport",
+    "SpyTransport",
+    "Transport",
+    "VisaTransport",
+    "check_message",
+    "check_timeout",
+    "open_visa",
+]
