@@ -1,0 +1,65 @@
+"""Simulator options (the `serve` command line as a frozen dataclass) and building from them."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+import simulator
+from simulator.clock import make_clock
+from simulator.errors import OptionError
+from simulator.instrument import HOT_SWITCH_V, TOUCH_SAFE_V, Instrument
+from simulator.lot import make_lot
+from simulator.presets import preset
+from simulator.smu_model import Smu
+
+NOISE_STREAM = 0x5EED  # keeps the noise stream apart from the lot's streams of the same seed
+
+
+@dataclass(frozen=True)
+class SimOptions:
+    """Everything `python -m simulator serve` accepts; validated on construction."""
+
+    host: str = "127.0.0.1"
+    port: int = 0  # 0: the OS picks a free port
+    seed: int = 1
+    devices: int = 20
+    preset: str = "FLC-1.8"
+    spread: float = 1.0  # scales the process spread; 1 gives about 5 % sigma of IP
+    defect_rate: float = 0.0
+    clock: str = "real"
+    line_frequency: float = 50.0
+    touch_safe_v: float = TOUCH_SAFE_V
+    hot_switch_v: float = HOT_SWITCH_V
+
+    def __post_init__(self) -> None:
+        checks = {
+            "host": (self.host == "127.0.0.1", "only 127.0.0.1 is served"),
+            "port": (0 <= self.port <= 65535, "must be 0..65535"),
+            "seed": (0 <= self.seed <= 999_999, "must be 0..999999 (it is the 6-digit serial)"),
+            "devices": (1 <= self.devices <= 10_000, "must be 1..10000"),
+            "spread": (0 <= self.spread <= 10, "must be 0..10"),
+            "defect_rate": (0 <= self.defect_rate <= 1, "must be 0..1"),
+            "clock": (self.clock in ("real", "virtual"), "must be real or virtual"),
+            "line_frequency": (self.line_frequency in (50, 60), "must be 50 or 60"),
+        }
+        for name, (ok, problem) in checks.items():
+            if not ok:
+                raise OptionError(name, f"{problem} (got {getattr(self, name)!r})")
+        preset(self.preset)  # raises OptionError naming the known presets
+
+
+def build_instrument(options: SimOptions | None = None) -> Instrument:
+    """A fresh instrument with its seeded lot, noise stream and clock."""
+    o = options or SimOptions()
+    lot = make_lot(o.seed, o.devices, o.preset, o.spread, o.defect_rate)
+    rng = np.random.default_rng([NOISE_STREAM, o.seed])
+    smu = Smu(make_clock(o.clock), rng, float(o.line_frequency))
+    return Instrument(
+        lot,
+        smu,
+        version=simulator.__version__,
+        touch_safe_v=o.touch_safe_v,
+        hot_switch_v=o.hot_switch_v,
+    )

@@ -1,0 +1,122 @@
+"""What the SMU does: source a voltage with a clamping current limit, and measure.
+
+Measurement model (documented here because a driver's tests depend on it):
+- Clamp: when the device would draw more than the limit at the programmed level, the SMU turns
+  into a current source at +/-limit; the reading is the voltage where the device draws exactly
+  the limit, and `Reading.limited` is set (the instrument maps it to QUES bit 1).
+- Current ranges 1 uA .. 100 mA. Auto range picks the smallest range >= |I|; a fixed range flags
+  readings above 1.05 x range as overflow, reported as +/-9.9E+37 (SCPI INF/NINF).
+- Gaussian noise, seeded: 5 ppm of range (current) and 50 uV (voltage) at 1 NPLC, scaling with
+  1/sqrt(NPLC) as averaging over a longer aperture would; then rounded to 1 ppm of range and
+  10 uV.
+- Time: each acquisition costs trigger delay + NPLC / line frequency on the injected clock.
+- Output off, or nothing connected: the true voltage and current are 0 (the reading is noise).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from simulator.clock import Clock
+from simulator.devices import Device
+
+CURRENT_RANGES_A = (1e-6, 1e-5, 1e-4, 1e-3, 1e-2, 1e-1)
+OVERRANGE = 1.05
+OVERFLOW_READING = 9.9e37
+CURRENT_NOISE_OF_RANGE = 5e-6
+VOLTAGE_NOISE_V = 50e-6
+CURRENT_RESOLUTION_OF_RANGE = 1e-6
+VOLTAGE_RESOLUTION_V = 1e-5
+DEFAULT_LIMIT_A = 1e-3
+
+
+@dataclass(frozen=True)
+class Reading:
+    voltage_v: float
+    current_a: float
+    limited: bool  # the current limit was active
+    overflow: bool  # the current exceeded the fixed range
+    range_a: float
+
+
+def range_for(current_a: float) -> float:
+    """The smallest current range that holds |current|, else the largest."""
+    for upper in CURRENT_RANGES_A:
+        if abs(current_a) <= upper:
+            return upper
+    return CURRENT_RANGES_A[-1]
+
+
+class Smu:
+    """Source and measurement state of one voltage-source SMU channel."""
+
+    def __init__(self, clock: Clock, rng: np.random.Generator, line_frequency_hz: float) -> None:
+        self.clock = clock
+        self.rng = rng
+        self.line_frequency_hz = line_frequency_hz
+        self.applied_levels: list[float] = []  # every level the output carried, in order
+        self.reset()
+
+    def reset(self) -> None:
+        """*RST state: output off, 0 V, 1 mA limit, 1 NPLC, no delay, auto range."""
+        self.output_on = False
+        self.level_v = 0.0
+        self.limit_a = DEFAULT_LIMIT_A
+        self.nplc = 1.0
+        self.trigger_delay_s = 0.0
+        self.range_auto = True
+        self.range_a = CURRENT_RANGES_A[-1]
+        self.sense_functions: tuple[str, ...] = ("VOLT", "CURR")
+
+    @property
+    def aperture_s(self) -> float:
+        return self.nplc / self.line_frequency_hz
+
+    def set_output(self, on: bool) -> None:
+        self.output_on = on
+        if on:
+            self.applied_levels.append(self.level_v)
+
+    def set_level(self, volts: float) -> None:
+        self.level_v = volts
+        if self.output_on:
+            self.applied_levels.append(volts)
+
+    def set_fixed_range(self, amps: float) -> None:
+        self.range_a = range_for(amps)
+        self.range_auto = False
+
+    def max_applied_v(self) -> float:
+        return max((abs(v) for v in self.applied_levels), default=0.0)
+
+    def measure(self, device: Device | None) -> Reading:
+        """One acquisition of (V, I) on the connected device (None: nothing connected)."""
+        self.clock.spend(self.trigger_delay_s + self.aperture_s)
+        volts, amps, limited = self._true_output(device)
+        if self.range_auto:
+            self.range_a = range_for(amps)
+        scale = 1.0 / np.sqrt(self.nplc)
+        v_noise, i_noise = self.rng.normal(0.0, 1.0, 2) * scale
+        v = _round(volts + v_noise * VOLTAGE_NOISE_V, VOLTAGE_RESOLUTION_V)
+        i = amps + i_noise * CURRENT_NOISE_OF_RANGE * self.range_a
+        i = _round(i, CURRENT_RESOLUTION_OF_RANGE * self.range_a)
+        overflow = abs(i) > OVERRANGE * self.range_a
+        if overflow:
+            i = float(np.copysign(OVERFLOW_READING, i))
+        return Reading(v, i, limited, overflow, self.range_a)
+
+    def _true_output(self, device: Device | None) -> tuple[float, float, bool]:
+        if not self.output_on or device is None:
+            return 0.0, 0.0, False
+        volts = self.level_v
+        amps = float(device.current(volts))
+        if abs(amps) <= self.limit_a:
+            return volts, amps, False
+        clamp = float(np.copysign(self.limit_a, amps))
+        return float(device.voltage_at(clamp, volts)), clamp, True
+
+
+def _round(value: float, step: float) -> float:
+    return float(np.round(value / step) * step)

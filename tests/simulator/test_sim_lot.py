@@ -1,0 +1,83 @@
+"""Presets and the seeded lot generator."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from simulator.devices import OPEN_OHM, SHORT_OHM, JfetRegulator, Resistor
+from simulator.errors import OptionError
+from simulator.lot import make_lot
+from simulator.presets import family, preset
+
+
+def ip(device) -> float:
+    return float(device.current(25.0))
+
+
+@pytest.mark.parametrize("name", ["FLC-0.2", "FLC-0.5", "FLC-1.0", "FLC-1.8", "FLC-3.3", "FLC-4.7"])
+def test_each_preset_regulates_within_3_percent_of_its_name_at_25_v(name):
+    p = preset(name)
+    nominal_ma = float(name.split("-")[1])
+    assert p.nominal_a == pytest.approx(nominal_ma * 1e-3)
+    assert ip(JfetRegulator(p.params)) == pytest.approx(p.nominal_a, rel=0.03)
+
+
+def test_default_preset_is_the_documented_one():
+    p = preset(family().default).params
+    assert (p.idss_a, p.vto_v, p.lambda_per_v, p.rs_ohm) == (10e-3, -3.0, 0.01, 1000.0)
+
+
+def test_unknown_preset_names_the_known_ones():
+    with pytest.raises(OptionError, match=r"FLC-1\.8") as caught:
+        preset("FLC-9.9")
+    assert isinstance(caught.value, ValueError)
+
+
+def test_same_seed_same_lot_and_other_seed_other_lot():
+    first, again, other = make_lot(7, 30), make_lot(7, 30), make_lot(8, 30)
+    assert [d.params for d in first.devices] == [d.params for d in again.devices]
+    assert [d.params for d in first.devices] != [d.params for d in other.devices]
+
+
+def test_device_k_does_not_depend_on_lot_size_or_defect_rate():
+    small, large = make_lot(3, 5), make_lot(3, 40, defect_rate=0.5)
+    assert [d.params for d in small.devices] == [d.params for d in large.devices[:5]]
+
+
+def test_default_spread_gives_about_5_percent_sigma_of_ip():
+    currents = np.array([ip(d.device) for d in make_lot(1, 400).devices])
+    sigma = currents.std(ddof=1) / currents.mean()
+    assert 0.04 < sigma < 0.06  # the brief's design target; sensitivities in data/presets.yaml
+    half = np.array([ip(d.device) for d in make_lot(1, 400, spread=0.5).devices])
+    assert half.std(ddof=1) / half.mean() == pytest.approx(sigma / 2, rel=0.1)
+
+
+def test_zero_spread_gives_identical_devices():
+    lot = make_lot(5, 6, "FLC-3.3", spread=0.0)
+    assert len({d.params for d in lot.devices}) == 1
+    assert lot.devices[0].params == preset("FLC-3.3").params
+
+
+def test_defects_appear_at_the_rate_and_are_open_or_short():
+    lot = make_lot(11, 1000, defect_rate=0.2)
+    kinds = [d.kind for d in lot.devices]
+    assert kinds.count("good") / len(kinds) == pytest.approx(0.8, abs=0.04)
+    assert {"open", "short"} <= set(kinds) <= {"good", "open", "short"}
+    for d in lot.devices:
+        if d.kind != "good":
+            assert d.device == Resistor(OPEN_OHM if d.kind == "open" else SHORT_OHM)
+    assert all(d.kind == "good" for d in make_lot(11, 200).devices)  # default rate 0
+
+
+def test_lot_channels_are_one_based_and_in_order():
+    lot = make_lot(1, 4)
+    assert [d.channel for d in lot.devices] == [1, 2, 3, 4]
+    assert lot.at(3) is lot.devices[2] and len(lot) == 4
+
+
+def test_bad_lot_arguments_raise_option_error():
+    with pytest.raises(OptionError):
+        make_lot(1, 0)
+    with pytest.raises(OptionError):
+        make_lot(1, 5, defect_rate=1.5)
