@@ -181,12 +181,18 @@ def _now() -> str:
 
 
 def cmd_sim(args: argparse.Namespace, console: Console) -> int:
-    console.print("[yellow]simulated SMU: no real output; Ctrl-C stops it[/]")
+    console.print(
+        "simulated SMU: no real output. Put the resource below in a station file "
+        "(instrument.resource); Ctrl-C stops it."
+    )
     command = [sys.executable, "-m", "simulator", "serve", "--port", str(args.port)]
     command += ["--seed", str(args.seed), "--devices", str(args.devices), "--preset", args.preset]
+    child = subprocess.Popen(command, env=dict(os.environ))
     try:
-        return subprocess.call(command, env=dict(os.environ))
-    except KeyboardInterrupt:
+        return child.wait()
+    except (KeyboardInterrupt, Terminated):
+        child.terminate()
+        child.wait(timeout=10)
         return 0
 
 
