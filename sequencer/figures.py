@@ -17,6 +17,7 @@ from functools import cached_property
 import numpy as np
 
 from .judgesettings import FIGURES, SHAPES, JudgeSettings
+from .knee import crossing
 from .shape import classify
 from .slopes import Fit, impedance, window_fit
 from .uncertainty import combine
@@ -244,21 +245,16 @@ def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: n
         out.put("limiting_voltage", np.full(n, np.nan), np.full(n, np.nan), missing=[1] * n)
         out.knee_reference_a = ref
         return
-    hit = good & (i >= ref[:, None])
-    found = hit.any(axis=1)
-    k = hit.argmax(axis=1)
-    rows = np.arange(n)
-    k0 = np.maximum(k - 1, 0)
-    v0, v1, i0, i1 = v[rows, k0], v[rows, k], i[rows, k0], i[rows, k]
-    slope = (i1 - i0) / (v1 - v0)
-    vl = v0 + (ref - i0) / slope
+    knee = crossing(v, i, good, ref)
     miss = np.zeros(n, np.int8)
-    miss[~good[rows, k0]] = MISS_COMPLIANCE
-    miss[k == 0] = MISS_FIRST
-    miss[~found] = MISS_NEVER
+    miss[~knee.prev_good] = MISS_COMPLIANCE
+    miss[knee.first] = MISS_FIRST
+    miss[~knee.found] = MISS_NEVER
     miss[np.isnan(ref)] = MISS_NO_IP
+    # The current's uncertainty at the crossing moves the voltage by dV/dI there.
     u_i = combine(s.accuracy.current.u(ref), np.nan_to_num(noise), np.nan_to_num(u_ref))
-    u = combine(s.accuracy.voltage.u(vl), u_i / slope)
+    vl = knee.volts
+    u = combine(s.accuracy.voltage.u(vl), u_i / knee.slope, knee.u_interpolation)
     bad = miss > 0
     out.put("limiting_voltage", np.where(bad, np.nan, vl), np.where(bad, np.nan, u), None, miss)
     out.knee_reference_a = ref
