@@ -12,6 +12,8 @@ so a lot judged at once and device by device give the same figures.
 from __future__ import annotations
 
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field, fields
 
 import numpy as np
@@ -141,17 +143,23 @@ def judge_arrays(
     clamped: np.ndarray,
     settings: JudgeSettings,
 ) -> LotResult:
-    """Judge every row of (devices x points) readings that followed one plan (`layout`)."""
-    parts = []
-    for start in range(0, max(voltage.shape[0], 1), CHUNK_ROWS):
+    """Judge every row of (devices x points) readings that followed one plan (`layout`).
+
+    Rows go in chunks; with more than one chunk they are spread over the machine's cores
+    (numpy releases the interpreter lock inside its loops)."""
+
+    def chunk(start: int):
         rows = slice(start, start + CHUNK_ROWS)
         r = Readings(layout, voltage[rows], current[rows], np.asarray(clamped[rows], bool))
         f = compute(r, settings)
         d = decide(f, settings)
-        b = assign(settings.bins, d.verdict, d.classification, f.value, f.at_least)
-        parts.append((f, d, b))
-    if len(parts) == 1:
-        return LotResult(*parts[0], settings)
+        return f, d, assign(settings.bins, d.verdict, d.classification, f.value, f.at_least)
+
+    starts = range(0, max(voltage.shape[0], 1), CHUNK_ROWS)
+    if len(starts) == 1:
+        return LotResult(*chunk(0), settings)
+    with ThreadPoolExecutor(max_workers=min(len(starts), os.cpu_count() or 1)) as pool:
+        parts = list(pool.map(chunk, starts))
     return LotResult(
         _concat([p[0] for p in parts]),
         _concat([p[1] for p in parts]),

@@ -25,23 +25,33 @@ def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     n = r.voltage.shape[0]
     shape = np.zeros(n, np.int8)
     quoted = np.full(n, np.nan)
-    v, i, good, clamped = r.take(r.layout.forward)
     sigma, level = plateau_noise(r, s.knee_voltage_v)
-    spot_scatter = _spot_scatter(r, s.test_voltage_v)
-    # Later assignments must not overwrite earlier ones: go from the last test to the first.
+    # Later assignments overwrite earlier ones: go from the last test to the first.
     drop, peak = _drawdown(r)
     _mark(shape, quoted, drop > s.shape.drop_limit * peak, NON_MONOTONIC, drop)
-    scatter = np.fmax(sigma / level, spot_scatter)
+    scatter = np.fmax(sigma / level, _spot_scatter(r, s.test_voltage_v))
     _mark(shape, quoted, scatter > s.shape.scatter_limit, OSCILLATING, scatter)
-    levels = np.broadcast_to(r.layout.level_v[r.layout.forward], v.shape)
-    first_clamp = np.where(clamped, levels, np.inf).min(axis=1, initial=np.inf)
-    _mark(shape, quoted, clamped.any(axis=1), CLAMPED, first_clamp)
+    v, i, good, clamped = r.take(r.layout.forward)
     top = np.where(good, np.abs(i), 0.0).max(axis=1, initial=0.0)
-    _mark(shape, quoted, (top < s.shape.open_below_a) & ~clamped.any(axis=1), OPEN, top)
-    low_clamp = clamped & (np.abs(v) < s.shape.short_below_v)
-    at = np.where(low_clamp, np.abs(v), np.inf).min(axis=1, initial=np.inf)
-    _mark(shape, quoted, low_clamp.any(axis=1), SHORT, at)
+    any_clamped = clamped.any(axis=1)
+    _mark(shape, quoted, (top < s.shape.open_below_a) & ~any_clamped, OPEN, top)
+    rows = np.flatnonzero(any_clamped)  # few rows clamp: look closer only at those
+    if rows.size:
+        c, volts = clamped[rows], np.abs(v[rows])
+        levels = r.layout.level_v[r.layout.forward]
+        first = np.where(c, levels, np.inf).min(axis=1)
+        _mark(shape, quoted, rows, CLAMPED, _spread(n, rows, first))
+        low = c & (volts < s.shape.short_below_v)
+        at = np.where(low, volts, np.inf).min(axis=1)
+        short_rows = rows[low.any(axis=1)]
+        _mark(shape, quoted, short_rows, SHORT, _spread(n, rows, at))
     return shape, quoted, sigma
+
+
+def _spread(n: int, rows: np.ndarray, values: np.ndarray) -> np.ndarray:
+    out = np.full(n, np.nan)
+    out[rows] = values
+    return out
 
 
 def _mark(shape, quoted, where: np.ndarray, code: int, number: np.ndarray) -> None:
@@ -50,21 +60,28 @@ def _mark(shape, quoted, where: np.ndarray, code: int, number: np.ndarray) -> No
 
 
 def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
-    """(sigma of one reading, mean |current|) on the forward sweep from `from_v` up."""
+    """(sigma of one reading, mean |current|) on the forward sweep from `from_v` up.
+
+    Each point's place between its neighbours comes from the programmed levels: the measured
+    voltages differ from them by far less than would matter here, and one vector for the lot
+    saves most of the work."""
     cols = r.layout.sweep[r.layout.sweep_levels() >= from_v - 1e-9]
     n = r.voltage.shape[0]
     if cols.size < 3:
         return np.full(n, np.nan), np.full(n, np.nan)
-    v, i, good, _ = r.take(cols)
-    span = v[:, 2:] - v[:, :-2]
-    t = (v[:, 1:-1] - v[:, :-2]) / span
-    chord = i[:, :-2] + (i[:, 2:] - i[:, :-2]) * t
-    ok = good[:, :-2] & good[:, 1:-1] & good[:, 2:] & (span != 0)
-    weight = 1.0 + t * t + (1.0 - t) ** 2
-    dist = i[:, 1:-1] - chord
-    var = np.where(ok, dist * dist / weight, 0.0).sum(axis=1) / ok.sum(axis=1)
-    level = np.where(good, np.abs(i), 0.0).sum(axis=1) / good.sum(axis=1)
-    return np.sqrt(var), level
+    _, i, good, _ = r.take(cols)
+    x = r.layout.level_v[cols]
+    span = x[2:] - x[:-2]
+    usable = span != 0
+    t = np.where(usable, (x[1:-1] - x[:-2]) / np.where(usable, span, 1.0), 0.0)
+    dist = i[:, 1:-1] - (1.0 - t) * i[:, :-2] - t * i[:, 2:]
+    ok = good[:, :-2] & good[:, 1:-1] & good[:, 2:] & usable
+    dist *= dist
+    dist[~ok] = 0.0
+    weight = np.where(usable, 1.0 / (1.0 + t * t + (1.0 - t) ** 2), 0.0)
+    var = (dist @ weight) / np.count_nonzero(ok, axis=1)
+    level = np.where(good, i, 0.0).sum(axis=1) / np.count_nonzero(good, axis=1)
+    return np.sqrt(var), np.abs(level)
 
 
 def _spot_scatter(r, volts: float) -> np.ndarray:
@@ -87,7 +104,10 @@ def _drawdown(r) -> tuple[np.ndarray, np.ndarray]:
     if r.layout.sweep.size == 0:
         return np.zeros(n), np.zeros(n)
     _, i, good, _ = r.take(r.layout.sweep)
-    rising = np.maximum.accumulate(np.where(good, i, -np.inf), axis=1)
-    drop = np.where(good, rising - i, 0.0).max(axis=1, initial=0.0)
-    peak = rising[:, -1]
+    masked = np.where(good, i, -np.inf)
+    rising = np.maximum.accumulate(masked, axis=1)
+    rising -= masked  # bad points: +inf, hidden below
+    rising[~good] = 0.0
+    drop = rising.max(axis=1, initial=0.0)
+    peak = masked.max(axis=1, initial=-np.inf)
     return drop, np.where(np.isfinite(peak), peak, 0.0)
