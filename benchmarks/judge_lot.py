@@ -18,10 +18,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from sequencer.curve import Curve  # noqa: E402
-from sequencer.figures import Layout  # noqa: E402
-from sequencer.judge import judge_arrays, judge_curve  # noqa: E402
-from sequencer.judgesettings import BinRule, FigureLimit, FigureRange, JudgeSettings  # noqa: E402
+from sequencer.curve import Curve
+from sequencer.figures import Layout
+from sequencer.judge import judge_arrays, judge_curve
+from sequencer.judgesettings import BinRule, FigureLimit, FigureRange, JudgeSettings
 
 POINTS = 200
 COMPLIANCE_A = 5e-3
@@ -49,10 +49,12 @@ def lot(devices: int, seed: int = 2611) -> tuple[np.ndarray, np.ndarray, np.ndar
 
 
 def settings() -> JudgeSettings:
-    bins = tuple(
+    grades = [
         BinRule(1, "pass", f"IP-{grade}", ranges=(FigureRange("regulated_current", low, high),))
         for grade, low, high in (("A", 1.62e-3, 1.74e-3), ("B", 1.74e-3, 1.86e-3))
-    ) + (
+    ]
+    bins = (
+        *grades,
         BinRule(1, "pass", "IP-C"),
         BinRule(2, "fail", "guard band", ("guard-band",)),
         BinRule(3, "fail", "", (), ("open", "short")),
@@ -84,24 +86,34 @@ def main() -> None:
 
     subset = min(args.loop, args.devices)
     curves = [
-        Curve("d", 0, ("sweep",), ("sweep",), layout.segment, levels, voltage[k], current[k],
-              np.zeros(POINTS), clamped[k])
+        Curve(
+            "d",
+            0,
+            ("sweep",),
+            ("sweep",),
+            layout.segment,
+            levels,
+            voltage[k],
+            current[k],
+            np.zeros(POINTS),
+            clamped[k],
+        )
         for k in range(subset)
     ]
     t0 = time.perf_counter()
     looped = [judge_curve(c, s) for c in curves]
     t_loop = (time.perf_counter() - t0) * args.devices / subset
 
-    same = all(
-        looped[k].verdict == v and looped[k].hard_bin == b
-        for k, (v, b) in enumerate(zip(result.verdicts()[:subset], result.hard_bins()[:subset]))
-    )
-    verdicts = result.verdicts()
+    verdicts, hard_bins = result.verdicts(), result.hard_bins()
+    same = all((j.verdict, j.hard_bin) == (verdicts[k], hard_bins[k]) for k, j in enumerate(looped))
     counts = {v: verdicts.count(v) for v in ("pass", "fail", "guard-band")}
-    print(f"lot: {args.devices} curves x {POINTS} points judged as arrays in {t_lot:.2f} s "
-          f"({1e6 * t_lot / args.devices:.1f} µs a curve); verdicts {counts}")
-    print(f"loop: judge_curve on the first {subset} curves, scaled to {args.devices}: "
-          f"{t_loop:.1f} s")
+    print(
+        f"lot: {args.devices} curves x {POINTS} points judged as arrays in {t_lot:.2f} s "
+        f"({1e6 * t_lot / args.devices:.1f} µs a curve); verdicts {counts}"
+    )
+    print(
+        f"loop: judge_curve on the first {subset} curves, scaled to {args.devices}: {t_loop:.1f} s"
+    )
     print(f"ratio loop / lot: {t_loop / t_lot:.0f}x; same verdicts and bins on the subset: {same}")
     print(f"target: under 2 s for the lot -> {'met' if t_lot < 2.0 else 'NOT met'}")
 

@@ -131,7 +131,10 @@ def _reasons(lot: LotResult, k: int) -> tuple[list, list]:
         if status:
             value = float(f.value[limit.figure][k])
             big_u = float(d.expanded[limit.figure][k])
-            kind, text, in_band = words.limit_reason(limit.figure, status, value, limit, big_u)
+            bound = bool(f.at_least[limit.figure][k])
+            kind, text, in_band = words.limit_reason(
+                limit.figure, status, value, limit, big_u, bound
+            )
             (guard if in_band else failing).append((kind, text))
     return failing, guard
 

@@ -70,7 +70,8 @@ def as_json(j: Judgement, file: str, points: int) -> dict:
 
 
 def figure_table(j: Judgement, title: str) -> Table:
-    table = Table(title=f"{title}: {j.verdict} ({j.classification})", title_justify="left")
+    heading = f"{title}: {j.verdict} ({j.classification}); bin {j.hard_bin} {j.soft_bin}"
+    table = Table(title=heading, title_justify="left")
     for column in ("figure", "value", "u (k=1)"):
         table.add_column(column, justify="left" if column == "figure" else "right")
     for name in FIGURES:

@@ -80,7 +80,9 @@ def missing_reason(figure: str, code: int, s: JudgeSettings, reference_a: float)
     return f"{name} missing", f"{name} missing: {texts[code]}"
 
 
-def limit_reason(figure: str, status: int, value: float, limit: FigureLimit, big_u: float):
+def limit_reason(
+    figure: str, status: int, value: float, limit: FigureLimit, big_u: float, at_least: bool
+) -> tuple[str, str, bool]:
     """(kind, text, in_guard_band) for a figure outside its acceptance zone."""
     name, shown = label(figure), show(figure, value)
     low = show(figure, limit.min) if limit.min is not None else ""
@@ -88,7 +90,8 @@ def limit_reason(figure: str, status: int, value: float, limit: FigureLimit, big
     if status == decide.BELOW:
         return f"{name} below min", f"{name} {shown} below min {low}", False
     if status == decide.ABOVE:
-        return f"{name} above max", f"{name} {shown} above max {high}", False
+        bound = "at least " if at_least else ""
+        return f"{name} above max", f"{name} {bound}{shown} above max {high}", False
     if status == decide.UNPROVEN:
         below = limit.min is not None and value < limit.min
         side = f", below min {low}" if below else f"; that cannot show it is at most {high}"

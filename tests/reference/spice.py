@@ -75,7 +75,10 @@ def dc_sweep(
     )
     if not out.exists() or "error" in done.stdout.lower():
         raise RuntimeError(f"ngspice failed on {cir}:\n{done.stdout[-2000:]}{done.stderr[-2000:]}")
-    data = np.loadtxt(out, skiprows=1)  # wr_singlescale + wr_vecnames: header, then columns
+    data = np.loadtxt(out, skiprows=1, ndmin=2)  # wr_singlescale + wr_vecnames: header, columns
+    expected = round(abs(stop_v - start_v) / step_v) + 1
+    if len(data) != expected:  # ngspice gives up part-way when a junction current explodes
+        raise RuntimeError(f"ngspice stopped after {len(data)} of {expected} points on {cir}")
     return data[:, 0], data[:, 1]
 
 
