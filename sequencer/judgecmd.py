@@ -46,9 +46,10 @@ def cmd_judge(args: argparse.Namespace, console: Console) -> int:
         text = json.dumps(as_json(judgement, str(args.curve), len(curve)), allow_nan=False)
         console.print(text, markup=False, highlight=False, soft_wrap=True)
     else:
-        console.print(figure_table(judgement, str(args.curve)))
+        console.print(heading(judgement, str(args.curve)), soft_wrap=True, markup=False)
+        console.print(figure_table(judgement))
         for note in judgement.notes:
-            console.print(f"  {note}", soft_wrap=True)
+            console.print(f"  {note}", soft_wrap=True, markup=False)
     return 0
 
 
@@ -69,9 +70,12 @@ def as_json(j: Judgement, file: str, points: int) -> dict:
     return out
 
 
-def figure_table(j: Judgement, title: str) -> Table:
-    heading = f"{title}: {j.verdict} ({j.classification}); bin {j.hard_bin} {j.soft_bin}"
-    table = Table(title=heading, title_justify="left")
+def heading(j: Judgement, title: str) -> str:
+    return f"{title}: {j.verdict} ({j.classification}); bin {j.hard_bin} {j.soft_bin}"
+
+
+def figure_table(j: Judgement) -> Table:
+    table = Table()
     for column in ("figure", "value", "u (k=1)"):
         table.add_column(column, justify="left" if column == "figure" else "right")
     for name in FIGURES:
