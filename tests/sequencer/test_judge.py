@@ -94,10 +94,11 @@ def test_flat_slope_gives_a_lower_bound_not_a_number():
     rng = np.random.default_rng(3)
     v = np.linspace(23, 27, 9)
     i = 1.8e-3 + rng.normal(0, 30e-9, v.size)
-    z = impedance_from_slope(fit_slope(v, i))
-    assert z.at_least or z.value > 0
-    if z.at_least:
-        assert np.isnan(z.uncertainty)
+    fit = fit_slope(v, i)
+    assert abs(fit.slope) < 2 * fit.stderr  # within noise: no impedance can be claimed
+    z = impedance_from_slope(fit)
+    assert z.at_least and np.isnan(z.uncertainty)
+    assert z.value == pytest.approx(1 / (fit.slope + 2 * fit.stderr))
 
 
 def test_limits_name_every_failing_figure():
