@@ -23,7 +23,7 @@ from .bins import assign, soft_bin
 from .curve import Curve
 from .decide import Decisions, decide
 from .figures import FigureArrays, Layout, Readings, compute
-from .judgesettings import CLASSIFICATIONS, FIGURES, SHAPES, VERDICTS, JudgeSettings
+from .judgesettings import CLASSIFICATIONS, FIGURES, VERDICTS, JudgeSettings
 from .slopes import Fit, impedance, window_fit
 
 CHUNK_ROWS = 2048  # rows judged together: big enough for numpy, small enough for the cache
@@ -247,7 +247,6 @@ def impedance_from_slope(fit: Slope, k: float = 2.0) -> Figure:
 
 __all__ = [
     "MISSING",
-    "SHAPES",
     "Figure",
     "Judgement",
     "LotResult",

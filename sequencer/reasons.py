@@ -61,16 +61,19 @@ def missing_reason(figure: str, code: int, s: JudgeSettings, reference_a: float)
     ref = format_si(reference_a, "A")
     texts = {
         fig.MISS_UNCOVERED: (
-            f"nothing was programmed at {volts:g} V"
+            "there is no forward sweep"
+            if figure == "limiting_voltage"
+            else f"nothing was programmed at {volts:g} V"
             if not window
-            else f"the sweep does not cover {volts:g} V and no spot is programmed there"
+            else f"the sweep does not cover {volts:g} V"
+            + (" and no spot is programmed there" if figure == "regulated_current" else "")
         ),
         fig.MISS_COMPLIANCE: (
             "a reading next to the knee was clamped at compliance"
             if figure == "limiting_voltage"
             else f"clamped at compliance within {window:g} V around {volts:g} V"
         ),
-        fig.MISS_FEW: f"fewer than 3 sweep points within {window:g} V around {volts:g} V",
+        fig.MISS_FEW: f"fewer than 3 usable sweep points within {window:g} V around {volts:g} V",
         fig.MISS_NO_IP: "no regulated current to take the knee reference from",
         fig.MISS_NEVER: f"the current never reaches the knee reference {ref}",
         fig.MISS_FIRST: f"the current exceeds the knee reference {ref} at the first point",

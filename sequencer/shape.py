@@ -34,7 +34,8 @@ def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     v, i, good, clamped = r.take(r.layout.forward)
     top = np.where(good, np.abs(i), 0.0).max(axis=1, initial=0.0)
     any_clamped = clamped.any(axis=1)
-    _mark(shape, quoted, (top < s.shape.open_below_a) & ~any_clamped, OPEN, top)
+    readable = good.any(axis=1)  # no usable reading at all is no evidence of an open
+    _mark(shape, quoted, readable & (top < s.shape.open_below_a) & ~any_clamped, OPEN, top)
     rows = np.flatnonzero(any_clamped)  # few rows clamp: look closer only at those
     if rows.size:
         c, volts = clamped[rows], np.abs(v[rows])

@@ -120,3 +120,18 @@ def test_peak_voltage_not_measured_is_named():
     j = _judge(GOOD, JudgeSettings(peak_voltage_v=60.0))
     assert j.classification == "incomplete"
     assert "peak current missing: nothing was programmed at 60 V" in j.reasons
+
+
+@pytest.mark.robustness
+def test_unreadable_curve_is_incomplete_not_open():
+    # Over-range readings everywhere say nothing about the part: not "open", just no figures.
+    j = _judge(np.full(GRID.size, np.nan))
+    assert j.classification == "incomplete" and j.verdict == "fail"
+    at_vt = np.full(3, 25.0)
+    spots_only = Curve(
+        "s", 0, ("at-vt",), ("spot",), np.zeros(3, int), at_vt, at_vt,
+        np.full(3, 1.8e-3), np.zeros(3), np.zeros(3, bool),
+    )  # fmt: skip
+    j = judge_curve(spots_only, JudgeSettings())
+    assert j.figures["regulated_current"].value == pytest.approx(1.8e-3)
+    assert "limiting voltage missing: there is no forward sweep" in j.reasons
