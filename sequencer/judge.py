@@ -22,11 +22,15 @@ from . import reasons as words
 from .bins import assign, soft_bin
 from .curve import Curve
 from .decide import Decisions, decide
-from .figures import FigureArrays, Layout, Readings, compute
-from .judgesettings import CLASSIFICATIONS, FIGURES, VERDICTS, JudgeSettings
+from .figures import SPOT_MATCH_V, FigureArrays, Layout, Readings, compute
+from .judgesettings import CLASSIFICATIONS, FIGURE_INFO, FIGURES, VERDICTS, JudgeSettings
 from .slopes import Fit, impedance, window_fit
 
 CHUNK_ROWS = 2048  # rows judged together: big enough for numpy, small enough for the cache
+# Figure -> (label, unit symbol) for people; kept for callers of the first judge.
+LABELS = {
+    name: (label, {"ohm": "Ω"}.get(unit, unit)) for name, (_, unit, label) in FIGURE_INFO.items()
+}
 
 
 @dataclass(frozen=True)
@@ -246,7 +250,9 @@ def impedance_from_slope(fit: Slope, k: float = 2.0) -> Figure:
 
 
 __all__ = [
+    "LABELS",
     "MISSING",
+    "SPOT_MATCH_V",
     "Figure",
     "Judgement",
     "LotResult",

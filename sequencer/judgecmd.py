@@ -15,7 +15,7 @@ from .curvefile import read_curve_csv
 from .judge import Judgement, judge_curve
 from .judgesettings import FIGURE_INFO, FIGURES, JudgeSettings
 from .reasons import show
-from .recipe import load_recipe
+from .recipe import load_recipe, load_station
 from .rejudge import changes, load_run, rejudge, save, settings_for
 
 
@@ -25,7 +25,7 @@ def add_parsers(sub) -> None:
     )
     judge.add_argument("curve", type=Path)
     judge.add_argument("--recipe", type=Path, help="judge with this recipe's settings and limits")
-    judge.add_argument("--station", type=Path, help="station file instead of the recipe's")
+    judge.add_argument("--station", type=Path, help="station whose accuracy to use")
     judge.add_argument("--json", action="store_true", help="print one JSON object")
 
     again = sub.add_parser("rejudge", help="re-decide a stored run under a new recipe")
@@ -41,6 +41,8 @@ def cmd_judge(args: argparse.Namespace, console: Console) -> int:
     settings = JudgeSettings()
     if args.recipe:
         settings = load_recipe(args.recipe, station_path=args.station).judge
+    elif args.station:  # the usual conditions, measured to that station's accuracy
+        settings = JudgeSettings(accuracy=load_station(args.station).accuracy)
     judgement = judge_curve(curve, settings)
     if args.json:
         text = json.dumps(as_json(judgement, str(args.curve), len(curve)), allow_nan=False)

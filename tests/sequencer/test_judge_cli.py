@@ -163,3 +163,20 @@ def test_rejudge_decides_again_without_touching_the_original(stored_run, tmp_pat
 def test_rejudge_refuses_a_folder_without_a_run(tmp_path):
     code, out = run("rejudge", str(tmp_path), "--recipe", str(RECIPES / "demo.yaml"))
     assert code == 5 and "not a run folder" in out
+
+
+def test_judge_takes_the_accuracy_of_a_named_station(tmp_path):
+    path = write_csv(tmp_path / "c.csv", GRID, curve(GRID, lam=0.01, rs=1000.0))
+    station = (RECIPES / "demo-station.yaml").read_text()
+    coarse = station.replace(
+        "{range: 10 mA, gain: 0.05 %, offset: 2.5 uA}", "{range: 10 mA, gain: 1 %, offset: 0 uA}"
+    )
+    assert coarse != station
+    (tmp_path / "coarse.yaml").write_text(coarse)
+    _, plain = run("judge", str(path), "--json")
+    _, rough = run("judge", str(path), "--json", "--station", str(tmp_path / "coarse.yaml"))
+    ip = json.loads(plain)["regulated_current_A"]
+    u_rough = json.loads(rough)["regulated_current_u_A"]
+    # 1 % of reading, rectangular, dominates: u = 0.01 IP / sqrt(3) [GUM 4.3.7, from memory]
+    assert u_rough == pytest.approx(0.01 * ip / np.sqrt(3), rel=1e-3)
+    assert json.loads(plain)["regulated_current_u_A"] < u_rough / 3
