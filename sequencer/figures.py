@@ -19,7 +19,7 @@ import numpy as np
 from .judgesettings import FIGURES, SHAPES, JudgeSettings
 from .knee import crossing
 from .shape import classify
-from .slopes import Fit, impedance, window_fit
+from .slopes import Fit, impedance, masked_mean, window_fit
 from .uncertainty import combine
 
 SPOT_MATCH_V = 1e-3  # a reading belongs to a level when programmed within this
@@ -224,10 +224,7 @@ def _regulated_current(out, r: Readings, s: JudgeSettings, fit: Fit, fit_miss: n
 def _mean_at(r: Readings, cols: np.ndarray):
     """Mean of the good readings in these columns; Type A u = s/sqrt(n) (0 for one reading)."""
     v, i, good, clamped = r.take(cols)
-    count = good.sum(axis=1)
-    mean = np.where(good, i, 0.0).sum(axis=1) / count
-    dev = np.where(good, i - mean[:, None], 0.0)
-    sd = np.sqrt((dev * dev).sum(axis=1) / (count - 1))
+    count, mean, sd = masked_mean(i, good)
     type_a = np.where(count >= 2, sd / np.sqrt(count), 0.0)
     miss = np.where(count > 0, 0, np.where(clamped.any(axis=1), MISS_COMPLIANCE, MISS_NONFINITE))
     power = np.where(good, v * i, 0.0).sum(axis=1) / count

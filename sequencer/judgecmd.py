@@ -17,6 +17,7 @@ from .judgesettings import FIGURE_INFO, FIGURES, JudgeSettings
 from .reasons import show
 from .recipe import load_recipe, load_station
 from .rejudge import changes, load_run, rejudge, save, settings_for
+from .store import device_row, figure_columns
 
 
 def add_parsers(sub) -> None:
@@ -55,20 +56,15 @@ def cmd_judge(args: argparse.Namespace, console: Console) -> int:
     return 0
 
 
-def _num(x: float) -> float | None:
-    return None if math.isnan(x) else x
-
-
 def as_json(j: Judgement, file: str, points: int) -> dict:
-    """One object: verdict, bins, reasons, and each figure with its standard uncertainty."""
+    """One object: verdict, bins, reasons, and each figure (the devices.csv columns) with its
+    standard uncertainty."""
+    row = device_row(j, channel=0)
     out: dict = {"file": file, "points": points, "verdict": j.verdict}
     out.update(classification=j.classification, reasons=list(j.reasons))
     out.update(guard_band=list(j.guard_band), hard_bin=j.hard_bin, soft_bin=j.soft_bin)
-    for name in FIGURES:
-        unit, fig = FIGURE_INFO[name][1], j.figures[name]
-        out[f"{name}_{unit}"] = _num(fig.value)
-        out[f"{name}_u_{unit}"] = _num(fig.uncertainty)
-        out[f"{name}_at_least"] = fig.at_least
+    for column in figure_columns():
+        out[column] = bool(row[column]) if column.endswith("_at_least") else row[column]
     return out
 
 

@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from .judgesettings import SHAPES, JudgeSettings
+from .slopes import masked_mean
 
 OK, OPEN, SHORT, CLAMPED, OSCILLATING, NON_MONOTONIC = range(len(SHAPES))
 
@@ -92,10 +93,7 @@ def _spot_scatter(r, volts: float) -> np.ndarray:
     if cols.size < 2:
         return np.full(n, np.nan)
     _, i, good, _ = r.take(cols)
-    count = good.sum(axis=1)
-    mean = np.where(good, i, 0.0).sum(axis=1) / count
-    dev = np.where(good, i - mean[:, None], 0.0)
-    sd = np.sqrt((dev * dev).sum(axis=1) / (count - 1))
+    count, mean, sd = masked_mean(i, good)
     return np.where(count >= 2, sd / np.abs(mean), np.nan)
 
 

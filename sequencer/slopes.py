@@ -1,4 +1,4 @@
-"""Least-squares lines through masked rows, and impedances from their slopes. Pure numpy.
+"""Row statistics over masked points: means, least-squares lines, impedances. Pure numpy.
 
 Ordinary least squares I = a + b V per row over the points where the mask holds; the slope's
 standard error is the textbook one, sqrt(s^2 / Sxx) with s^2 = SSE / (n - 2) (the same as
@@ -10,6 +10,16 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+
+def masked_mean(x: np.ndarray, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(count, mean, sample standard deviation) of each row over its masked points; NaN where
+    there are too few points."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        count = mask.sum(axis=1)
+        mean = np.where(mask, x, 0.0).sum(axis=1) / count
+        dev = np.where(mask, x - mean[:, None], 0.0)
+        return count, mean, np.sqrt((dev * dev).sum(axis=1) / (count - 1))
 
 
 @dataclass(frozen=True, eq=False)
