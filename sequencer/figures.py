@@ -163,9 +163,9 @@ def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
         _regulated_current(out, r, s, zt_fit, zt_miss)
         _limiting_voltage(out, r, s, noise)
         if s.reverse_voltage_v is not None:
-            _reverse_current(out, r, s)
+            _at_level(out, r, s, "reverse_current", s.reverse_voltage_v)
         if s.peak_voltage_v is not None:
-            _peak(out, r, s)
+            _at_level(out, r, s, "peak_current", s.peak_voltage_v)
     _blank_dead(out)
     return out
 
@@ -262,14 +262,6 @@ def _clamped_bound(r: Readings, cols: np.ndarray, power: bool = False):
     v, i, _, clamped = r.take(cols)
     magnitude = np.abs(v * i) if power else np.abs(i)
     return clamped.any(axis=1), np.where(clamped, magnitude, -np.inf).max(axis=1, initial=-np.inf)
-
-
-def _reverse_current(out: FigureArrays, r: Readings, s: JudgeSettings) -> None:
-    _at_level(out, r, s, "reverse_current", s.reverse_voltage_v)
-
-
-def _peak(out: FigureArrays, r: Readings, s: JudgeSettings) -> None:
-    _at_level(out, r, s, "peak_current", s.peak_voltage_v)
 
 
 def _at_level(out: FigureArrays, r: Readings, s: JudgeSettings, name: str, volts: float) -> None:
