@@ -16,7 +16,7 @@ from pathlib import Path
 
 from rich.console import Console
 
-from . import __version__
+from . import __version__, judgecmd
 from .errors import CcbenchError, RunError, SafetyError
 from .lotrun import run_lot
 from .plan import make_plan
@@ -54,6 +54,8 @@ def build_parser() -> argparse.ArgumentParser:
     check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
     check.add_argument("recipe", type=Path)
     check.add_argument("--station", type=Path, help="station file instead of the recipe's")
+
+    judgecmd.add_parsers(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -196,7 +198,7 @@ def cmd_sim(args: argparse.Namespace, console: Console) -> int:
         return 0
 
 
-COMMANDS = {"run": cmd_run, "check": cmd_check, "sim": cmd_sim}
+COMMANDS = {"run": cmd_run, "check": cmd_check, "sim": cmd_sim, **judgecmd.COMMANDS}
 
 
 if __name__ == "__main__":

@@ -57,3 +57,14 @@ class StoreError(CcbenchError, OSError):
     """Results could not be written or read; what was written before is kept."""
 
     exit_code = 5
+
+
+class CurveFileError(CcbenchError, ValueError):
+    """A curve file (CSV) is unreadable or malformed: names the file and line."""
+
+    exit_code = 2
+
+    def __init__(self, file: str, line: int | None, problem: str) -> None:
+        where = f"{file}:{line}" if line else file
+        super().__init__(f"{where}: {problem}")
+        self.file, self.line, self.problem = file, line, problem

@@ -1,23 +1,36 @@
-"""The judge: figures of the trade from one device's curve, and a verdict. Pure numpy, no I/O.
+"""The judge: figures of the trade with their uncertainties, a verdict and a bin. Pure numpy.
 
 Sign convention (REFERENCES.md): V = V(anode) - V(cathode), I > 0 from anode to cathode.
 Points taken while the SMU was clamping at its compliance are never used for a figure; where a
 figure would need them, the figure is missing and the reason says why.
+
+One engine serves one curve and a whole lot: `judge_arrays` takes the readings of many devices
+that followed one plan as (devices x points) arrays; `judge_curve` is the same engine on one row,
+so a lot judged at once and device by device give the same figures.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+import os
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 
+from . import reasons as words
+from .bins import assign, soft_bin
 from .curve import Curve
-from .recipe import FIGURES, JudgeSettings
+from .decide import Decisions, decide
+from .figures import SPOT_MATCH_V, FigureArrays, Layout, Readings, compute
+from .judgesettings import CLASSIFICATIONS, FIGURE_INFO, FIGURES, VERDICTS, JudgeSettings
+from .slopes import Fit, impedance, window_fit
 
-OPEN_CURRENT_A = 1e-6  # below this everywhere on the sweep, the device is taken as open
-SHORT_VOLTAGE_V = 1.0  # compliance reached below this voltage means a short
-SPOT_MATCH_V = 1e-3  # a spot belongs to the test voltage when programmed within this
+CHUNK_ROWS = 2048  # rows judged together: big enough for numpy, small enough for the cache
+# Figure -> (label, unit symbol) for people; kept for callers of the first judge.
+LABELS = {
+    name: (label, {"ohm": "Ω"}.get(unit, unit)) for name, (_, unit, label) in FIGURE_INFO.items()
+}
 
 
 @dataclass(frozen=True)
@@ -39,17 +52,175 @@ MISSING = Figure(math.nan)
 
 @dataclass(frozen=True)
 class Judgement:
+    """One device: figures, classification, reasons (failing) and guard-band notes, and bins."""
+
     device: str
     figures: dict[str, Figure]
-    classification: str  # "ok", "open", "short", "compliance", "incomplete"
+    classification: str  # one of CLASSIFICATIONS
     reasons: tuple[str, ...] = field(default=())
+    guard_band: tuple[str, ...] = field(default=())
+    hard_bin: int | None = None
+    bin_class: str = ""
+    soft_bin: str = ""
 
     @property
     def verdict(self) -> str:
-        """pass, fail, or aborted (the device was not measured to the end)."""
+        """pass, fail, guard-band (within U of a limit, neither passed nor failed), or aborted
+        (the device was not measured to the end)."""
         if self.classification == "aborted":
             return "aborted"
-        return "pass" if not self.reasons else "fail"
+        if self.reasons:
+            return "fail"
+        return "guard-band" if self.guard_band else "pass"
+
+    @property
+    def notes(self) -> tuple[str, ...]:
+        return self.reasons + self.guard_band
+
+
+@dataclass(frozen=True, eq=False)
+class LotResult:
+    """Everything the judge decided about a group of devices, as arrays."""
+
+    figures: FigureArrays
+    decisions: Decisions
+    bin_rule: np.ndarray  # index into settings.bins
+    settings: JudgeSettings
+
+    def __len__(self) -> int:
+        return len(self.bin_rule)
+
+    def verdicts(self) -> list[str]:
+        return [VERDICTS[v] for v in self.decisions.verdict]
+
+    def hard_bins(self) -> np.ndarray:
+        return np.array([r.number for r in self.settings.bins])[self.bin_rule]
+
+    def judgement(self, k: int, device: str) -> Judgement:
+        """The judgement of row k, in words."""
+        f, d, s = self.figures, self.decisions, self.settings
+        figs = {
+            name: Figure(float(f.value[name][k]), float(f.u[name][k]), bool(f.at_least[name][k]))
+            for name in FIGURES
+        }
+        failing, guard = _reasons(self, k)
+        rule = s.bins[int(self.bin_rule[k])]
+        verdict = VERDICTS[d.verdict[k]]
+        first = (failing + guard)[0][0] if failing or guard else ""
+        return Judgement(
+            device,
+            figs,
+            CLASSIFICATIONS[d.classification[k]],
+            tuple(text for _, text in failing),
+            tuple(text for _, text in guard),
+            rule.number,
+            rule.klass,
+            soft_bin(rule, first, verdict),
+        )
+
+
+def _reasons(lot: LotResult, k: int) -> tuple[list, list]:
+    f, d, s = lot.figures, lot.decisions, lot.settings
+    failing: list[tuple[str, str]] = []
+    guard: list[tuple[str, str]] = []
+    if f.shape[k]:
+        failing.append(words.shape_reason(int(f.shape[k]), float(f.shape_value[k]), s))
+    for name in s.required():
+        code = int(f.missing[name][k])
+        if code:
+            ref = float(f.knee_reference_a[k])
+            failing.append(words.missing_reason(name, code, s, ref))
+    for limit in s.limits:
+        status = int(d.status[limit.figure][k])
+        if status:
+            value = float(f.value[limit.figure][k])
+            big_u = float(d.expanded[limit.figure][k])
+            bound = bool(f.at_least[limit.figure][k])
+            kind, text, in_band = words.limit_reason(
+                limit.figure, status, value, limit, big_u, bound
+            )
+            (guard if in_band else failing).append((kind, text))
+    return failing, guard
+
+
+def judge_arrays(
+    layout: Layout,
+    voltage: np.ndarray,
+    current: np.ndarray,
+    clamped: np.ndarray,
+    settings: JudgeSettings,
+) -> LotResult:
+    """Judge every row of (devices x points) readings that followed one plan (`layout`).
+
+    Rows go in chunks; with more than one chunk they are spread over the machine's cores
+    (numpy releases the interpreter lock inside its loops)."""
+
+    def chunk(start: int):
+        rows = slice(start, start + CHUNK_ROWS)
+        r = Readings(layout, voltage[rows], current[rows], np.asarray(clamped[rows], bool))
+        f = compute(r, settings)
+        d = decide(f, settings)
+        return f, d, assign(settings.bins, d.verdict, d.classification, f.value, f.at_least)
+
+    starts = range(0, max(voltage.shape[0], 1), CHUNK_ROWS)
+    if len(starts) == 1:
+        return LotResult(*chunk(0), settings)
+    with ThreadPoolExecutor(max_workers=min(len(starts), os.cpu_count() or 1)) as pool:
+        parts = list(pool.map(chunk, starts))
+    return LotResult(
+        _concat([p[0] for p in parts]),
+        _concat([p[1] for p in parts]),
+        np.concatenate([p[2] for p in parts]),
+        settings,
+    )
+
+
+def _concat(items: list):
+    """Join chunk results field by field (arrays, or dicts of arrays)."""
+    first = items[0]
+    joined = {}
+    for item in fields(first):
+        values = [getattr(x, item.name) for x in items]
+        if isinstance(values[0], dict):
+            joined[item.name] = {k: np.concatenate([v[k] for v in values]) for k in values[0]}
+        else:
+            joined[item.name] = np.concatenate(values)
+    return type(first)(**joined)
+
+
+def judge_curve(curve: Curve, settings: JudgeSettings) -> Judgement:
+    """All figures of one device, the verdict against the settings' limits, and its bin."""
+    lot = judge_arrays(
+        Layout.of(curve),
+        curve.voltage_v[None, :],
+        curve.current_a[None, :],
+        curve.in_compliance[None, :],
+        settings,
+    )
+    return lot.judgement(0, curve.device)
+
+
+def with_bin(judgement: Judgement, settings: JudgeSettings) -> Judgement:
+    """Bin a judgement made elsewhere (an aborted device, a stored one)."""
+    values = {n: np.array([judgement.figures[n].value]) for n in FIGURES}
+    at_least = {n: np.array([judgement.figures[n].at_least]) for n in FIGURES}
+    verdict = np.array([VERDICTS.index(judgement.verdict)])
+    kind = np.array([CLASSIFICATIONS.index(judgement.classification)])
+    rule = settings.bins[int(assign(settings.bins, verdict, kind, values, at_least)[0])]
+    first = judgement.notes[0].split(":")[0] if judgement.notes else ""
+    return Judgement(
+        judgement.device,
+        judgement.figures,
+        judgement.classification,
+        judgement.reasons,
+        judgement.guard_band,
+        rule.number,
+        rule.klass,
+        soft_bin(rule, first, judgement.verdict),
+    )
+
+
+# --- one line through points: kept for callers that fit a single set of points -------------
 
 
 @dataclass(frozen=True)
@@ -61,143 +232,34 @@ class Slope:
 
 def fit_slope(voltage_v: np.ndarray, current_a: np.ndarray) -> Slope:
     """Least-squares line I = a + b V; b and its standard error (ordinary least squares)."""
-    n = len(voltage_v)
-    if n < 3:
-        return Slope(math.nan, math.nan, n)
-    v = voltage_v - voltage_v.mean()
-    sxx = float(v @ v)
-    if sxx == 0:
-        return Slope(math.nan, math.nan, n)
-    b = float(v @ (current_a - current_a.mean())) / sxx
-    resid = current_a - current_a.mean() - b * v
-    stderr = math.sqrt(float(resid @ resid) / (n - 2) / sxx)
-    return Slope(b, stderr, n)
+    v = np.asarray(voltage_v, float)[None, :]
+    fit = window_fit(v, np.asarray(current_a, float)[None, :], np.ones(v.shape, bool))
+    return Slope(float(fit.slope[0]), float(fit.stderr[0]), int(fit.points[0]))
 
 
-def impedance_from_slope(fit: Slope) -> Figure:
-    """Z = dV/dI. A slope within two standard errors of zero gives only a lower bound."""
-    if math.isnan(fit.slope):
-        return MISSING
-    if fit.slope > 2 * fit.stderr:
-        return Figure(1.0 / fit.slope, fit.stderr / fit.slope**2)
-    ceiling = fit.slope + 2 * fit.stderr
-    if ceiling <= 0:
-        return MISSING
-    return Figure(1.0 / ceiling, math.nan, at_least=True)
+def impedance_from_slope(fit: Slope, k: float = 2.0) -> Figure:
+    """Z = dV/dI with its Type A uncertainty; a slope within k standard errors of zero gives
+    only a lower bound."""
+    one = np.array([fit.slope]), np.array([fit.stderr])
+    nan = np.array([math.nan])
+    z = impedance(Fit(*one, np.array([fit.points]), nan, nan, nan, nan, nan, nan), k)
+    if z.at_least[0]:
+        return Figure(float(z.value[0]), math.nan, at_least=True)
+    value = float(z.value[0])
+    return Figure(value, value * abs(float(z.rel_type_a[0])))
 
 
-def _sweep_points(curve: Curve) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    mask = curve.of_kind("sweep")
-    v, i, c = curve.voltage_v[mask], curve.current_a[mask], curve.in_compliance[mask]
-    order = np.argsort(v, kind="stable")
-    return v[order], i[order], c[order]
-
-
-def regulated_current(curve: Curve, settings: JudgeSettings) -> tuple[Figure, str]:
-    vt = settings.test_voltage_v
-    spot = curve.of_kind("spot") & (np.abs(curve.level_v - vt) <= SPOT_MATCH_V)
-    if spot.any():
-        good = spot & ~curve.in_compliance
-        if not good.any():
-            return MISSING, f"every reading at the test voltage {vt:g} V was in compliance"
-        values = curve.current_a[good]
-        spread = values.std(ddof=1) / math.sqrt(len(values)) if len(values) > 1 else math.nan
-        return Figure(float(values.mean()), float(spread)), ""
-    v, i, c = _sweep_points(curve)
-    if len(v) < 2 or not (v[0] <= vt <= v[-1]):
-        return MISSING, f"the sweep does not cover the test voltage {vt:g} V"
-    near = np.argsort(np.abs(v - vt))[:2]
-    if c[near].any():
-        return MISSING, f"the sweep was in compliance at the test voltage {vt:g} V"
-    return Figure(float(np.interp(vt, v[~c], i[~c]))), ""
-
-
-def limiting_voltage(curve: Curve, reference_a: float) -> tuple[Figure, str]:
-    """The lowest voltage at which the rising sweep current reaches the reference current."""
-    v, i, c = _sweep_points(curve)
-    v, i = v[~c], i[~c]
-    above = np.nonzero(i >= reference_a)[0]
-    if len(above) == 0:
-        return MISSING, f"the current never reaches the knee reference {reference_a * 1e3:.4g} mA"
-    k = int(above[0])
-    if k == 0:
-        return Figure(float(v[0])), ""
-    frac = (reference_a - i[k - 1]) / (i[k] - i[k - 1])
-    return Figure(float(v[k - 1] + frac * (v[k] - v[k - 1]))), ""
-
-
-def impedance_at(curve: Curve, centre_v: float, window_v: float) -> tuple[Figure, str]:
-    v, i, c = _sweep_points(curve)
-    inside = np.abs(v - centre_v) <= window_v / 2 + 1e-12
-    if (inside & c).any():
-        return MISSING, f"the sweep was in compliance within the window around {centre_v:g} V"
-    fit = fit_slope(v[inside], i[inside])
-    if fit.points < 3:
-        return MISSING, f"fewer than 3 sweep points within {window_v:g} V around {centre_v:g} V"
-    return impedance_from_slope(fit), ""
-
-
-def classify(curve: Curve) -> tuple[str, str]:
-    v, i, c = _sweep_points(curve)
-    if len(v) == 0:
-        v, i, c = curve.voltage_v, curve.current_a, curve.in_compliance
-    if c.any() and float(np.min(np.abs(v[c]))) < SHORT_VOLTAGE_V:
-        at = float(np.min(np.abs(v[c])))
-        return "short", f"short: compliance reached at {at:.3g} V"
-    if len(i) and float(np.max(np.abs(i))) < OPEN_CURRENT_A:
-        return "open", f"open: no current above {OPEN_CURRENT_A * 1e6:g} µA anywhere"
-    return "ok", ""
-
-
-def judge_curve(curve: Curve, settings: JudgeSettings) -> Judgement:
-    """All figures of one device and the verdict against the settings' limits."""
-    kind, why = classify(curve)
-    if kind != "ok":
-        return Judgement(curve.device, dict.fromkeys(FIGURES, MISSING), kind, (why,))
-    reasons: list[str] = []
-    ip, why_ip = regulated_current(curve, settings)
-    reference = settings.knee_current_a or settings.knee_fraction * ip.value
-    vl, why_vl = limiting_voltage(curve, reference) if not math.isnan(reference) else (MISSING, "")
-    zt, why_zt = impedance_at(curve, settings.test_voltage_v, settings.slope_window_v)
-    zk, why_zk = impedance_at(curve, settings.knee_voltage_v, settings.slope_window_v)
-    figures = {
-        "regulated_current": ip,
-        "limiting_voltage": vl,
-        "dynamic_impedance": zt,
-        "knee_impedance": zk,
-    }
-    reasons.extend(w for w in (why_ip, why_vl, why_zt, why_zk) if w)
-    reasons.extend(limit_reasons(figures, settings))
-    incomplete = any(w for w in (why_ip, why_vl, why_zt, why_zk))
-    return Judgement(curve.device, figures, "incomplete" if incomplete else "ok", tuple(reasons))
-
-
-LABELS = {
-    "regulated_current": ("regulated current", "A"),
-    "limiting_voltage": ("limiting voltage", "V"),
-    "dynamic_impedance": ("dynamic impedance", "Ω"),
-    "knee_impedance": ("knee impedance", "Ω"),
-}
-
-
-def limit_reasons(figures: dict[str, Figure], settings: JudgeSettings) -> list[str]:
-    from .units import format_si  # keeps this module's import list to what the math needs
-
-    out = []
-    for name, fig in figures.items():
-        limit = settings.limit(name)
-        label, unit = LABELS[name]
-        if not fig.known:
-            continue
-        # A lower bound passes a minimum it already exceeds; below a minimum, or against a
-        # maximum, it proves nothing, and an unproven figure does not pass.
-        shown = format_si(fig.value, unit)
-        if fig.at_least and (
-            limit.max is not None or (limit.min is not None and fig.value < limit.min)
-        ):
-            out.append(f"{label} only known as at least {shown}, within the noise")
-        elif limit.min is not None and fig.value < limit.min:
-            out.append(f"{label} {shown} below min {format_si(limit.min, unit)}")
-        elif limit.max is not None and fig.value > limit.max:
-            out.append(f"{label} {shown} above max {format_si(limit.max, unit)}")
-    return out
+__all__ = [
+    "LABELS",
+    "MISSING",
+    "SPOT_MATCH_V",
+    "Figure",
+    "Judgement",
+    "LotResult",
+    "Slope",
+    "fit_slope",
+    "impedance_from_slope",
+    "judge_arrays",
+    "judge_curve",
+    "with_bin",
+]

@@ -10,7 +10,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 
 from .curve import Curve
-from .judge import Judgement, judge_curve
+from .judge import Judgement, judge_curve, with_bin
 from .plan import Plan
 from .recipe import FIGURES, Recipe
 from .runner import Recorder, Smu, measure_device
@@ -33,6 +33,7 @@ class RunSummary:
     done: int = 0
     passed: int = 0
     failed: int = 0
+    guarded: int = 0  # within the guard band of a limit: neither passed nor failed
     aborted: int = 0
     seconds: float = 0.0
     status: str = "running"
@@ -48,6 +49,8 @@ class RunSummary:
             self.passed += 1
         elif judgement.verdict == "aborted":
             self.aborted += 1
+        elif judgement.verdict == "guard-band":
+            self.guarded += 1
         else:
             self.failed += 1
         for reason in judgement.reasons:
@@ -88,7 +91,7 @@ def run_lot(
             measure_device(smu, plan, channel, guard, recorder, clock)
         except BaseException as exc:
             curve = recorder.curve(device, channel, plan)
-            judgement = aborted(device, exc)
+            judgement = with_bin(aborted(device, exc), recipe.judge)
             store.add_device(curve, judgement)
             summary.count(judgement)
             on_device(DeviceDone(index, len(plan.channels), curve, judgement, clock() - t0))

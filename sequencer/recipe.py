@@ -8,20 +8,18 @@ from __future__ import annotations
 
 import hashlib
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from .units import UnitProblem, parse_quantity
+from .fields import Fields as _Fields
+from .fields import positive as _positive
+from .judgeconfig import parse_accuracy, parse_judge
+from .judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
+from .uncertainty import DEFAULT_ACCURACY, Accuracy
 from .yamlsource import Source, load_yaml
 
-FIGURES = ("regulated_current", "limiting_voltage", "dynamic_impedance", "knee_impedance")
-FIGURE_KIND = {
-    "regulated_current": "current",
-    "limiting_voltage": "voltage",
-    "dynamic_impedance": "resistance",
-    "knee_impedance": "resistance",
-}
+__all__ = ["FIGURES", "FIGURE_KIND", "FigureLimit", "JudgeSettings", "Recipe", "Station"]
 
 
 @dataclass(frozen=True)
@@ -52,6 +50,7 @@ class Station:
     interlocked_fixture: bool
     simulator: tuple[tuple[str, object], ...] = ()
     text: str = ""
+    accuracy: Accuracy = DEFAULT_ACCURACY
 
     @property
     def simulator_options(self) -> dict[str, object]:
@@ -89,33 +88,6 @@ Step = SweepStep | SpotStep
 
 
 @dataclass(frozen=True)
-class FigureLimit:
-    figure: str
-    min: float | None = None
-    max: float | None = None
-
-
-@dataclass(frozen=True)
-class JudgeSettings:
-    """What the judge computes and against which limits. Defaults are the trade's usual ones:
-    test voltage 25 V, knee voltage 6 V, limiting voltage at 0.8 x the measured regulated
-    current (REFERENCES.md s1, [src: MIL-PRF-19500/463 as reproduced in data sheets])."""
-
-    test_voltage_v: float = 25.0
-    knee_voltage_v: float = 6.0
-    knee_fraction: float = 0.8
-    knee_current_a: float | None = None  # fixed knee reference current, overrides the fraction
-    slope_window_v: float = 2.0
-    limits: tuple[FigureLimit, ...] = ()
-
-    def limit(self, figure: str) -> FigureLimit:
-        for item in self.limits:
-            if item.figure == figure:
-                return item
-        return FigureLimit(figure)
-
-
-@dataclass(frozen=True)
 class Recipe:
     file: str
     product: str
@@ -131,75 +103,6 @@ class Recipe:
     def digest(self) -> str:
         """SHA-256 of the recipe and station text: what a stored result was produced under."""
         return hashlib.sha256((self.text + "\0" + self.station.text).encode()).hexdigest()
-
-
-# --- reading fields ---------------------------------------------------------------------------
-
-
-@dataclass
-class _Fields:
-    """A mapping at `path` in `source`; hands out checked fields and refuses unknown ones."""
-
-    source: Source
-    path: str
-    data: dict[str, Any]
-    used: set[str] = field(default_factory=set)
-
-    @classmethod
-    def at(cls, source: Source, path: str, value: Any) -> _Fields:
-        if not isinstance(value, dict):
-            raise source.error(path, f"must be a mapping of settings (got {_show(value)})")
-        return cls(source, path, value)
-
-    def _where(self, key: str) -> str:
-        return f"{self.path}.{key}" if self.path else key
-
-    def raw(self, key: str, default: Any = ..., *, required: bool = True) -> Any:
-        self.used.add(key)
-        if key in self.data:
-            return self.data[key]
-        if default is not ...:
-            return default
-        raise self.source.error(self.path or key, f"needs '{key}'" if self.path else "is missing")
-
-    def quantity(self, key: str, kind: str, default: Any = ...) -> float:
-        value = self.raw(key, default)
-        if isinstance(value, float) and value is default:
-            return value
-        try:
-            return parse_quantity(value, kind)
-        except UnitProblem as exc:
-            raise self.source.error(self._where(key), str(exc)) from None
-
-    def number(self, key: str, default: Any = ..., *, integer: bool = False) -> float:
-        value = self.raw(key, default)
-        ok = isinstance(value, int) if integer else isinstance(value, int | float)
-        if isinstance(value, bool) or not ok:
-            kind = "a whole number" if integer else "a plain number"
-            raise self.source.error(self._where(key), f"must be {kind} (got {_show(value)})")
-        return value
-
-    def text(self, key: str, default: Any = ...) -> str:
-        value = self.raw(key, default)
-        if not isinstance(value, str | int | float) or isinstance(value, bool):
-            raise self.source.error(self._where(key), f"must be text (got {_show(value)})")
-        return str(value)
-
-    def check(self, condition: bool, key: str, problem: str) -> None:
-        if not condition:
-            raise self.source.error(self._where(key), problem)
-
-    def finish(self) -> None:
-        for key in self.data:
-            if key not in self.used:
-                known = ", ".join(sorted(self.used))
-                raise self.source.error(
-                    self._where(key), f"is not a known setting here (known: {known})"
-                )
-
-
-def _show(value: Any) -> str:
-    return repr(value) if not isinstance(value, dict | list) else type(value).__name__
 
 
 # --- station ------------------------------------------------------------------------------------
@@ -234,6 +137,7 @@ def load_station(path: Path) -> Station:
     fixture.check(isinstance(interlocked, bool), "interlocked", "must be true or false")
     fixture.finish()
     sim = _simulator_options(source, top.raw("simulator", {}))
+    accuracy = parse_accuracy(source, top.raw("accuracy", None))
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Station(
@@ -248,13 +152,8 @@ def load_station(path: Path) -> Station:
         interlocked,
         sim,
         text,
+        accuracy,
     )
-
-
-def _positive(fields: _Fields, key: str, kind: str, default: Any = ...) -> float:
-    value = fields.quantity(key, kind, default)
-    fields.check(value > 0, key, f"must be positive (got {value})")
-    return value
 
 
 def _channels(source: Source, value: Any) -> tuple[int, ...]:
@@ -314,7 +213,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     nplc = top.number("nplc", 1.0)
     top.check(0.01 <= nplc <= 10, "nplc", f"must be 0.01 to 10 power-line cycles (got {nplc})")
     steps = _steps(source, top.raw("steps"))
-    judge = _judge(source, top.raw("judge", {}))
+    judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text)
@@ -380,38 +279,3 @@ def _spot(f: _Fields, index: int) -> SpotStep:
     f.check(0 <= settle <= 10, "settle", f"must be 0 to 10 s (got {settle} s)")
     f.finish()
     return SpotStep(name, voltage, compliance, repeats, settle)
-
-
-def _judge(source: Source, value: Any) -> JudgeSettings:
-    f = _Fields.at(source, "judge", value)
-    defaults = JudgeSettings()
-    vt = f.quantity("test_voltage", "voltage", "25 V")
-    vk = f.quantity("knee_voltage", "voltage", "6 V")
-    fraction = float(f.number("knee_fraction", defaults.knee_fraction))
-    f.check(0 < fraction < 1, "knee_fraction", f"must lie between 0 and 1 (got {fraction})")
-    knee_current = f.quantity("knee_current", "current", None) if "knee_current" in f.data else None
-    f.used.add("knee_current")
-    window = f.quantity("slope_window", "voltage", "2 V")
-    f.check(window > 0, "slope_window", f"must be positive (got {window} V)")
-    limits = _figure_limits(source, f.raw("limits", {}))
-    f.finish()
-    return JudgeSettings(vt, vk, fraction, knee_current, window, limits)
-
-
-def _figure_limits(source: Source, value: Any) -> tuple[FigureLimit, ...]:
-    f = _Fields.at(source, "judge.limits", value)
-    out = []
-    for figure in FIGURES:
-        if figure not in f.data:
-            continue
-        g = _Fields.at(source, f"judge.limits.{figure}", f.raw(figure))
-        kind = FIGURE_KIND[figure]
-        low = g.quantity("min", kind) if "min" in g.data else None
-        high = g.quantity("max", kind) if "max" in g.data else None
-        g.used.update({"min", "max"})
-        g.check(low is not None or high is not None, "min", "or 'max' must be given")
-        g.check(low is None or high is None or low < high, "max", f"must exceed min ({low})")
-        g.finish()
-        out.append(FigureLimit(figure, low, high))
-    f.finish()
-    return tuple(out)

@@ -21,15 +21,13 @@ from typing import Any
 from .curve import Curve
 from .errors import StoreError
 from .judge import Judgement
+from .judgesettings import FIGURE_UNIT
 from .recipe import FIGURES
 
-SCHEMA_VERSION = 1
-UNITS = {
-    "regulated_current": "A",
-    "limiting_voltage": "V",
-    "dynamic_impedance": "ohm",
-    "knee_impedance": "ohm",
-}
+# 2: bins (hard_bin, bin_class, soft_bin) and the reverse and peak figures in the device table
+SCHEMA_VERSION = 2
+UNITS = FIGURE_UNIT
+BIN_COLUMNS = ["hard_bin", "bin_class", "soft_bin"]
 
 SCHEMA = """
 CREATE TABLE run (
@@ -42,6 +40,7 @@ CREATE TABLE run (
 CREATE TABLE device (
     run_id INTEGER NOT NULL REFERENCES run(id),
     device TEXT NOT NULL, channel INTEGER, verdict TEXT NOT NULL,
+    hard_bin INTEGER, bin_class TEXT, soft_bin TEXT,
     classification TEXT, reasons TEXT,
     {figure_columns},
     PRIMARY KEY (run_id, device)
@@ -64,7 +63,15 @@ def figure_columns() -> list[str]:
     return cols
 
 
-CSV_COLUMNS = ["device", "channel", "verdict", *figure_columns(), "classification", "reasons"]
+CSV_COLUMNS = [
+    "device",
+    "channel",
+    "verdict",
+    *BIN_COLUMNS,
+    *figure_columns(),
+    "classification",
+    "reasons",
+]
 
 
 def _num(x: float) -> float | None:
@@ -74,13 +81,16 @@ def _num(x: float) -> float | None:
 def device_row(judgement: Judgement, channel: int) -> dict[str, Any]:
     row: dict[str, Any] = {"device": judgement.device, "channel": channel}
     row["verdict"] = judgement.verdict
+    row["hard_bin"] = judgement.hard_bin
+    row["bin_class"] = judgement.bin_class
+    row["soft_bin"] = judgement.soft_bin
     for name in FIGURES:
         fig, unit = judgement.figures[name], UNITS[name]
         row[f"{name}_{unit}"] = _num(fig.value)
         row[f"{name}_u_{unit}"] = _num(fig.uncertainty)
         row[f"{name}_at_least"] = int(fig.at_least)
     row["classification"] = judgement.classification
-    row["reasons"] = "; ".join(judgement.reasons)
+    row["reasons"] = "; ".join(judgement.notes)  # failing reasons, then guard-band notes
     return row
 
 

@@ -15,7 +15,12 @@ from .plan import Plan
 from .recipe import Recipe
 from .units import format_si
 
-VERDICT_STYLE = {"pass": "bold green", "fail": "bold red", "aborted": "bold yellow"}
+VERDICT_STYLE = {
+    "pass": "bold green",
+    "fail": "bold red",
+    "guard-band": "bold magenta",
+    "aborted": "bold yellow",
+}
 SHORT = (
     ("regulated_current", "IP", "A"),
     ("limiting_voltage", "VL", "V"),
@@ -33,11 +38,13 @@ def figure_text(fig: Figure, unit: str) -> str:
 def device_line(done: DeviceDone) -> Text:
     j: Judgement = done.judgement
     line = Text(f"{done.curve.channel:>4}  {j.device:<16} ")
-    line.append(f"{j.verdict:<7}", style=VERDICT_STYLE[j.verdict])
+    line.append(f"{j.verdict:<10}", style=VERDICT_STYLE[j.verdict])
     for name, short, unit in SHORT:
         line.append(f" {short} {figure_text(j.figures[name], unit):>10}")
-    if j.reasons:
-        line.append("   " + "; ".join(j.reasons), style="dim")
+    if j.hard_bin is not None:
+        line.append(f"  bin {j.hard_bin}")
+    if j.notes:
+        line.append("   " + "; ".join(j.notes), style="dim")
     return line
 
 
@@ -80,6 +87,8 @@ def summary_table(summary: RunSummary) -> Table:
     table.add_row("devices", f"{summary.done} of {summary.total}")
     table.add_row("pass", str(summary.passed))
     table.add_row("fail", str(summary.failed))
+    if summary.guarded:
+        table.add_row("guard band", str(summary.guarded))
     if summary.aborted:
         table.add_row("aborted", str(summary.aborted))
     table.add_row("yield", "—" if math.isnan(y) else f"{100 * y:.1f} %")

@@ -13,7 +13,7 @@ from sequencer.curve import Curve
 from sequencer.errors import StoreError
 from sequencer.judge import judge_curve
 from sequencer.recipe import FigureLimit, JudgeSettings
-from sequencer.store import CSV_COLUMNS, RunStore
+from sequencer.store import CSV_COLUMNS, SCHEMA_VERSION, RunStore
 
 SETTINGS = JudgeSettings(limits=(FigureLimit("dynamic_impedance", 1e5, None),))
 
@@ -40,7 +40,7 @@ def test_results_in_journal_sqlite_and_csv(tmp_path):
     assert entries[0]["points"]["current_A"][5] is None
 
     db = sqlite3.connect(tmp_path / "run" / "results.sqlite")
-    assert db.execute("PRAGMA user_version").fetchone()[0] == 1
+    assert db.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
     assert db.execute("SELECT status, lot FROM run").fetchone() == ("completed", "FK-TEST")
     rows = db.execute("SELECT device, verdict, dynamic_impedance_ohm FROM device ORDER BY device")
     (_, va, za), (_, vb, zb) = rows.fetchall()

@@ -1,0 +1,47 @@
+"""Bins: ordered rules, first match wins; a hard bin (number, pass/fail class) and a soft bin.
+
+The soft bin is the rule's name when it has one (a grade, e.g. a current class for matched LED
+strings), otherwise the kind of the device's first reason ("regulated current below min"), so a
+fail bin still says why. Pure numpy over many devices at once.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .judgesettings import CLASSIFICATIONS, VERDICTS, BinRule, FigureRange
+
+
+def _in_range(value: np.ndarray, at_least: np.ndarray, rng: FigureRange) -> np.ndarray:
+    ok = ~np.isnan(value)
+    if rng.min is not None:
+        ok &= value >= rng.min  # a lower bound above min is above min
+    if rng.max is not None:
+        ok &= ~at_least & (value < rng.max)  # a lower bound says nothing about a maximum
+    return ok
+
+
+def assign(
+    rules: tuple[BinRule, ...],
+    verdict: np.ndarray,
+    classification: np.ndarray,
+    values: dict[str, np.ndarray],
+    at_least: dict[str, np.ndarray],
+) -> np.ndarray:
+    """Index of the first matching rule per device (the last rule is a catch-all)."""
+    chosen = np.full(verdict.shape, -1, np.int16)
+    for index, rule in enumerate(rules):
+        match = chosen < 0
+        if rule.verdicts:
+            match &= np.isin(verdict, [VERDICTS.index(v) for v in rule.verdicts])
+        if rule.classifications:
+            codes = [CLASSIFICATIONS.index(c) for c in rule.classifications]
+            match &= np.isin(classification, codes)
+        for rng in rule.ranges:
+            match &= _in_range(values[rng.figure], at_least[rng.figure], rng)
+        chosen[match] = index
+    return chosen
+
+
+def soft_bin(rule: BinRule, first_reason: str, verdict: str) -> str:
+    return rule.name or first_reason or verdict

@@ -1,0 +1,85 @@
+"""Figures against limits under the recipe's decision rule, for many devices at once.
+
+Simple acceptance: inside the limits passes. Guarded acceptance [src: ILAC-G8:09/2019; JCGM
+106:2012]: the acceptance zone is the tolerance narrowed by the expanded uncertainty
+U = k u on each side; a result between a limit and its acceptance bound is "in the guard band",
+a verdict of its own, neither passed nor failed. A figure without a known uncertainty cannot be
+shown to lie inside the acceptance zone, so under the guarded rule it sits in the guard band.
+
+A lower bound ("at least", an impedance within noise or a reading clamped at compliance) passes
+a minimum it already exceeds; against a maximum it proves nothing unless it already exceeds it.
+Pure numpy.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .figures import FigureArrays
+from .judgesettings import CLASSIFICATIONS, SHAPES, VERDICTS, FigureLimit, JudgeSettings
+
+WITHIN, BELOW, ABOVE, GUARD_LOW, GUARD_HIGH, UNPROVEN = range(6)
+FAILING = (BELOW, ABOVE, UNPROVEN)
+GUARDED = (GUARD_LOW, GUARD_HIGH)
+PASS, FAIL, GUARD_BAND = (VERDICTS.index(v) for v in ("pass", "fail", "guard-band"))
+INCOMPLETE = CLASSIFICATIONS.index("incomplete")
+
+
+@dataclass(frozen=True, eq=False)
+class Decisions:
+    status: dict[str, np.ndarray]  # per limited figure: WITHIN ... UNPROVEN
+    expanded: dict[str, np.ndarray]  # per limited figure: U used for its guard band
+    classification: np.ndarray  # index into CLASSIFICATIONS
+    verdict: np.ndarray  # index into VERDICTS
+
+
+def limit_status(
+    value: np.ndarray,
+    at_least: np.ndarray,
+    expanded: np.ndarray,
+    limit: FigureLimit,
+) -> np.ndarray:
+    """Where each value stands against one limit; `expanded` is 0 under simple acceptance."""
+    status = np.full(value.shape, WITHIN, np.int8)
+    plain = ~at_least & ~np.isnan(value)
+    low, high = limit.min, limit.max
+    if high is not None:
+        status[plain & (value > high - expanded)] = GUARD_HIGH
+    if low is not None:
+        status[plain & (value < low + expanded)] = GUARD_LOW
+        status[plain & (value < low)] = BELOW
+        status[at_least & (value < low)] = UNPROVEN
+    if high is not None:
+        status[plain & (value > high)] = ABOVE
+        status[at_least & (value <= high)] = UNPROVEN
+        status[at_least & (value > high)] = ABOVE
+    return status
+
+
+def decide(f: FigureArrays, s: JudgeSettings) -> Decisions:
+    status: dict[str, np.ndarray] = {}
+    expanded: dict[str, np.ndarray] = {}
+    n = f.shape.shape[0]
+    failing = np.zeros(n, bool)
+    guarded = np.zeros(n, bool)
+    for limit in s.limits:
+        name = limit.figure
+        if s.decision == "guarded":
+            u = f.u[name]
+            big_u = np.where(np.isnan(u), np.inf, s.coverage_factor * u)
+        else:
+            big_u = np.zeros(n)
+        status[name] = limit_status(f.value[name], f.at_least[name], big_u, limit)
+        expanded[name] = big_u
+        failing |= np.isin(status[name], FAILING)
+        guarded |= np.isin(status[name], GUARDED)
+    missing = np.zeros(n, bool)
+    for name in s.required():
+        missing |= f.missing[name] > 0
+    shape_class = np.array([CLASSIFICATIONS.index(x) for x in SHAPES], np.int8)[f.shape]
+    classification = np.where((f.shape == 0) & missing, INCOMPLETE, shape_class)
+    failing |= classification != 0
+    verdict = np.where(failing, FAIL, np.where(guarded, GUARD_BAND, PASS)).astype(np.int8)
+    return Decisions(status, expanded, classification.astype(np.int8), verdict)

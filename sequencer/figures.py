@@ -1,0 +1,288 @@
+"""The figures of the trade for many curves at once, as 2-D arrays (one row per device).
+
+Every device of a run follows one plan, so the columns mean the same for every row: which
+segment, which programmed level. Windows, coverage and spot matching are decided on the
+programmed levels (what the recipe asked for, common to the lot); the arithmetic uses the
+measured voltages and currents. A point taken while the SMU clamped at its compliance, or a
+non-finite reading, is never used for a figure. Pure numpy, no I/O.
+
+Missing figures carry a code (MISS_*) so that the words are made only for devices someone reads.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+
+from .judgesettings import FIGURES, SHAPES, JudgeSettings
+from .knee import crossing
+from .shape import classify
+from .slopes import Fit, impedance, masked_mean, window_fit
+from .uncertainty import combine
+
+SPOT_MATCH_V = 1e-3  # a reading belongs to a level when programmed within this
+WINDOW_EDGE_V = 1e-9  # programmed levels on the window's edge belong to it
+
+MISS_UNCOVERED = 1  # the sweep does not reach the voltage / nothing programmed there
+MISS_COMPLIANCE = 2  # clamped at compliance where the figure needs readings
+MISS_FEW = 3  # fewer than 3 points in the slope window
+MISS_NO_IP = 4  # the knee reference follows IP, which is missing
+MISS_NEVER = 5  # the current never reaches the knee reference
+MISS_FIRST = 6  # already above the knee reference at the first point
+MISS_NEGATIVE = 7  # the slope is negative beyond its noise
+MISS_NONFINITE = 8  # only non-finite readings there
+
+
+@dataclass(frozen=True, eq=False)
+class Layout:
+    """What every curve of a group shares: its plan, column by column."""
+
+    kinds: tuple[str, ...]  # kind of each segment ("sweep", "spot")
+    segment: np.ndarray  # (m,) segment of each column
+    level_v: np.ndarray  # (m,) programmed level of each column
+
+    @classmethod
+    def of(cls, curve) -> Layout:
+        return cls(curve.kinds, np.asarray(curve.segment), np.asarray(curve.level_v, float))
+
+    def key(self) -> tuple:
+        return (self.kinds, self.segment.tobytes(), self.level_v.tobytes())
+
+    def _is_kind(self, kind: str) -> np.ndarray:
+        wanted = [i for i, k in enumerate(self.kinds) if k == kind]
+        return np.isin(self.segment, wanted)
+
+    @cached_property
+    def sweep(self) -> np.ndarray:
+        """Forward sweep columns (programmed level >= 0), in order of programmed level."""
+        cols = np.nonzero(self._is_kind("sweep") & (self.level_v >= 0))[0]
+        return cols[np.argsort(self.level_v[cols], kind="stable")]
+
+    @cached_property
+    def forward(self) -> np.ndarray:
+        """Every forward column, sweep or spot: where opens, shorts and clamping are seen."""
+        return np.nonzero(self.level_v >= 0)[0]
+
+    def sweep_levels(self) -> np.ndarray:
+        return self.level_v[self.sweep]
+
+    def covers(self, volts: float) -> bool:
+        levels = self.sweep_levels()
+        return bool(levels.size) and levels[0] - SPOT_MATCH_V <= volts <= levels[-1] + SPOT_MATCH_V
+
+    def window(self, centre_v: float, width_v: float) -> np.ndarray:
+        """Forward sweep columns programmed within width/2 of the centre."""
+        inside = np.abs(self.sweep_levels() - centre_v) <= width_v / 2 + WINDOW_EDGE_V
+        return self.sweep[inside]
+
+    def at(self, volts: float, kind: str | None = None) -> np.ndarray:
+        """Columns programmed at this level (of one kind, or any)."""
+        hit = np.abs(self.level_v - volts) <= SPOT_MATCH_V
+        if kind is not None:
+            hit &= self._is_kind(kind)
+        return np.nonzero(hit)[0]
+
+
+@dataclass(frozen=True, eq=False)
+class Readings:
+    """One group's readings: (n, m) arrays in the columns of a Layout."""
+
+    layout: Layout
+    voltage: np.ndarray
+    current: np.ndarray
+    clamped: np.ndarray
+
+    @cached_property
+    def good(self) -> np.ndarray:
+        finite = np.isfinite(self.voltage) & np.isfinite(self.current)
+        return finite & ~self.clamped
+
+    def take(self, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """voltage, current, good, clamped of these columns (views when they are a slice)."""
+        pick = _as_slice(cols)
+        return (
+            self.voltage[:, pick],
+            self.current[:, pick],
+            self.good[:, pick],
+            self.clamped[:, pick],
+        )
+
+
+def _as_slice(cols: np.ndarray) -> slice | np.ndarray:
+    if cols.size and np.array_equal(cols, np.arange(cols[0], cols[0] + cols.size)):
+        return slice(int(cols[0]), int(cols[0]) + cols.size)
+    return cols
+
+
+@dataclass
+class FigureArrays:
+    """Per figure: value, standard uncertainty, lower-bound flag, missing code; and the shape."""
+
+    value: dict[str, np.ndarray]
+    u: dict[str, np.ndarray]
+    at_least: dict[str, np.ndarray]
+    missing: dict[str, np.ndarray]
+    shape: np.ndarray  # index into SHAPES
+    shape_value: np.ndarray  # the number the shape's reason quotes
+    knee_reference_a: np.ndarray
+
+    @classmethod
+    def empty(cls, n: int) -> FigureArrays:
+        nan = {f: np.full(n, np.nan) for f in FIGURES}
+        return cls(
+            nan,
+            {f: np.full(n, np.nan) for f in FIGURES},
+            {f: np.zeros(n, bool) for f in FIGURES},
+            {f: np.zeros(n, np.int8) for f in FIGURES},
+            np.zeros(n, np.int8),
+            np.full(n, np.nan),
+            np.full(n, np.nan),
+        )
+
+    def put(self, name: str, value, u, at_least=None, missing=None) -> None:
+        self.value[name] = np.asarray(value, float)
+        self.u[name] = np.asarray(u, float)
+        if at_least is not None:
+            self.at_least[name] = np.asarray(at_least, bool)
+        if missing is not None:
+            self.missing[name] = np.asarray(missing, np.int8)
+
+
+def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
+    """All figures of every row."""
+    n = r.voltage.shape[0]
+    out = FigureArrays.empty(n)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out.shape, out.shape_value, noise = classify(r, s)
+        zt_fit, zt_miss = _fit_at(r, s.test_voltage_v, s.slope_window_v)
+        zk_fit, zk_miss = _fit_at(r, s.knee_voltage_v, s.knee_window)
+        _impedance(out, "dynamic_impedance", zt_fit, zt_miss, s)
+        _impedance(out, "knee_impedance", zk_fit, zk_miss, s)
+        _regulated_current(out, r, s, zt_fit, zt_miss)
+        _limiting_voltage(out, r, s, noise)
+        if s.reverse_voltage_v is not None:
+            _at_level(out, r, s, "reverse_current", s.reverse_voltage_v)
+        if s.peak_voltage_v is not None:
+            _at_level(out, r, s, "peak_current", s.peak_voltage_v)
+    _blank_dead(out)
+    return out
+
+
+def _blank_dead(out: FigureArrays) -> None:
+    """An open or a short has no figures at all; its shape is the whole story."""
+    dead = np.isin(out.shape, [SHAPES.index("open"), SHAPES.index("short")])
+    if dead.any():
+        for name in FIGURES:
+            out.value[name][dead] = np.nan
+            out.u[name][dead] = np.nan
+            out.at_least[name][dead] = False
+            out.missing[name][dead] = 0
+
+
+def _fit_at(r: Readings, centre_v: float, width_v: float) -> tuple[Fit, np.ndarray]:
+    n = r.voltage.shape[0]
+    cols = r.layout.window(centre_v, width_v)
+    v, i, good, clamped = r.take(cols)
+    fit = window_fit(v, i, good)
+    miss = np.zeros(n, np.int8)
+    miss[fit.points < 3] = MISS_FEW
+    miss[clamped.any(axis=1)] = MISS_COMPLIANCE
+    if not r.layout.covers(centre_v):
+        miss[:] = MISS_UNCOVERED
+    return fit, miss
+
+
+def _impedance(out: FigureArrays, name: str, fit: Fit, miss: np.ndarray, s: JudgeSettings):
+    z = impedance(fit, s.coverage_factor)
+    acc = s.accuracy
+    low_i, high_i = fit.at(fit.x_min), fit.at(fit.x_max)
+    rel_v = acc.voltage.u_difference(fit.x_min, fit.x_max) / (fit.x_max - fit.x_min)
+    rel_i = acc.current.u_difference(low_i, high_i) / np.abs(high_i - low_i)
+    u = z.value * combine(z.rel_type_a, rel_v, rel_i)
+    bad = miss > 0
+    missing = np.where(bad, miss, np.where(z.negative, MISS_NEGATIVE, 0))
+    value = np.where(bad, np.nan, z.value)
+    out.put(name, value, np.where(bad | z.at_least, np.nan, u), z.at_least & ~bad, missing)
+
+
+def _regulated_current(out, r: Readings, s: JudgeSettings, fit: Fit, fit_miss: np.ndarray):
+    vt = s.test_voltage_v
+    spots = r.layout.at(vt, "spot")
+    slope = np.where(out.missing["dynamic_impedance"] == 0, np.maximum(fit.slope, 0.0), 0.0)
+    u_from_v = slope * s.accuracy.voltage.u(vt)  # a voltage error moves the current by dI/dV
+    if spots.size:
+        mean, type_a, miss, _ = _mean_at(r, spots)
+    else:
+        mean = np.where(fit_miss > 0, np.nan, fit.at(vt))
+        type_a, miss = fit.u_at(vt), fit_miss
+    u = combine(type_a, s.accuracy.current.u(mean), u_from_v)
+    out.put("regulated_current", mean, np.where(miss > 0, np.nan, u), missing=miss)
+
+
+def _mean_at(r: Readings, cols: np.ndarray):
+    """Mean of the good readings in these columns; Type A u = s/sqrt(n) (0 for one reading)."""
+    v, i, good, clamped = r.take(cols)
+    count, mean, sd = masked_mean(i, good)
+    type_a = np.where(count >= 2, sd / np.sqrt(count), 0.0)
+    miss = np.where(count > 0, 0, np.where(clamped.any(axis=1), MISS_COMPLIANCE, MISS_NONFINITE))
+    power = np.where(good, v * i, 0.0).sum(axis=1) / count
+    return np.where(count > 0, mean, np.nan), type_a, miss.astype(np.int8), power
+
+
+def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: np.ndarray):
+    n = r.voltage.shape[0]
+    fixed = s.knee_reference_a()
+    ip, u_ip = out.value["regulated_current"], out.u["regulated_current"]
+    ref = np.full(n, fixed) if fixed is not None else s.knee_fraction * ip
+    u_ref = np.zeros(n) if fixed is not None else s.knee_fraction * u_ip
+    v, i, good, _ = r.take(r.layout.sweep)
+    if v.shape[1] == 0:
+        out.put("limiting_voltage", np.full(n, np.nan), np.full(n, np.nan), missing=[1] * n)
+        out.knee_reference_a = ref
+        return
+    knee = crossing(v, i, good, ref)
+    miss = np.zeros(n, np.int8)
+    miss[~knee.prev_good] = MISS_COMPLIANCE
+    miss[knee.first] = MISS_FIRST
+    miss[~knee.found] = MISS_NEVER
+    miss[np.isnan(ref)] = MISS_NO_IP
+    # The current's uncertainty at the crossing moves the voltage by dV/dI there.
+    u_i = combine(s.accuracy.current.u(ref), np.nan_to_num(noise), np.nan_to_num(u_ref))
+    vl = knee.volts
+    u = combine(s.accuracy.voltage.u(vl), u_i / knee.slope, knee.u_interpolation)
+    bad = miss > 0
+    out.put("limiting_voltage", np.where(bad, np.nan, vl), np.where(bad, np.nan, u), None, miss)
+    out.knee_reference_a = ref
+
+
+def _clamped_bound(r: Readings, cols: np.ndarray, power: bool = False):
+    """The largest magnitude read while clamped: the true value is at least this."""
+    v, i, _, clamped = r.take(cols)
+    magnitude = np.abs(v * i) if power else np.abs(i)
+    return clamped.any(axis=1), np.where(clamped, magnitude, -np.inf).max(axis=1, initial=-np.inf)
+
+
+def _at_level(out: FigureArrays, r: Readings, s: JudgeSettings, name: str, volts: float) -> None:
+    """Readings programmed at one level: their mean magnitude, or a bound when clamped."""
+    n = r.voltage.shape[0]
+    cols = r.layout.at(volts)
+    if cols.size == 0:
+        miss = np.full(n, MISS_UNCOVERED)
+        out.put(name, np.full(n, np.nan), np.full(n, np.nan), None, miss)
+        if name == "peak_current":
+            out.put("peak_dissipation", np.full(n, np.nan), np.full(n, np.nan), None, miss)
+        return
+    mean, type_a, miss, power = _mean_at(r, cols)
+    clamped, bound = _clamped_bound(r, cols)
+    value = np.where(clamped, bound, np.abs(mean))
+    u = combine(type_a, s.accuracy.current.u(mean))
+    ok = ~clamped & (miss == 0)
+    miss = np.where(clamped, 0, miss)
+    out.put(name, value, np.where(ok, u, np.nan), clamped, miss)
+    if name == "peak_current":
+        _, p_bound = _clamped_bound(r, cols, power=True)
+        u_p = combine(mean * s.accuracy.voltage.u(volts), volts * u)
+        p = np.where(clamped, p_bound, np.abs(power))
+        out.put("peak_dissipation", p, np.where(ok, u_p, np.nan), clamped, miss)

@@ -1,0 +1,112 @@
+"""What kind of curve a row is: ok, open, short, compliance-limited, oscillating, non-monotonic.
+
+Tested in that order; the first that holds is the classification, and its number (a voltage, a
+scatter, a drop) goes into the reason. Only forward points (programmed level >= 0) count: a
+reverse sweep of a bare regulator conducts like a diode and clamps, which is no defect.
+
+The reading scatter is estimated on the plateau (forward sweep from the knee voltage up) from
+each point's distance to the chord of its two neighbours: for independent noise of standard
+deviation sigma that distance has variance sigma^2 (1 + t^2 + (1 - t)^2), t the point's place
+between its neighbours, and a smooth curve adds almost nothing. The same sigma serves as the
+Type A uncertainty of a single reading elsewhere in the judge. Pure numpy.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .judgesettings import SHAPES, JudgeSettings
+from .slopes import masked_mean
+
+OK, OPEN, SHORT, CLAMPED, OSCILLATING, NON_MONOTONIC = range(len(SHAPES))
+
+
+def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(shape code, number quoted in its reason, plateau noise sigma) per row."""
+    n = r.voltage.shape[0]
+    shape = np.zeros(n, np.int8)
+    quoted = np.full(n, np.nan)
+    sigma, level = plateau_noise(r, s.knee_voltage_v)
+    # Later assignments overwrite earlier ones: go from the last test to the first.
+    drop, peak = _drawdown(r)
+    _mark(shape, quoted, drop > s.shape.drop_limit * peak, NON_MONOTONIC, drop)
+    scatter = np.fmax(sigma / level, _spot_scatter(r, s.test_voltage_v))
+    _mark(shape, quoted, scatter > s.shape.scatter_limit, OSCILLATING, scatter)
+    v, i, good, clamped = r.take(r.layout.forward)
+    top = np.where(good, np.abs(i), 0.0).max(axis=1, initial=0.0)
+    any_clamped = clamped.any(axis=1)
+    readable = good.any(axis=1)  # no usable reading at all is no evidence of an open
+    _mark(shape, quoted, readable & (top < s.shape.open_below_a) & ~any_clamped, OPEN, top)
+    rows = np.flatnonzero(any_clamped)  # few rows clamp: look closer only at those
+    if rows.size:
+        c, volts = clamped[rows], np.abs(v[rows])
+        levels = r.layout.level_v[r.layout.forward]
+        first = np.where(c, levels, np.inf).min(axis=1)
+        _mark(shape, quoted, rows, CLAMPED, _spread(n, rows, first))
+        low = c & (volts < s.shape.short_below_v)
+        at = np.where(low, volts, np.inf).min(axis=1)
+        short_rows = rows[low.any(axis=1)]
+        _mark(shape, quoted, short_rows, SHORT, _spread(n, rows, at))
+    return shape, quoted, sigma
+
+
+def _spread(n: int, rows: np.ndarray, values: np.ndarray) -> np.ndarray:
+    out = np.full(n, np.nan)
+    out[rows] = values
+    return out
+
+
+def _mark(shape, quoted, where: np.ndarray, code: int, number: np.ndarray) -> None:
+    shape[where] = code
+    quoted[where] = number[where]
+
+
+def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
+    """(sigma of one reading, mean |current|) on the forward sweep from `from_v` up.
+
+    Each point's place between its neighbours comes from the programmed levels: the measured
+    voltages differ from them by far less than would matter here, and one vector for the lot
+    saves most of the work."""
+    cols = r.layout.sweep[r.layout.sweep_levels() >= from_v - 1e-9]
+    n = r.voltage.shape[0]
+    if cols.size < 3:
+        return np.full(n, np.nan), np.full(n, np.nan)
+    _, i, good, _ = r.take(cols)
+    x = r.layout.level_v[cols]
+    span = x[2:] - x[:-2]
+    usable = span != 0
+    t = np.where(usable, (x[1:-1] - x[:-2]) / np.where(usable, span, 1.0), 0.0)
+    dist = i[:, 1:-1] - (1.0 - t) * i[:, :-2] - t * i[:, 2:]
+    ok = good[:, :-2] & good[:, 1:-1] & good[:, 2:] & usable
+    dist *= dist
+    dist[~ok] = 0.0
+    weight = np.where(usable, 1.0 / (1.0 + t * t + (1.0 - t) ** 2), 0.0)
+    var = (dist @ weight) / np.count_nonzero(ok, axis=1)
+    level = np.where(good, i, 0.0).sum(axis=1) / np.count_nonzero(good, axis=1)
+    return np.sqrt(var), np.abs(level)
+
+
+def _spot_scatter(r, volts: float) -> np.ndarray:
+    """Relative standard deviation of repeated spot readings at the test voltage."""
+    cols = r.layout.at(volts, "spot")
+    n = r.voltage.shape[0]
+    if cols.size < 2:
+        return np.full(n, np.nan)
+    _, i, good, _ = r.take(cols)
+    count, mean, sd = masked_mean(i, good)
+    return np.where(count >= 2, sd / np.abs(mean), np.nan)
+
+
+def _drawdown(r) -> tuple[np.ndarray, np.ndarray]:
+    """(largest fall below the running maximum, peak current) along the forward sweep."""
+    n = r.voltage.shape[0]
+    if r.layout.sweep.size == 0:
+        return np.zeros(n), np.zeros(n)
+    _, i, good, _ = r.take(r.layout.sweep)
+    masked = np.where(good, i, -np.inf)
+    rising = np.maximum.accumulate(masked, axis=1)
+    rising -= masked  # bad points: +inf, hidden below
+    rising[~good] = 0.0
+    drop = rising.max(axis=1, initial=0.0)
+    peak = masked.max(axis=1, initial=-np.inf)
+    return drop, np.where(np.isfinite(peak), peak, 0.0)
