@@ -16,7 +16,7 @@ from pathlib import Path
 
 from rich.console import Console
 
-from . import __version__, judgecmd
+from . import __version__, judgecmd, reportcmd
 from .errors import CcbenchError, RunError, SafetyError
 from .lotrun import run_lot
 from .plan import make_plan
@@ -56,6 +56,7 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--station", type=Path, help="station file instead of the recipe's")
 
     judgecmd.add_parsers(sub)
+    reportcmd.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -128,6 +129,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     finally:
         store.finish(status, _now())
     console.print(summary_table(summary))
+    reportcmd.after_run(console, out)
     console.print(f"results: {out / 'devices.csv'}", soft_wrap=True)
     return 0
 
@@ -198,7 +200,13 @@ def cmd_sim(args: argparse.Namespace, console: Console) -> int:
         return 0
 
 
-COMMANDS = {"run": cmd_run, "check": cmd_check, "sim": cmd_sim, **judgecmd.COMMANDS}
+COMMANDS = {
+    "run": cmd_run,
+    "check": cmd_check,
+    "sim": cmd_sim,
+    **judgecmd.COMMANDS,
+    **reportcmd.COMMANDS,
+}
 
 
 if __name__ == "__main__":
