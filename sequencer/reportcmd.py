@@ -94,6 +94,7 @@ def after_run(console: Console, folder: Path) -> None:
         from .lotview import print_after_run
 
         print_after_run(console, load_lot([folder]))
+        console.print(f"plots, HTML, STDF: ccbench report {folder}", soft_wrap=True)
     except CcbenchError as exc:
         console.print(f"[yellow]lot summary not shown:[/] {exc}", soft_wrap=True)
 
