@@ -12,6 +12,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from .limits import (
+    ON_COMPLIANCE,
+    ON_TRIP,
+    EffectiveLimits,
+    Ratings,
+    RecipeLimits,
+    effective_limits,
+    parse_acknowledgement,
+    parse_choice,
+    parse_ratings,
+    parse_recipe_limits,
+)
 from .units import UnitProblem, parse_quantity
 from .yamlsource import Source, load_yaml
 
@@ -31,7 +43,11 @@ class Limits:
     max_voltage_v: float
     max_current_a: float
     max_power_w: float
-    touch_safe_v: float = 42.0  # common practice, no source (IEC 61010-1 thresholds are higher)
+    # Above this a level is hazardous: interlocked fixture, closed lid and an acknowledgement.
+    # 42 V is common practice, no source. Beside it, IEC 61010-1 calls accessible parts
+    # hazardous live above 33 V rms, 46.7 V peak or 70 V d.c. (from memory; verify against the
+    # standard, REFERENCES.md s4).
+    touch_safe_v: float = 42.0
 
     def __post_init__(self) -> None:
         for name in ("max_voltage_v", "max_current_a", "max_power_w", "touch_safe_v"):
@@ -66,6 +82,7 @@ class SweepStep:
     points: int
     compliance_a: float
     settle_s: float
+    on_compliance: str = "flag"  # "trip": this step must not clamp; a hit trips the guard
 
     def __post_init__(self) -> None:
         if self.points < 2:
@@ -79,6 +96,7 @@ class SpotStep:
     compliance_a: float
     repeats: int
     settle_s: float
+    on_compliance: str = "flag"
 
     def __post_init__(self) -> None:
         if self.repeats < 1:
@@ -126,6 +144,15 @@ class Recipe:
     judge: JudgeSettings
     operator: str = ""
     text: str = ""
+    limits: RecipeLimits = field(default_factory=RecipeLimits)
+    ratings: Ratings = field(default_factory=Ratings)
+    on_trip: str = "stop"  # after a device trip: "stop" the run, or "skip" to the next device
+    hazardous_voltage_acknowledged: bool = False
+
+    @property
+    def effective_limits(self) -> EffectiveLimits:
+        """The smallest of station, recipe and device-rating limits (sequencer.limits)."""
+        return effective_limits(self.station.limits, self.limits, self.ratings)
 
     @property
     def digest(self) -> str:
@@ -315,9 +342,22 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     top.check(0.01 <= nplc <= 10, "nplc", f"must be 0.01 to 10 power-line cycles (got {nplc})")
     steps = _steps(source, top.raw("steps"))
     judge = _judge(source, top.raw("judge", {}))
+    safety = _safety_settings(source, top, station)
     top.finish()
     text = path.read_text(encoding="utf-8")
-    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text)
+    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text, **safety)
+
+
+def _safety_settings(source: Source, top: _Fields, station: Station) -> dict[str, Any]:
+    """The recipe's optional safety keys: limits, ratings, on_trip, hazardous_voltage."""
+    return {
+        "limits": parse_recipe_limits(source, top.raw("limits", None), station.limits),
+        "ratings": parse_ratings(source, top.raw("ratings", None)),
+        "on_trip": parse_choice(source, "on_trip", top.raw("on_trip", "stop"), ON_TRIP),
+        "hazardous_voltage_acknowledged": parse_acknowledgement(
+            source, top.raw("hazardous_voltage", None)
+        ),
+    }
 
 
 def _steps(source: Source, value: Any) -> tuple[Step, ...]:
@@ -366,8 +406,9 @@ def _sweep(f: _Fields, index: int) -> SweepStep:
     compliance = _positive(f, "compliance", "current")
     settle = f.quantity("settle", "time", "0 s")
     f.check(0 <= settle <= 10, "settle", f"must be 0 to 10 s (got {settle} s)")
+    clamp = _on_compliance(f)
     f.finish()
-    return SweepStep(name, start, stop, points, compliance, settle)
+    return SweepStep(name, start, stop, points, compliance, settle, clamp)
 
 
 def _spot(f: _Fields, index: int) -> SpotStep:
@@ -378,8 +419,16 @@ def _spot(f: _Fields, index: int) -> SpotStep:
     f.check(1 <= repeats <= 10_000, "repeats", f"must be 1 to 10000 (got {repeats})")
     settle = f.quantity("settle", "time", "0 s")
     f.check(0 <= settle <= 10, "settle", f"must be 0 to 10 s (got {settle} s)")
+    clamp = _on_compliance(f)
     f.finish()
-    return SpotStep(name, voltage, compliance, repeats, settle)
+    return SpotStep(name, voltage, compliance, repeats, settle, clamp)
+
+
+def _on_compliance(f: _Fields) -> str:
+    """`flag` (default): a clamped point is kept, marked, and left out of the figures;
+    `trip`: the step must not clamp, so a hit trips the guard like an over-power reading."""
+    value = f.raw("on_compliance", "flag")
+    return parse_choice(f.source, f._where("on_compliance"), value, ON_COMPLIANCE)
 
 
 def _judge(source: Source, value: Any) -> JudgeSettings:
