@@ -4,6 +4,7 @@ of a device (a trip, an instrument error, a signal, the end)."""
 
 from __future__ import annotations
 
+import logging
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -14,6 +15,8 @@ import numpy as np
 from .curve import Curve
 from .plan import Plan
 from .safety import Guard
+
+log = logging.getLogger(__name__)
 
 RAMP_ABOVE_V = 5.0  # levels above this are stepped down before the output goes off
 RAMP_STEP_V = 5.0
@@ -116,8 +119,19 @@ def measure_device(
                 recorder.add(index, volts, reading, clock() - start)
                 guard.check_reading(seg.step, seg.compliance_a, reading)
             smu.check_errors()
-    finally:
+    except BaseException:
+        _switch_off_after(smu, guard)
+        raise
+    switch_off(smu, guard.level_v, guard.applied)
+
+
+def _switch_off_after(smu: Smu, guard: Guard) -> None:
+    """Switch off while another error is on its way out: a failure here must not replace it
+    (the caller reads the output back and reconnects if needed)."""
+    try:
         switch_off(smu, guard.level_v, guard.applied)
+    except Exception as exc:
+        log.warning("output off after an error failed too: %s", exc)
 
 
 def switch_off(

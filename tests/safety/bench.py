@@ -119,10 +119,10 @@ class SimProcess:
     def stop(self) -> None:
         self.process.terminate()
         try:
-            self.process.wait(timeout=5)
+            self.process.communicate(timeout=5)  # also closes the pipes
         except subprocess.TimeoutExpired:
             self.process.kill()
-            self.process.wait()
+            self.process.communicate()
 
 
 def start_sim_process(*args: str) -> SimProcess:
