@@ -310,7 +310,13 @@ SIM_KEYS: dict[str, Callable[[Any], bool]] = {
     "spread": lambda v: isinstance(v, int | float) and 0 <= v <= 10,
     "defect_rate": lambda v: isinstance(v, int | float) and 0 <= v <= 1,
     "clock": lambda v: v in ("real", "virtual"),
+    "faults": lambda v: isinstance(v, list),
 }
+# The fault schedule's vocabulary (simulator/faults.py; a test keeps the two equal). Only the
+# shape is checked here, with file:line; the simulator checks the values when it starts.
+FAULT_KINDS = ("no-reply", "late-reply", "close", "garbage")
+FAULT_KINDS += ("error", "lid-open", "device-open", "device-short")
+FAULT_KEYS = ("kind", "on", "after", "channel", "delay", "code", "count", "chance")
 
 
 def _simulator_options(source: Source, value: Any) -> tuple[tuple[str, object], ...]:
@@ -320,9 +326,38 @@ def _simulator_options(source: Source, value: Any) -> tuple[tuple[str, object], 
         if key in fields.data:
             item = fields.raw(key)
             fields.check(valid(item) and not isinstance(item, bool), key, f"is invalid ({item!r})")
+            if key == "faults":
+                item = _faults(source, item)
             out.append((key, item))
     fields.finish()
     return tuple(out)
+
+
+def _faults(source: Source, items: list[Any]) -> tuple[object, ...]:
+    return tuple(_fault(source, f"simulator.faults[{n}]", item) for n, item in enumerate(items))
+
+
+def _fault(source: Source, where: str, item: Any) -> object:
+    """One scheduled simulator fault: text 'kind:key=value,...' or a mapping of FAULT_KEYS."""
+    kinds = ", ".join(FAULT_KINDS)
+    if isinstance(item, str):
+        kind = item.partition(":")[0].strip().lower()
+        if kind not in FAULT_KINDS:
+            raise source.error(where, f"must start with a fault kind ({kinds}), got {item!r}")
+        return item
+    if isinstance(item, dict) and "True" in item:  # YAML 1.1 reads a bare `on:` key as true
+        item = {("on" if key == "True" else key): value for key, value in item.items()}
+    fields = _Fields.at(source, where, item)
+    kind = fields.text("kind")
+    fields.check(kind in FAULT_KINDS, "kind", f"must be one of {kinds} (got {kind!r})")
+    for key in FAULT_KEYS[1:]:
+        if key in fields.data:
+            value = fields.raw(key)
+            ok = isinstance(value, str | int | float) and not isinstance(value, bool)
+            fields.check(ok, key, f"must be a number or text (got {_show(value)})")
+    fields.used.update(FAULT_KEYS)
+    fields.finish()
+    return dict(item)
 
 
 # --- recipe -------------------------------------------------------------------------------------
