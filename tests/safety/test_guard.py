@@ -110,8 +110,9 @@ def test_an_instrument_that_does_not_hold_its_limit_stops_the_run(tmp_path, monk
     def overshoot(message: str):
         reply = real(message)
         if message.startswith("READ?") and reply:
-            volts, _, status = reply.replace(";", ",").split(",")
-            return f"{volts},+9.000000E-03;{status}"  # 9 mA against a 5 mA compliance
+            pair, *rest = reply.split(";")
+            volts = pair.split(",")[0]
+            return ";".join([f"{volts},+9.000000E-03", *rest])  # 9 mA against 5 mA compliance
         return reply
 
     bench.handler = overshoot
@@ -134,19 +135,18 @@ def test_a_lid_opened_mid_sweep_stops_at_the_next_hazardous_level(tmp_path, monk
     real, seen = bench.handler, []
 
     def lid_opens(message: str):
-        if (m := SET_VOLTAGE.match(message)) and float(m.group(1)) == 45.0:
+        reply = real(message)
+        if (m := SET_VOLTAGE.match(message)) and float(m.group(1)) == 40.0 and not seen:
             seen.append(message)
-            bench.session.handle("SIM:LID OPEN")  # the operator lifts the lid at 45 V
-        return real(message)
+            bench.session.handle("SIM:LID OPEN")  # the operator lifts the lid at 40 V
+        return reply
 
     bench.handler = lid_opens
     code, _, rows = run_loop(tmp_path, monkeypatch, bench, recipe=HAZARD)
     assert seen and code == 3
-    assert "the fixture interlock reads open" in rows[0]["reasons"]
+    assert "refused 45 V: the fixture interlock reads open" in rows[0]["reasons"]
     assert len(rows) == 1  # an interlock trip always stops the run
-    levels = bench.levels_sent()
-    assert max(levels) == 45.0  # 50 V was refused by the guard, never sent
-    assert bench.instrument.smu.max_applied_v() == 40.0  # and 45 V was refused by the lid
+    assert max(bench.levels_sent()) == 40.0  # 45 V was refused by the guard, never sent
     assert_output_off(bench)
 
 

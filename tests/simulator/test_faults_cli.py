@@ -35,6 +35,7 @@ RECIPE = """product: FLC-1.8 fault test
 lot: FK-FAULT
 station: station.yaml
 nplc: 1
+hazardous_voltage: acknowledged
 steps:
   - sweep: {{name: iv, start: 0 V, stop: {stop} V, points: {points}, compliance: 5 mA}}
 judge:
