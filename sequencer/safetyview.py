@@ -10,11 +10,16 @@ from .plan import Plan
 from .recipe import Recipe
 from .units import format_si
 
-LAYER = {"station": "station", "recipe": "recipe"}
+LAYER = {
+    "station": "station",
+    "recipe": "recipe",
+    "peak operating voltage": "ratings (POV)",
+    "dissipation": "ratings (PD)",
+}
 
 
 def _layer(bound: Bound) -> str:
-    return LAYER.get(bound.source, f"device rating ({bound.source})")
+    return LAYER.get(bound.source, bound.source)
 
 
 def limits_table(recipe: Recipe, plan: Plan) -> Table:
@@ -26,11 +31,11 @@ def limits_table(recipe: Recipe, plan: Plan) -> Table:
     device_peak = max(lim.device_power_w(s.peak_voltage_v, s.compliance_a) for s in plan.segments)
     rows = [
         ("voltage", lim.voltage, "V", plan.peak_voltage_v),
-        ("current (compliance)", lim.current, "A", max(s.compliance_a for s in plan.segments)),
-        ("power (V x compliance)", lim.power, "W", plan.peak_power_w),
+        ("compliance", lim.current, "A", max(s.compliance_a for s in plan.segments)),
+        ("V x compliance", lim.power, "W", plan.peak_power_w),
     ]
     if lim.dissipation is not None:
-        rows.append(("device dissipation", lim.dissipation, "W", device_peak))
+        rows.append(("dissipation", lim.dissipation, "W", device_peak))
     for name, bound, unit, peak in rows:
         table.add_row(name, format_si(bound.value, unit), _layer(bound), format_si(peak, unit))
     hazardous = plan.peak_voltage_v > lim.touch_safe_v
@@ -38,6 +43,6 @@ def limits_table(recipe: Recipe, plan: Plan) -> Table:
         "touch-safe voltage",
         format_si(lim.touch_safe_v, "V"),
         "station",
-        "above: interlock and acknowledgement needed" if hazardous else "not exceeded",
+        "above: interlock + ack" if hazardous else "not exceeded",
     )
     return table

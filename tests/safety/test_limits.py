@@ -115,8 +115,8 @@ def test_check_shows_the_effective_limits_and_who_set_them(tmp_path):
     code, text = run_main("check", str(path))
     assert code == 0, text
     rows = {line.split("│")[1].strip(): line for line in text.splitlines() if "│" in line}
-    assert "35 V" in rows["voltage"] and "device rating (peak operating voltage)" in rows["voltage"]
-    assert "20 mA" in rows["current (compliance)"] and "station" in rows["current (compliance)"]
-    assert "200 mW" in rows["power (V x compliance)"] and "recipe" in rows["power (V x compliance)"]
+    assert "35 V" in rows["voltage"] and "ratings (POV)" in rows["voltage"]
+    assert "20 mA" in rows["compliance"] and "station" in rows["compliance"]
+    assert "200 mW" in rows["V x compliance"] and "recipe" in rows["V x compliance"]
     # 30 V x 5 mA = 150 mW: the plan peak sits exactly on the rated dissipation
-    assert "150 mW" in rows["device dissipation"]
+    assert "150 mW" in rows["dissipation"] and "ratings (PD)" in rows["dissipation"]

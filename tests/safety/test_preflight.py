@@ -82,7 +82,7 @@ def test_the_acknowledgement_may_come_from_the_command_line(tmp_path):
     assert run_main("check", str(path))[0] == 3
     code, text = run_main("check", str(path), "--allow-hazardous-voltage")
     assert code == 0, text
-    assert "above: interlock and acknowledgement needed" in text
+    assert "above: interlock + ack" in text
 
 
 def test_every_level_is_checked_not_only_the_last(tmp_path):
