@@ -124,7 +124,10 @@ def points_in_step(out: Path) -> bool:
 
 
 def test_late_reply_aborts_the_device_and_the_next_run_is_in_step(bench):
-    b = bench("late-reply:on=READ?,after=35,delay=0.8")  # the 5th point of device 2
+    # the 5th point of device 2. The delay is far beyond timeout + drain + probe (about 0.8 s
+    # after the READ?), so the transport always takes a fresh link; at 0.8 s it was a race of
+    # a few ms, and on losing it the old link's queued OUTP OFF landed in the middle of run 2.
+    b = bench("late-reply:on=READ?,after=35,delay=2")
     with b.connect() as conn:
         error, out = b.run(conn)
         assert isinstance(error, InstrumentTimeout)
