@@ -118,9 +118,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
                 spy_log=log,
                 sim_options=recipe.station.simulator_options if resource == "sim" else None,
             )
-            store.set_identity(conn.resource, conn.identity)
 
             def measure(guard):
+                store.set_identity(conn.resource, conn.identity)
                 return _measure(console, recipe, plan, conn.smu, store, guard)
 
             def announce(text):
@@ -135,7 +135,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         raise
     except (KeyboardInterrupt, Terminated) as exc:
         status = "interrupted"
-        raise Stopped(f"{exc}; {bench.ending()}; what was measured is kept in {out}") from None
+        why = str(exc) or f"stopped by {'SIGTERM' if isinstance(exc, Terminated) else 'Ctrl-C'}"
+        raise Stopped(f"{why}; {bench.ending()}; what was measured is kept in {out}") from None
     except Exception as exc:  # a bug (in the judge, say): still one line, the output state in it
         (out / "traceback.txt").write_text(traceback.format_exc(), encoding="utf-8")
         detail = f"internal error ({type(exc).__name__}: {exc}); {bench.ending()}"
