@@ -73,6 +73,9 @@ class Connection:
         """
         if self.closed:
             raise InstrumentError(self.resource, None, "the connection is closed", hint="connect")
+        return self._reopen()
+
+    def _reopen(self) -> ScpiSmu:
         self.smu.close()
         transport = _open(self.resource, self._timeout_s, self._spy_log)
         smu = ScpiSmu(transport, self.smu.dialect)
@@ -89,17 +92,29 @@ class Connection:
         return smu
 
     def close(self) -> None:
-        """Safe state (output off, 0 V; never raises), close the link, stop the simulator."""
+        """Safe state (output off, 0 V; never raises), close the link, stop the simulator.
+
+        If the safe state cannot be sent (the instrument dropped the link), the resource is
+        opened once more, only to send it: an output must not stay on because a socket broke.
+        """
         if self.closed:
             return
         self.closed = True
         try:
-            if not self.smu.safe_state():
+            if not self.smu.safe_state() and not self._safe_state_on_new_link():
                 log.warning("%s: closed without confirming the output is off", self.resource)
             self.smu.close()
         finally:
             if self._simulator is not None:
                 self._simulator.stop()
+
+    def _safe_state_on_new_link(self) -> bool:
+        try:
+            smu = self._reopen()
+        except Exception as exc:  # closing must not raise; the warning says what is at stake
+            log.warning("%s: could not reconnect to switch the output off: %s", self.resource, exc)
+            return False
+        return smu.safe_state()
 
 
 def connect(

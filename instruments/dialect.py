@@ -34,7 +34,7 @@ REQUIRED = frozenset(
     {"name", "identify", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
     | {"measure", "measure_fields"}
 )
-MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
+MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "errors", "ignore"})
 
 
 @dataclass(frozen=True)
@@ -201,8 +201,9 @@ def _check_measure(values: dict[str, Any], lines: dict[str, int], source: str | 
     for name in ("voltage", "current"):
         if names.count(name) != 1:
             raise DialectError(source, "measure_fields", line, f"needs {name!r} exactly once")
-    if names.count("status") > 1:
-        raise DialectError(source, "measure_fields", line, "has 'status' more than once")
+    for name in ("status", "errors"):
+        if names.count(name) > 1:
+            raise DialectError(source, "measure_fields", line, f"has {name!r} more than once")
     if values["compliance_bit"] is not None and "status" not in names:
         detail = "compliance_bit is set but measure_fields has no 'status' field"
         raise DialectError(source, "compliance_bit", lines.get("compliance_bit"), detail)

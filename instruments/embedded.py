@@ -24,7 +24,7 @@ from typing import IO
 from instruments.errors import InstrumentError
 
 OPTION_NAMES = frozenset(
-    {"seed", "devices", "preset", "spread", "defect_rate", "clock", "line_frequency"}
+    {"seed", "devices", "preset", "spread", "defect_rate", "clock", "line_frequency", "faults"}
 )
 START_TIMEOUT_S = 20.0
 _RESOURCE_LINE = re.compile(r"TCPIP0::127\.0\.0\.1::\d+::SOCKET")
@@ -128,8 +128,28 @@ def simulator_command(options: Mapping[str, object], *, module: str = "simulator
             known = ", ".join(sorted(OPTION_NAMES))
             hint = f"use one of: {known}"
             raise InstrumentError("sim", None, f"unknown simulator option {key!r}", hint=hint)
-        command += [f"--{key.replace('_', '-')}", str(value)]
+        if key == "faults":
+            command += [arg for item in _fault_list(value) for arg in ("--fault", item)]
+        else:
+            command += [f"--{key.replace('_', '-')}", str(value)]
     return command
+
+
+def _fault_list(value: object) -> list[str]:
+    """Each fault of a station's `simulator: faults:` list in the `--fault` text form."""
+    items = value if isinstance(value, list | tuple) else [value]
+    return [item if isinstance(item, str) else _fault_text(item) for item in items]
+
+
+def _fault_text(item: object) -> str:
+    if not isinstance(item, Mapping) or "kind" not in item:
+        detail = f"a fault must be a mapping with a 'kind', or text (got {item!r})"
+        raise InstrumentError("sim", None, detail, hint="see the fault keys in DEVELOPERS.md")
+    pairs = [f"{key}={val}" for key, val in item.items() if key != "kind"]
+    if any("," in pair for pair in pairs):
+        detail = f"a fault value may not contain ',' (got {item!r})"
+        raise InstrumentError("sim", None, detail, hint="join alternative headers with '|'")
+    return f"{item['kind']}" + (":" + ",".join(pairs) if pairs else "")
 
 
 def _child_env() -> dict[str, str]:

@@ -135,7 +135,12 @@ class ScpiSmu:
         return self._parse("output_query", self._query("output_query"), parse_bool)
 
     def measure(self) -> Reading:
-        """One reading with one query; compliance from the status bit the dialect names."""
+        """One reading with one query; compliance from the status bit the dialect names.
+
+        When the reply also carries the error-queue count (field `errors`), a non-zero count
+        drains the queue and raises ScpiError instead of returning the reading: a level the
+        instrument refused, or an event such as an interlock trip, is caught at the next point.
+        """
         if self._settle_s:
             self._sleep(self._settle_s)
         reply = self._query("measure")
@@ -145,6 +150,8 @@ class ScpiSmu:
             detail = f"reply {reply!r} has {len(fields)} fields, the dialect expects {list(names)}"
             raise ReplyError(self.resource, self.dialect.measure, detail)
         values = dict(zip(names, fields, strict=True))
+        if "errors" in values and self._parse("measure", values["errors"], parse_int):
+            self.check_errors()  # a refused level or an instrument event: this point is not data
         voltage = self._parse("measure", values["voltage"], parse_number)
         current = self._parse("measure", values["current"], parse_number)
         return Reading(voltage, current, self._in_compliance(values, current))

@@ -8,7 +8,8 @@ every exchange.
 
 pyvisa-py facts this module works around (measured, see SCPI.md):
 - a late reply after a timeout would be read as the answer to the next query, for good: after a
-  timeout the transport is marked out of step and resynchronised before its next query;
+  timeout the transport is marked out of step and resynchronised before its next query (drain,
+  then *IDN? until its own answer comes back; if even that times out, a fresh link);
 - a peer that closed the socket looks like a slow instrument (the read spins until the timeout):
   a query first waits for the socket itself and peeks, so a closed peer is reported at once;
 - a refused connection opens fine and only fails on the first write: `open_visa` asks `*IDN?`.
@@ -106,9 +107,20 @@ def _resource_manager() -> pyvisa.ResourceManager:
 
 def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
     """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers *IDN?."""
-    millis = round(check_timeout(timeout_s) * 1000)
+    inst = _open_resource(resource, check_timeout(timeout_s))
+    transport = VisaTransport(inst, resource, timeout_s)
     try:
-        inst = _resource_manager().open_resource(
+        transport.learn_probe()
+    except BaseException:
+        transport.close()
+        raise
+    return transport
+
+
+def _open_resource(resource: str, timeout_s: float) -> Any:
+    millis = round(timeout_s * 1000)
+    try:
+        return _resource_manager().open_resource(
             resource,
             read_termination="\n",
             write_termination="\n",
@@ -117,13 +129,6 @@ def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
         )
     except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
         raise _open_error(resource, exc) from exc
-    transport = VisaTransport(inst, resource, timeout_s)
-    try:
-        transport.learn_probe()
-    except BaseException:
-        transport.close()
-        raise
-    return transport
 
 
 def _open_error(resource: str, exc: Exception) -> InstrumentError:
@@ -140,9 +145,15 @@ class VisaTransport:
     """A Transport over a pyvisa message-based resource; use `open_visa` to make one."""
 
     def __init__(self, inst: Any, resource: str, timeout_s: float) -> None:
-        self._inst = inst
         self.resource = resource
         self._timeout_s = check_timeout(timeout_s)
+        self._attach(inst)
+        self._probe_reply: str | None = None
+        self._out_of_step = False
+        self._closed = False
+
+    def _attach(self, inst: Any) -> None:
+        self._inst = inst
         self._session = _pyvisa_py_session(inst)
         self._socket = _tcp_socket(self._session)
         if self._socket is not None:
@@ -150,9 +161,6 @@ class VisaTransport:
             # command followed by a query then waits for the peer's delayed ACK: about 40 ms a
             # point, measured here. Setting the option on its socket removes the stall.
             self._socket.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-        self._probe_reply: str | None = None
-        self._out_of_step = False
-        self._closed = False
 
     @property
     def timeout_s(self) -> float:
@@ -312,11 +320,28 @@ class VisaTransport:
         return decode_payload(payload[:-1], dtype)
 
     def _resync(self, command: str) -> None:
+        """Drop stale input, then prove the stream is in step with the probe. A reply later
+        than the probe's own timeout cannot be waited out: a fresh link carries none of it."""
         self._drain(command)
         if self._probe_reply is not None:
-            self._inst.write(PROBE)
-            self._await_probe(command)
+            try:
+                self._probe(command)
+            except InstrumentTimeout:
+                log.warning("%s: no answer while resynchronising; reconnecting", self.resource)
+                self._reopen()
+                self._probe(command)
         self._out_of_step = False
+
+    def _probe(self, command: str) -> None:
+        self._inst.write(PROBE)
+        self._await_probe(command)
+
+    def _reopen(self) -> None:
+        try:
+            self._inst.close()
+        except Exception as exc:  # the old link may be half broken; the new one matters
+            log.debug("closing the old link to %s: %r", self.resource, exc)
+        self._attach(_open_resource(self.resource, self._timeout_s))
 
     def _await_probe(self, command: str) -> None:
         for _ in range(_MAX_STALE):

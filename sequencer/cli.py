@@ -8,32 +8,38 @@ import getpass
 import json
 import os
 import platform
-import signal
 import subprocess
 import sys
+import traceback
 from collections.abc import Sequence
 from pathlib import Path
 
 from rich.console import Console
 
 from . import __version__, judgecmd, reportcmd
-from .errors import CcbenchError, RunError, SafetyError
+from .benchrun import GATE, Bench, Terminated, on_bench
+from .errors import CcbenchError, RunError
 from .lotrun import run_lot
 from .plan import make_plan
 from .recipe import Recipe, load_recipe
-from .safety import CAUTION, is_hazardous, preflight
+from .safety import CAUTION, check_hazard, is_hazardous, preflight
+from .safetyview import limits_table
 from .store import RunStore
 from .view import device_line, plan_summary, plan_table, progress_bar, summary_table
 
 EXIT_INTERRUPTED = 130
 
 
-class Terminated(BaseException):
-    """SIGTERM, turned into an exception so that every `finally` switches the output off."""
+class Stopped(CcbenchError):
+    """Ctrl-C or SIGTERM ended a run; the message says how the output was left."""
+
+    exit_code = EXIT_INTERRUPTED
 
 
-def _on_sigterm(signum, frame) -> None:
-    raise Terminated()
+HAZARD_HELP = (
+    "acknowledge levels above the station's touch-safe voltage (instead of the recipe's "
+    "'hazardous_voltage: acknowledged')"
+)
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -50,10 +56,12 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
+    run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
 
     check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
     check.add_argument("recipe", type=Path)
     check.add_argument("--station", type=Path, help="station file instead of the recipe's")
+    check.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
 
     judgecmd.add_parsers(sub)
     reportcmd.add_parser(sub)
@@ -69,26 +77,24 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None, console: Console | None = None) -> int:
     console = console or Console(highlight=False)
     args = build_parser().parse_args(argv)
-    signal.signal(signal.SIGTERM, _on_sigterm)
     try:
-        return COMMANDS[args.command](args, console)
+        with GATE.installed():  # the first SIGINT/SIGTERM raises; more cannot cut a shutdown
+            return COMMANDS[args.command](args, console)
     except CcbenchError as exc:
         console.print(f"[bold red]ccbench:[/] {exc}", soft_wrap=True)
         return exc.exit_code
     except (KeyboardInterrupt, Terminated) as exc:
         what = "Ctrl-C" if isinstance(exc, KeyboardInterrupt) else "SIGTERM"
-        console.print(
-            f"[bold yellow]ccbench:[/] stopped by {what}; output switched off, results kept",
-            soft_wrap=True,
-        )
+        console.print(f"[bold yellow]ccbench:[/] stopped by {what}", soft_wrap=True)
         return EXIT_INTERRUPTED
 
 
 def cmd_check(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
-    preflight(plan, recipe.station.limits)
+    _preflight(recipe, plan, args)
     console.print(plan_table(recipe, plan))
+    console.print(limits_table(recipe, plan))
     console.print(plan_summary(recipe, plan), soft_wrap=True)
     console.print(f"{recipe.file}: valid; within the limits of station {recipe.station.name}")
     return 0
@@ -99,15 +105,15 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
 
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
-    preflight(plan, recipe.station.limits)
+    _preflight(recipe, plan, args)  # refuses before anything is started or opened
     resource = "sim" if args.sim else recipe.station.resource
     _cautions(console, recipe, plan)
     console.print(plan_summary(recipe, plan), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
     store = RunStore.create(out, _manifest(recipe, args, resource))
-    status = "failed"
+    status, bench = "failed", Bench()
     try:
-        with open(out / "scpi.log", "w", encoding="utf-8") as log:
+        with open(out / "scpi.log", "w", encoding="utf-8") as log, GATE.held():
             conn = connect(
                 resource,
                 dialect=recipe.station.dialect,
@@ -115,26 +121,38 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
                 spy_log=log,
                 sim_options=recipe.station.simulator_options if resource == "sim" else None,
             )
-            with conn:
+
+            def measure(guard):
                 store.set_identity(conn.resource, conn.identity)
-                console.print(f"instrument: {conn.identity} at {conn.resource}", soft_wrap=True)
-                conn.smu.safe_state()
-                summary = _measure(console, recipe, plan, conn.smu, store)
+                return _measure(console, recipe, plan, conn.smu, store, guard)
+
+            def announce(text):
+                console.print(text, soft_wrap=True)
+
+            summary = on_bench(conn, recipe, plan, measure, bench, GATE, announce)
         status = summary.status
     except InstrumentError as exc:
-        raise RunError(f"instrument: {exc}") from None
-    except (KeyboardInterrupt, Terminated):
-        status = "interrupted"
+        raise RunError(f"instrument: {exc}; {bench.ending()}") from None
+    except CcbenchError as exc:
+        exc.message = f"{exc.message}; {bench.ending()}"
         raise
+    except (KeyboardInterrupt, Terminated) as exc:
+        status = "interrupted"
+        why = str(exc) or f"stopped by {'SIGTERM' if isinstance(exc, Terminated) else 'Ctrl-C'}"
+        raise Stopped(f"{why}; {bench.ending()}; what was measured is kept in {out}") from None
+    except Exception as exc:  # a bug (in the judge, say): still one line, the output state in it
+        (out / "traceback.txt").write_text(traceback.format_exc(), encoding="utf-8")
+        detail = f"internal error ({type(exc).__name__}: {exc}); {bench.ending()}"
+        raise RunError(f"{detail}; details in {out / 'traceback.txt'}") from None
     finally:
         store.finish(status, _now())
     console.print(summary_table(summary))
     reportcmd.after_run(console, out)
-    console.print(f"results: {out / 'devices.csv'}", soft_wrap=True)
+    console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
     return 0
 
 
-def _measure(console, recipe, plan, smu, store):
+def _measure(console, recipe, plan, smu, store, guard):
     with progress_bar(console) as progress:
         task = progress.add_task("devices", total=len(plan.channels))
 
@@ -142,22 +160,31 @@ def _measure(console, recipe, plan, smu, store):
             progress.console.print(device_line(done), soft_wrap=True)
             progress.advance(task)
 
-        return run_lot(recipe, plan, smu, store, shown)
+        return run_lot(recipe, plan, smu, store, shown, guard=guard)
+
+
+def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:
+    """Every planned level against the effective limits, then the hazardous-voltage rules."""
+    limits = preflight(plan, recipe.effective_limits)
+    check_hazard(
+        plan,
+        limits,
+        station=recipe.station.name,
+        interlocked=recipe.station.interlocked_fixture,
+        acknowledged=recipe.hazardous_voltage_acknowledged or args.allow_hazardous_voltage,
+    )
 
 
 def _cautions(console: Console, recipe: Recipe, plan) -> None:
     console.print(f"[yellow]{CAUTION}[/]", soft_wrap=True)
-    if is_hazardous(plan, recipe.station.limits):
-        if not recipe.station.interlocked_fixture:
-            raise SafetyError(
-                f"the plan reaches {plan.peak_voltage_v:g} V, above the touch-safe "
-                f"{recipe.station.limits.touch_safe_v:g} V, but station "
-                f"{recipe.station.name} declares no interlocked fixture"
-            )
+    limits = recipe.effective_limits
+    if is_hazardous(plan, limits):
+        how = "in the recipe" if recipe.hazardous_voltage_acknowledged else "on the command line"
         console.print(
             f"[bold red]HAZARDOUS VOLTAGE:[/] this run applies up to {plan.peak_voltage_v:g} V "
-            f"(touch-safe limit {recipe.station.limits.touch_safe_v:g} V). The fixture lid must "
-            "stay closed; the run stops if the interlock opens.",
+            f"(touch-safe limit {limits.touch_safe_v:g} V; acknowledged {how}). The fixture "
+            "lid must stay closed; the interlock is read before every such level and the run "
+            "stops if it opens.",
             soft_wrap=True,
         )
 

@@ -14,7 +14,7 @@ from .judge import Judgement, judge_curve, with_bin
 from .plan import Plan
 from .recipe import FIGURES, Recipe
 from .runner import Recorder, Smu, measure_device
-from .safety import Guard
+from .safety import Guard, Trip, no_clamp_steps
 from .store import RunStore
 
 
@@ -77,10 +77,12 @@ def run_lot(
     store: RunStore,
     on_device: Callable[[DeviceDone], None],
     clock: Callable[[], float] = time.monotonic,
+    guard: Guard | None = None,
 ) -> RunSummary:
-    """Measure every channel of the plan in order. A safety stop or instrument failure ends
-    the run after the partial device is stored as aborted; the exception then propagates."""
-    guard = Guard(recipe.station.limits, smu.interlock_closed)
+    """Measure every channel of the plan in order. Whatever ends a device early, its output is
+    already off (runner) and its partial curve is stored as aborted with the reason. A device
+    trip with `on_trip: skip` then goes on to the next device; anything else propagates."""
+    guard = guard or make_guard(recipe, smu)
     summary = RunSummary(total=len(plan.channels))
     start = clock()
     for index, channel in enumerate(plan.channels):
@@ -96,6 +98,8 @@ def run_lot(
             summary.count(judgement)
             on_device(DeviceDone(index, len(plan.channels), curve, judgement, clock() - t0))
             summary.seconds = clock() - start
+            if skips(exc, recipe):
+                continue
             raise
         curve = recorder.curve(device, channel, plan)
         judgement = judge_curve(curve, recipe.judge)
@@ -105,6 +109,16 @@ def run_lot(
     summary.seconds = clock() - start
     summary.status = "completed"
     return summary
+
+
+def make_guard(recipe: Recipe, smu: Smu) -> Guard:
+    """The run's guard: effective limits, the SMU's interlock, the steps that must not clamp."""
+    return Guard(recipe.effective_limits, smu.interlock_closed, no_clamp_steps(recipe.steps))
+
+
+def skips(exc: BaseException, recipe: Recipe) -> bool:
+    """Whether the run goes on after `exc` ended a device: only a device trip under `skip`."""
+    return isinstance(exc, Trip) and exc.scope == "device" and recipe.on_trip == "skip"
 
 
 def aborted(device: str, exc: BaseException) -> Judgement:

@@ -8,14 +8,27 @@ from __future__ import annotations
 
 import hashlib
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from .fields import Fields as _Fields
 from .fields import positive as _positive
+from .fields import show as _show
 from .judgeconfig import parse_accuracy, parse_judge
 from .judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
+from .limits import (
+    ON_COMPLIANCE,
+    ON_TRIP,
+    EffectiveLimits,
+    Ratings,
+    RecipeLimits,
+    effective_limits,
+    parse_acknowledgement,
+    parse_choice,
+    parse_ratings,
+    parse_recipe_limits,
+)
 from .uncertainty import DEFAULT_ACCURACY, Accuracy
 from .yamlsource import Source, load_yaml
 
@@ -29,7 +42,11 @@ class Limits:
     max_voltage_v: float
     max_current_a: float
     max_power_w: float
-    touch_safe_v: float = 42.0  # common practice, no source (IEC 61010-1 thresholds are higher)
+    # Above this a level is hazardous: interlocked fixture, closed lid and an acknowledgement.
+    # 42 V is common practice, no source. Beside it, IEC 61010-1 calls accessible parts
+    # hazardous live above 33 V rms, 46.7 V peak or 70 V d.c. (from memory; verify against the
+    # standard, REFERENCES.md s4).
+    touch_safe_v: float = 42.0
 
     def __post_init__(self) -> None:
         for name in ("max_voltage_v", "max_current_a", "max_power_w", "touch_safe_v"):
@@ -65,6 +82,7 @@ class SweepStep:
     points: int
     compliance_a: float
     settle_s: float
+    on_compliance: str = "flag"  # "trip": this step must not clamp; a hit trips the guard
 
     def __post_init__(self) -> None:
         if self.points < 2:
@@ -78,6 +96,7 @@ class SpotStep:
     compliance_a: float
     repeats: int
     settle_s: float
+    on_compliance: str = "flag"
 
     def __post_init__(self) -> None:
         if self.repeats < 1:
@@ -98,6 +117,15 @@ class Recipe:
     judge: JudgeSettings
     operator: str = ""
     text: str = ""
+    limits: RecipeLimits = field(default_factory=RecipeLimits)
+    ratings: Ratings = field(default_factory=Ratings)
+    on_trip: str = "stop"  # after a device trip: "stop" the run, or "skip" to the next device
+    hazardous_voltage_acknowledged: bool = False
+
+    @property
+    def effective_limits(self) -> EffectiveLimits:
+        """The smallest of station, recipe and device-rating limits (sequencer.limits)."""
+        return effective_limits(self.station.limits, self.limits, self.ratings)
 
     @property
     def digest(self) -> str:
@@ -182,7 +210,13 @@ SIM_KEYS: dict[str, Callable[[Any], bool]] = {
     "spread": lambda v: isinstance(v, int | float) and 0 <= v <= 10,
     "defect_rate": lambda v: isinstance(v, int | float) and 0 <= v <= 1,
     "clock": lambda v: v in ("real", "virtual"),
+    "faults": lambda v: isinstance(v, list),
 }
+# The fault schedule's vocabulary (simulator/faults.py; a test keeps the two equal). Only the
+# shape is checked here, with file:line; the simulator checks the values when it starts.
+FAULT_KINDS = ("no-reply", "late-reply", "close", "garbage")
+FAULT_KINDS += ("error", "lid-open", "device-open", "device-short")
+FAULT_KEYS = ("kind", "on", "after", "channel", "delay", "code", "count", "chance")
 
 
 def _simulator_options(source: Source, value: Any) -> tuple[tuple[str, object], ...]:
@@ -192,9 +226,38 @@ def _simulator_options(source: Source, value: Any) -> tuple[tuple[str, object], 
         if key in fields.data:
             item = fields.raw(key)
             fields.check(valid(item) and not isinstance(item, bool), key, f"is invalid ({item!r})")
+            if key == "faults":
+                item = _faults(source, item)
             out.append((key, item))
     fields.finish()
     return tuple(out)
+
+
+def _faults(source: Source, items: list[Any]) -> tuple[object, ...]:
+    return tuple(_fault(source, f"simulator.faults[{n}]", item) for n, item in enumerate(items))
+
+
+def _fault(source: Source, where: str, item: Any) -> object:
+    """One scheduled simulator fault: text 'kind:key=value,...' or a mapping of FAULT_KEYS."""
+    kinds = ", ".join(FAULT_KINDS)
+    if isinstance(item, str):
+        kind = item.partition(":")[0].strip().lower()
+        if kind not in FAULT_KINDS:
+            raise source.error(where, f"must start with a fault kind ({kinds}), got {item!r}")
+        return item
+    if isinstance(item, dict) and "True" in item:  # YAML 1.1 reads a bare `on:` key as true
+        item = {("on" if key == "True" else key): value for key, value in item.items()}
+    fields = _Fields.at(source, where, item)
+    kind = fields.text("kind")
+    fields.check(kind in FAULT_KINDS, "kind", f"must be one of {kinds} (got {kind!r})")
+    for key in FAULT_KEYS[1:]:
+        if key in fields.data:
+            value = fields.raw(key)
+            ok = isinstance(value, str | int | float) and not isinstance(value, bool)
+            fields.check(ok, key, f"must be a number or text (got {_show(value)})")
+    fields.used.update(FAULT_KEYS)
+    fields.finish()
+    return dict(item)
 
 
 # --- recipe -------------------------------------------------------------------------------------
@@ -214,9 +277,22 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     top.check(0.01 <= nplc <= 10, "nplc", f"must be 0.01 to 10 power-line cycles (got {nplc})")
     steps = _steps(source, top.raw("steps"))
     judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
+    safety = _safety_settings(source, top, station)
     top.finish()
     text = path.read_text(encoding="utf-8")
-    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text)
+    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text, **safety)
+
+
+def _safety_settings(source: Source, top: _Fields, station: Station) -> dict[str, Any]:
+    """The recipe's optional safety keys: limits, ratings, on_trip, hazardous_voltage."""
+    return {
+        "limits": parse_recipe_limits(source, top.raw("limits", None), station.limits),
+        "ratings": parse_ratings(source, top.raw("ratings", None)),
+        "on_trip": parse_choice(source, "on_trip", top.raw("on_trip", "stop"), ON_TRIP),
+        "hazardous_voltage_acknowledged": parse_acknowledgement(
+            source, top.raw("hazardous_voltage", None)
+        ),
+    }
 
 
 def _steps(source: Source, value: Any) -> tuple[Step, ...]:
@@ -265,8 +341,9 @@ def _sweep(f: _Fields, index: int) -> SweepStep:
     compliance = _positive(f, "compliance", "current")
     settle = f.quantity("settle", "time", "0 s")
     f.check(0 <= settle <= 10, "settle", f"must be 0 to 10 s (got {settle} s)")
+    clamp = _on_compliance(f)
     f.finish()
-    return SweepStep(name, start, stop, points, compliance, settle)
+    return SweepStep(name, start, stop, points, compliance, settle, clamp)
 
 
 def _spot(f: _Fields, index: int) -> SpotStep:
@@ -277,5 +354,13 @@ def _spot(f: _Fields, index: int) -> SpotStep:
     f.check(1 <= repeats <= 10_000, "repeats", f"must be 1 to 10000 (got {repeats})")
     settle = f.quantity("settle", "time", "0 s")
     f.check(0 <= settle <= 10, "settle", f"must be 0 to 10 s (got {settle} s)")
+    clamp = _on_compliance(f)
     f.finish()
-    return SpotStep(name, voltage, compliance, repeats, settle)
+    return SpotStep(name, voltage, compliance, repeats, settle, clamp)
+
+
+def _on_compliance(f: _Fields) -> str:
+    """`flag` (default): a clamped point is kept, marked, and left out of the figures;
+    `trip`: the step must not clamp, so a hit trips the guard like an over-power reading."""
+    value = f.raw("on_compliance", "flag")
+    return parse_choice(f.source, f.where("on_compliance"), value, ON_COMPLIANCE)

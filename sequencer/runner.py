@@ -1,8 +1,10 @@
-"""Execute a plan on one device through an SMU. Every level passes the guard; the output is
-ramped down and switched off on every way out of a device."""
+"""Execute a plan on one device through an SMU. Every level passes the guard before it is sent
+and every reading after it arrives; the output is ramped down and switched off on every way out
+of a device (a trip, an instrument error, a signal, the end)."""
 
 from __future__ import annotations
 
+import logging
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -13,6 +15,8 @@ import numpy as np
 from .curve import Curve
 from .plan import Plan
 from .safety import Guard
+
+log = logging.getLogger(__name__)
 
 RAMP_ABOVE_V = 5.0  # levels above this are stepped down before the output goes off
 RAMP_STEP_V = 5.0
@@ -35,6 +39,9 @@ class Smu(Protocol):
     def measure(self) -> Reading: ...
     def select_channel(self, channel: int) -> None: ...
     def interlock_closed(self) -> bool: ...
+    def check_errors(self) -> None: ...
+    def output_is_on(self) -> bool: ...
+    def safe_state(self) -> bool: ...
 
 
 @dataclass
@@ -87,11 +94,15 @@ def measure_device(
     recorder: Recorder,
     clock: Callable[[], float] = time.monotonic,
 ) -> None:
-    """Run every segment of the plan on one tray channel, filling `recorder`."""
+    """Run every segment of the plan on one tray channel, filling `recorder`.
+
+    A clamped reading is recorded with its flag (the judge leaves it out of the figures); the
+    guard trips on it only in a step that must not clamp. The instrument's error queue is read
+    after each step, so a refused command cannot pass unnoticed for longer than one step.
+    """
     smu.select_channel(channel)
-    guard.checked_interlock = False
     start = clock()
-    level = 0.0
+    guard.applied(0.0)
     try:
         output_on = False
         for index, seg in enumerate(plan.segments):
@@ -100,21 +111,37 @@ def measure_device(
             for volts in seg.levels_v:
                 guard.check_level(volts, seg.compliance_a)
                 smu.set_voltage(volts)
-                level = volts
+                guard.applied(volts)
                 if not output_on:
                     smu.output(True)
                     output_on = True
                 reading = smu.measure()
                 recorder.add(index, volts, reading, clock() - start)
-                guard.check_reading(reading.voltage_v, reading.current_a)
-    finally:
-        switch_off(smu, level)
+                guard.check_reading(seg.step, seg.compliance_a, reading)
+            smu.check_errors()
+    except BaseException:
+        _switch_off_after(smu, guard)
+        raise
+    switch_off(smu, guard.level_v, guard.applied)
 
 
-def switch_off(smu: Smu, level_v: float) -> None:
-    """Ramp down from `level_v` and switch the output off; the output-off is always attempted."""
+def _switch_off_after(smu: Smu, guard: Guard) -> None:
+    """Switch off while another error is on its way out: a failure here must not replace it
+    (the caller reads the output back and reconnects if needed)."""
+    try:
+        switch_off(smu, guard.level_v, guard.applied)
+    except Exception as exc:
+        log.warning("output off after an error failed too: %s", exc)
+
+
+def switch_off(
+    smu: Smu, level_v: float, applied: Callable[[float], None] = lambda volts: None
+) -> None:
+    """Ramp down from `level_v` and switch the output off; the output-off is always attempted,
+    even when a ramp step fails. `applied` hears of every level written."""
     try:
         for volts in ramp_levels(level_v):
             smu.set_voltage(volts)
+            applied(volts)
     finally:
         smu.output(False)

@@ -1,82 +1,211 @@
 """Limits checked before the wire: the whole plan before the output is ever switched on, and
-every level again, through one guard, as the runner sends it."""
+every level and reading again, through one guard, as the runner sends and receives them.
+
+The limits are the effective ones (sequencer.limits): the smallest of station, recipe and device
+ratings. A refusal names the step, the numbers and the layer whose limit it hit.
+"""
 
 from __future__ import annotations
 
-from collections.abc import Callable
-from dataclasses import dataclass
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from typing import Protocol
 
 from .errors import SafetyError
-from .plan import Plan
+from .limits import EffectiveLimits, as_effective
+from .plan import Plan, Segment
 from .recipe import Limits
+from .units import format_si
 
 CAUTION = (
     "Caution: an SMU output can carry hazardous voltage. Keep the fixture closed and interlocked, "
     "switch the output off before touching a device, and follow your local electrical codes and "
     "licensed practice."
 )
+# A reading may exceed the programmed compliance by the instrument's overshoot and noise; beyond
+# this it did not hold the limit (common practice, no source: SMUs specify about 0.1 % + offset).
+COMPLIANCE_SLACK = 1.05
+COMPLIANCE_SLACK_A = 1e-6
+VOLTAGE_SLACK = 1.02  # a reading this far above the highest level means the source misbehaves
+VOLTAGE_SLACK_V = 0.1
 
 
-def preflight(plan: Plan, limits: Limits) -> None:
-    """Refuse a plan that asks for more than the limits allow, naming the step and the numbers."""
+class Trip(SafetyError):
+    """The run-time guard stopped a device. `scope` is "device" when the device itself is at
+    fault (its reading, its clamping), so the recipe's `on_trip` decides whether the run goes on;
+    "run" when the bench is (interlock, a refused level, an instrument not holding its limit),
+    which always stops the run."""
+
+    def __init__(self, message: str, scope: str = "run") -> None:
+        super().__init__(message)
+        self.scope = scope
+
+
+# --- pre-flight -------------------------------------------------------------------------------
+
+
+def preflight(plan: Plan, limits: Limits | EffectiveLimits) -> EffectiveLimits:
+    """Refuse a plan that asks for more than the limits allow, naming the step and the numbers.
+
+    Every level of every step is checked (a step's peak is its worst point, since each check
+    grows with |V|). Returns the effective limits the plan was checked against.
+    """
+    effective = as_effective(limits)
     for seg in plan.segments:
-        where = f"step '{seg.step}'"
-        if seg.peak_voltage_v > limits.max_voltage_v:
-            raise SafetyError(
-                f"{where} reaches {seg.peak_voltage_v:g} V, above the station's maximum "
-                f"{limits.max_voltage_v:g} V; lower the step or raise the station limit"
-            )
-        if seg.compliance_a > limits.max_current_a:
-            raise SafetyError(
-                f"{where} sets compliance {seg.compliance_a * 1e3:g} mA, above the station's "
-                f"maximum {limits.max_current_a * 1e3:g} mA"
-            )
-        if seg.peak_power_w > limits.max_power_w:
-            raise SafetyError(
-                f"{where} could dissipate {seg.peak_voltage_v:g} V x "
-                f"{seg.compliance_a * 1e3:g} mA = {seg.peak_power_w * 1e3:.4g} mW, above the "
-                f"station's maximum {limits.max_power_w * 1e3:g} mW; lower the compliance"
-            )
+        _check_segment(seg, effective)
+    return effective
 
 
-def is_hazardous(plan: Plan, limits: Limits) -> bool:
-    return plan.peak_voltage_v > limits.touch_safe_v
+def _check_segment(seg: Segment, lim: EffectiveLimits) -> None:
+    where = f"step '{seg.step}'"
+    volts, comp = seg.peak_voltage_v, seg.compliance_a
+    if volts > lim.voltage.value:
+        raise SafetyError(
+            f"{where} reaches {volts:g} V, above {lim.voltage.describe('V')}; lower the step"
+            + (" or raise the station limit" if lim.voltage.source == "station" else "")
+        )
+    if comp > lim.current.value:
+        raise SafetyError(
+            f"{where} sets compliance {comp * 1e3:g} mA, above {lim.current.describe('A')}"
+        )
+    if volts * comp > lim.power.value:
+        raise SafetyError(
+            f"{where} could deliver {volts:g} V x {comp * 1e3:g} mA = "
+            f"{volts * comp * 1e3:.4g} mW, above {lim.power.describe('W')}; lower the compliance"
+        )
+    device_w = lim.device_power_w(volts, comp)
+    if lim.dissipation is not None and device_w > lim.dissipation.value:
+        current = min(comp, lim.worst_case_current_a or comp)
+        raise SafetyError(
+            f"{where} could dissipate {volts:g} V x {current * 1e3:g} mA = {device_w * 1e3:.4g} mW "
+            f"in the device, above {lim.dissipation.describe('W')}"
+        )
+
+
+def is_hazardous(plan: Plan, limits: Limits | EffectiveLimits) -> bool:
+    return plan.peak_voltage_v > as_effective(limits).touch_safe_v
+
+
+def check_hazard(
+    plan: Plan, limits: EffectiveLimits, *, station: str, interlocked: bool, acknowledged: bool
+) -> None:
+    """Levels above the touch-safe voltage need an interlocked fixture and an acknowledgement."""
+    if not is_hazardous(plan, limits):
+        return
+    step = next(s.step for s in plan.segments if s.peak_voltage_v > limits.touch_safe_v)
+    reach = (
+        f"step '{step}' reaches {plan.peak_voltage_v:g} V, above the touch-safe "
+        f"{limits.touch_safe_v:g} V"
+    )
+    if not interlocked:
+        raise SafetyError(f"{reach}, but station {station} declares no interlocked fixture")
+    if not acknowledged:
+        raise SafetyError(
+            f"{reach}: acknowledge it with 'hazardous_voltage: acknowledged' in the recipe or "
+            "--allow-hazardous-voltage on the command line"
+        )
+
+
+# --- the run-time guard -----------------------------------------------------------------------
 
 
 @dataclass
 class Guard:
-    """The one function every level passes through at run time.
+    """The one function every level passes through at run time, and every reading after it.
 
-    `interlock_closed` is asked before the first level above the touch-safe voltage of each
-    device; the runner resets `checked_interlock` when a new device is connected.
+    Before every level above the touch-safe voltage the interlock is read (`interlock_closed`),
+    so a lid opened mid-sweep stops the run at the next such level. `level_v` is the last level
+    the runner wrote (it reports each one through `applied`, ramp-down steps included), so a
+    shutdown from outside ramps down from where the output really is and never above it.
+    `no_clamp_steps` names the steps whose recipe says `on_compliance: trip`.
     """
 
-    limits: Limits
+    limits: Limits | EffectiveLimits
     interlock_closed: Callable[[], bool]
-    checked_interlock: bool = False
+    no_clamp_steps: frozenset[str] = frozenset()
+    level_v: float = 0.0
+    interlock_reads: int = field(default=0, repr=False)
+
+    def __post_init__(self) -> None:
+        self.limits = as_effective(self.limits)
+
+    @property
+    def effective(self) -> EffectiveLimits:
+        assert isinstance(self.limits, EffectiveLimits)
+        return self.limits
 
     def check_level(self, volts: float, compliance_a: float) -> None:
-        if abs(volts) > self.limits.max_voltage_v:
-            raise SafetyError(
-                f"refused {volts:g} V: above the maximum {self.limits.max_voltage_v:g} V"
+        """Raise Trip unless `volts` at this compliance lies within every limit."""
+        lim = self.effective
+        if abs(volts) > lim.voltage.value:
+            raise Trip(f"refused {volts:g} V: above {lim.voltage.describe('V')}")
+        if compliance_a > lim.current.value:
+            raise Trip(
+                f"refused compliance {format_si(compliance_a, 'A')}: above "
+                f"{lim.current.describe('A')}"
             )
-        if compliance_a > self.limits.max_current_a:
-            raise SafetyError(f"refused compliance {compliance_a:g} A: above the maximum")
-        if abs(volts) * compliance_a > self.limits.max_power_w:
-            raise SafetyError(
+        if abs(volts) * compliance_a > lim.power.value:
+            raise Trip(
                 f"refused {volts:g} V at {compliance_a * 1e3:g} mA: could exceed "
-                f"{self.limits.max_power_w * 1e3:g} mW"
+                f"{lim.power.describe('W')}"
             )
-        if abs(volts) > self.limits.touch_safe_v and not self.checked_interlock:
-            if not self.interlock_closed():
-                raise SafetyError(
-                    f"refused {volts:g} V: the fixture interlock reads open; close the lid"
-                )
-            self.checked_interlock = True
+        dissipation = lim.dissipation
+        if dissipation is not None and lim.device_power_w(volts, compliance_a) > dissipation.value:
+            raise Trip(f"refused {volts:g} V: could exceed {dissipation.describe('W')}")
+        if abs(volts) > lim.touch_safe_v:
+            self._require_interlock(volts)
 
-    def check_reading(self, volts: float, amps: float) -> None:
-        if abs(volts * amps) > self.limits.max_power_w:
-            raise SafetyError(
-                f"reading {volts:g} V x {amps * 1e3:g} mA = {abs(volts * amps) * 1e3:.4g} mW "
-                f"exceeds the maximum {self.limits.max_power_w * 1e3:g} mW"
+    def _require_interlock(self, volts: float) -> None:
+        from instruments import DialectError  # the guard reads the lid through the driver
+
+        self.interlock_reads += 1
+        try:
+            closed = self.interlock_closed()
+        except DialectError as exc:  # a lid that cannot be read never counts as closed
+            raise Trip(f"refused {volts:g} V: the interlock cannot be read ({exc.detail})") from exc
+        if not closed:
+            raise Trip(f"refused {volts:g} V: the fixture interlock reads open; close the lid")
+
+    def check_reading(self, step: str, compliance_a: float, reading: Reading) -> None:
+        """Raise Trip for a reading beyond the limits, or clamped where the step must not."""
+        volts, amps = reading.voltage_v, reading.current_a
+        if abs(amps) > compliance_a * COMPLIANCE_SLACK + COMPLIANCE_SLACK_A:
+            raise Trip(
+                f"step '{step}': read {format_si(amps, 'A')} with compliance "
+                f"{format_si(compliance_a, 'A')}: the instrument did not hold its current limit"
             )
+        if abs(volts) > abs(self.level_v) * VOLTAGE_SLACK + VOLTAGE_SLACK_V:
+            raise Trip(
+                f"step '{step}': read {volts:g} V with at most {self.level_v:g} V programmed: "
+                "the source does not follow its level"
+            )
+        self._check_power(step, volts, amps)
+        if reading.in_compliance and step in self.no_clamp_steps:
+            raise Trip(
+                f"step '{step}': in compliance at {volts:g} V ({format_si(amps, 'A')}), and the "
+                "recipe says this step must not clamp (on_compliance: trip)",
+                scope="device",
+            )
+
+    def _check_power(self, step: str, volts: float, amps: float) -> None:
+        lim, power = self.effective, abs(volts * amps)
+        said = f"step '{step}': reading {volts:g} V x {amps * 1e3:g} mA = {power * 1e3:.4g} mW"
+        if power > lim.power.value:
+            raise Trip(f"{said} exceeds {lim.power.describe('W')}")
+        if lim.dissipation is not None and power > lim.dissipation.value:
+            raise Trip(f"{said} exceeds {lim.dissipation.describe('W')}", scope="device")
+
+    def applied(self, volts: float) -> None:
+        """The runner wrote `volts` to the output (a level, a ramp-down step, or 0 at the end)."""
+        self.level_v = volts
+
+
+class Reading(Protocol):  # what check_reading needs (instruments.smu.Reading provides it)
+    voltage_v: float
+    current_a: float
+    in_compliance: bool
+
+
+def no_clamp_steps(steps: Iterable[object]) -> frozenset[str]:
+    """Names of the recipe steps with `on_compliance: trip`."""
+    return frozenset(s.name for s in steps if getattr(s, "on_compliance", "flag") == "trip")

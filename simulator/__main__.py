@@ -13,6 +13,7 @@ import sys
 import threading
 
 from simulator.errors import OptionError
+from simulator.faults import load_faults, parse_fault
 from simulator.options import SimOptions
 from simulator.server import start_server
 
@@ -32,6 +33,14 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--clock", choices=("real", "virtual"), default=d.clock)
     serve.add_argument("--line-frequency", type=float, choices=(50.0, 60.0), default=50.0)
     serve.add_argument("--exit-with-stdin", action="store_true", help="stop when stdin closes")
+    serve.add_argument(
+        "--fault",
+        action="append",
+        default=[],
+        metavar="KIND[:KEY=VALUE,...]",
+        help="arm a fault at start (repeatable), e.g. late-reply:on=READ?,after=10,delay=3",
+    )
+    serve.add_argument("--faults", metavar="FILE.yaml", help="arm the faults listed in a file")
     return parser
 
 
@@ -46,7 +55,13 @@ def options_from(args: argparse.Namespace) -> SimOptions:
         defect_rate=args.defect_rate,
         clock=args.clock,
         line_frequency=args.line_frequency,
+        faults=_faults(args),
     )
+
+
+def _faults(args: argparse.Namespace) -> tuple:
+    listed = load_faults(args.faults) if args.faults else ()
+    return listed + tuple(parse_fault(text) for text in args.fault)
 
 
 def _watch_stdin(stop: threading.Event) -> None:

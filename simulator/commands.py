@@ -9,11 +9,18 @@ Simulator-only nodes (documented here, not part of SCPI-1999):
                                                   virtual clock nothing sleeps, time only adds up)
   SIMulation:LEVels:MAXimum?                   -> NR3 largest |V| ever applied with output on
   SIMulation:LEVels:COUNt?                     -> NR1 number of levels applied with output on
+  SIMulation:FAULt "<fault>"                   arm a fault now (text form, simulator/faults.py);
+                                                  a bad one is refused with -224 and the reason
+  SIMulation:FAULt:CLEar                       disarm every fault
+  SIMulation:FAULt:PENDing?                    -> NR1 faults armed and not yet spent
+  SIMulation:FAULt:FIRed?                      -> NR1 firings so far
+SIMulation:* units never trigger or count towards a fault.
 """
 
 from __future__ import annotations
 
-from simulator.errors import ScpiError
+from simulator.errors import OptionError, ScpiError
+from simulator.faults import parse_fault
 from simulator.instrument import Instrument
 from simulator.scpi_params import Boolean, Channels, Choice, Numeric, Strings
 from simulator.scpi_parser import Command
@@ -122,6 +129,15 @@ def _range(inst: Instrument) -> str:
     return nr3(inst.smu.range_a)
 
 
+def _arm_fault(inst: Instrument, texts: tuple[str, ...]) -> None:
+    if len(texts) != 1:
+        raise ScpiError(-108, "one quoted fault expected")
+    try:
+        inst.faults.arm(parse_fault(texts[0]))
+    except OptionError as error:
+        raise ScpiError(-224, error.problem) from None
+
+
 COMMANDS: tuple[Command, ...] = (
     # IEEE 488.2 common commands
     Command("*IDN", query=lambda inst: inst.identify()),
@@ -199,4 +215,8 @@ COMMANDS: tuple[Command, ...] = (
     Command("SIMulation:BUSY", query=lambda inst: f"{inst.clock.busy_s:+.12E}"),
     Command("SIMulation:LEVels:MAXimum", query=lambda inst: nr3(inst.smu.max_applied_v())),
     Command("SIMulation:LEVels:COUNt", query=lambda inst: str(len(inst.smu.applied_levels))),
+    Command("SIMulation:FAULt", _arm_fault, spec=Strings()),
+    Command("SIMulation:FAULt:CLEar", set=lambda inst: inst.faults.clear()),
+    Command("SIMulation:FAULt:PENDing", query=lambda inst: str(inst.faults.pending)),
+    Command("SIMulation:FAULt:FIRed", query=lambda inst: str(len(inst.faults.fired))),
 )

@@ -5,7 +5,10 @@ hold whichever command reaches them:
 - no hot switching: ROUTe:CLOSe is refused (-221) while the output is on above 1 V;
 - interlock: with the lid open, a level above the touch-safe threshold (42 V) is refused (-221)
   and not applied, and so is switching the output on with such a level programmed; opening the
-  lid while such a level is applied forces the output off.
+  lid while such a level is applied forces the output off and queues -300 "Device-specific
+  error;interlock opened, output switched off" (so a driver polling the error queue sees it).
+Faults (simulator/faults.py) reach the instrument through `apply_fault`; a device fault
+replaces the device of one channel for the rest of the session.
 One lock guards the whole state: several client connections share one instrument.
 """
 
@@ -15,7 +18,9 @@ import threading
 from dataclasses import dataclass
 
 from simulator.clock import Clock
+from simulator.devices import Device, open_circuit, short_circuit
 from simulator.errors import ESR_OPC, ErrorQueue, ScpiError, esr_bit
+from simulator.faults import FaultSchedule, Firing
 from simulator.lot import Lot
 from simulator.smu_model import Reading, Smu
 from simulator.tray import Tray
@@ -61,6 +66,7 @@ class Instrument:
         version: str,
         touch_safe_v: float = TOUCH_SAFE_V,
         hot_switch_v: float = HOT_SWITCH_V,
+        faults: FaultSchedule | None = None,
     ) -> None:
         self.lock = threading.RLock()
         self.lot = lot
@@ -73,6 +79,8 @@ class Instrument:
         self.hot_switch_v = hot_switch_v
         self.lid_closed = True
         self.last_reading: Reading | None = None
+        self.faults = faults if faults is not None else FaultSchedule(lot.seed)
+        self.replaced: dict[int, Device] = {}  # channel -> device put there by a fault
 
     @property
     def clock(self) -> Clock:
@@ -126,6 +134,26 @@ class Instrument:
         self.lid_closed = closed
         if not closed and self.smu.output_on and abs(self.smu.level_v) > self.touch_safe_v:
             self.set_output(False)
+            self.report(ScpiError(-300, "interlock opened, output switched off"))
+
+    # --- faults -----------------------------------------------------------------------------
+
+    def apply_fault(self, firing: Firing) -> None:
+        """Carry out an instrument fault (wire faults are the connection's business)."""
+        kind = firing.kind
+        if kind == "lid-open":
+            self.set_lid(False)
+        elif kind in ("device-open", "device-short"):
+            channel = firing.spec.channel or firing.channel
+            if channel is not None:
+                broken = open_circuit if kind == "device-open" else short_circuit
+                self.replaced[channel] = broken()
+                self.last_reading = None
+        elif kind == "error":
+            raise ScpiError(firing.spec.code, f"injected fault on {firing.header}")
+
+    def device_at(self, channel: int) -> Device:
+        return self.replaced.get(channel) or self.lot.at(channel).device
 
     # --- switch matrix ----------------------------------------------------------------------
 
@@ -146,7 +174,12 @@ class Instrument:
 
     def measure(self) -> Reading:
         closed = self.tray.closed
-        device = None if closed is None else self.lot.at(closed).device
+        for firing in self.faults.on_point(closed):
+            try:
+                self.apply_fault(firing)
+            except ScpiError as error:  # on a point, an error is queued; the reading goes on
+                self.report(error)
+        device = None if closed is None else self.device_at(closed)
         reading = self.smu.measure(device)
         self.status.set_condition(QUES_CURRENT if reading.limited else 0)
         self.last_reading = reading

@@ -9,6 +9,7 @@ import numpy as np
 import simulator
 from simulator.clock import make_clock
 from simulator.errors import OptionError
+from simulator.faults import FaultSchedule, FaultSpec
 from simulator.instrument import HOT_SWITCH_V, TOUCH_SAFE_V, Instrument
 from simulator.lot import make_lot
 from simulator.presets import preset
@@ -32,6 +33,7 @@ class SimOptions:
     line_frequency: float = 50.0
     touch_safe_v: float = TOUCH_SAFE_V
     hot_switch_v: float = HOT_SWITCH_V
+    faults: tuple[FaultSpec, ...] = ()  # armed at start (simulator/faults.py)
 
     def __post_init__(self) -> None:
         checks = {
@@ -48,6 +50,8 @@ class SimOptions:
             if not ok:
                 raise OptionError(name, f"{problem} (got {getattr(self, name)!r})")
         preset(self.preset)  # raises OptionError naming the known presets
+        if not all(isinstance(spec, FaultSpec) for spec in self.faults):
+            raise OptionError("faults", "must be FaultSpec values (parse them with faults.py)")
 
 
 def build_instrument(options: SimOptions | None = None) -> Instrument:
@@ -62,4 +66,5 @@ def build_instrument(options: SimOptions | None = None) -> Instrument:
         version=simulator.__version__,
         touch_safe_v=o.touch_safe_v,
         hot_switch_v=o.hot_switch_v,
+        faults=FaultSchedule.of(o.faults, o.seed),
     )

@@ -2,7 +2,9 @@
 
 Input is read as a byte stream and split on "\\n" (a trailing "\\r" is dropped); each reply goes
 out in one write with TCP_NODELAY set. Any number of clients may connect at once; they share the
-instrument (a second connection sees the first one's output state).
+instrument (a second connection sees the first one's output state). Wire faults act here: a
+late reply waits in the connection's own thread (other connections go on), a close drops only
+the connection whose message triggered it.
 """
 
 from __future__ import annotations
@@ -11,12 +13,13 @@ import contextlib
 import socket
 import socketserver
 import threading
+from collections.abc import Callable
 from dataclasses import dataclass
 
 from simulator.errors import ScpiError
 from simulator.instrument import Instrument
 from simulator.options import SimOptions, build_instrument
-from simulator.session import Session
+from simulator.session import Response, Session
 
 POLL_S = 0.02  # how often serve_forever looks for a stop request: stop() takes about this long
 MAX_MESSAGE_BYTES = 1 << 20  # a longer message is dropped, reported as -363
@@ -39,7 +42,9 @@ class _Handler(socketserver.BaseRequestHandler):
                 while (end := pending.find(b"\n")) >= 0:
                     message = pending[:end].decode("latin-1")
                     del pending[: end + 1]
-                    self._answer(session, message, overlong or end > MAX_MESSAGE_BYTES)
+                    if not self._answer(session, message, overlong or end > MAX_MESSAGE_BYTES):
+                        self.request.shutdown(socket.SHUT_RDWR)
+                        return  # a close fault: the connection drops mid-exchange
                     overlong = False
                 if len(pending) > MAX_MESSAGE_BYTES:
                     pending.clear()
@@ -47,14 +52,12 @@ class _Handler(socketserver.BaseRequestHandler):
         except OSError:
             pass  # the client went away mid-exchange: nothing to answer
 
-    def _answer(self, session: Session, message: str, overlong: bool) -> None:
+    def _answer(self, session: Session, message: str, overlong: bool) -> bool:
         if overlong:
             with session.instrument.lock:
                 session.instrument.report(ScpiError(-363, "message too long"))
-            return
-        reply = session.handle(message)
-        if reply is not None:
-            self.request.sendall(reply.encode("latin-1") + b"\n")
+            return True
+        return deliver(session.respond(message), self.request.sendall, self.server.stopping)
 
     def finish(self) -> None:
         self.server.track(self.request, False)
@@ -66,6 +69,7 @@ class _Server(socketserver.ThreadingTCPServer):
 
     def __init__(self, address: tuple[str, int], instrument: Instrument) -> None:
         self.instrument = instrument
+        self.stopping = threading.Event()  # ends late-reply waits when the server stops
         self._clients: set[socket.socket] = set()
         self._clients_lock = threading.Lock()
         super().__init__(address, _Handler)
@@ -79,6 +83,22 @@ class _Server(socketserver.ThreadingTCPServer):
             for client in self._clients:
                 with contextlib.suppress(OSError):
                     client.shutdown(socket.SHUT_RDWR)
+
+
+def deliver(response: Response, send: Callable[[bytes], object], stop: threading.Event) -> bool:
+    """Send a response as its wire fault says; False when the connection must be closed."""
+    fault = response.fault
+    kind = None if fault is None else fault.kind
+    if kind == "close":
+        return False
+    if kind == "late-reply":
+        assert fault is not None
+        if stop.wait(fault.spec.delay_s):
+            return False
+    text = response.delivered
+    if text is not None:
+        send(text.encode("latin-1") + b"\n")
+    return True
 
 
 @dataclass
@@ -97,6 +117,7 @@ class ServerHandle:
 
     def stop(self) -> None:
         """Stop listening, disconnect every client, release the port."""
+        self._server.stopping.set()
         self._server.shutdown()
         self._server.drop_clients()
         self._server.server_close()

@@ -2,17 +2,34 @@
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from functools import cache
 
 from simulator.commands import COMMAND_COST_S, COMMANDS
 from simulator.errors import ScpiError
+from simulator.faults import Firing
 from simulator.instrument import Instrument
-from simulator.scpi_parser import CommandTree, parse_unit, run_unit, split_units
+from simulator.scpi_parser import Command, CommandTree, Unit, parse_unit, run_unit, split_units
 
 
 @cache
 def command_tree() -> CommandTree:
     return CommandTree(COMMANDS)
+
+
+@dataclass(frozen=True)
+class Response:
+    """The reply text of one program message, and the wire fault (if any) to send it with."""
+
+    text: str | None
+    fault: Firing | None = None
+
+    @property
+    def delivered(self) -> str | None:
+        """What the client receives, ignoring timing: None for no-reply and close."""
+        if self.fault is None or self.fault.kind == "late-reply":
+            return self.text
+        return self.fault.garbage if self.fault.kind == "garbage" else None
 
 
 class Session:
@@ -29,6 +46,9 @@ class Session:
     instrument's SCPI error queue, exactly as over TCP. A command error (-1xx) discards the
     rest of the message (IEEE 488.2); other errors let it go on. Several sessions may share
     one instrument; each message runs under the instrument's lock.
+
+    `respond(message)` does the same and also says which wire fault fired (the server acts on
+    it); `handle` returns what a client would receive, `Response.delivered`.
     """
 
     def __init__(self, instrument: Instrument) -> None:
@@ -36,26 +56,52 @@ class Session:
         self.tree = command_tree()
 
     def handle(self, message: str) -> str | None:
-        replies: list[str] = []
+        return self.respond(message).delivered
+
+    def respond(self, message: str) -> Response:
         with self.instrument.lock:
+            clock = self.instrument.clock
+            clock.begin()
             try:
-                units = split_units(message.rstrip("\r"))
+                return self._run(message)
+            finally:
+                clock.finish()
+
+    def _run(self, message: str) -> Response:
+        replies: list[str] = []
+        wire: Firing | None = None
+        try:
+            units = split_units(message.rstrip("\r"))
+        except ScpiError as error:
+            self.instrument.report(error)
+            return Response(None)
+        prefix: tuple[tuple[str, int | None], ...] = ()
+        for text in units:
+            self.instrument.clock.spend(COMMAND_COST_S)
+            try:
+                unit = parse_unit(text)
+                command, path = self.tree.resolve(unit.header, prefix)
+                prefix = prefix if unit.header.common else path[:-1]
+                firings = self._firings(command, unit)
+                wire = wire or next((f for f in firings if f.on_wire), None)
+                if wire is not None and wire.kind == "close":
+                    return Response(None, wire)  # the connection drops before anything runs
+                self._apply(firings)  # an injected `error` raises here: the unit is not run
+                reply = run_unit(command, unit, self.instrument)
             except ScpiError as error:
                 self.instrument.report(error)
-                return None
-            prefix: tuple[tuple[str, int | None], ...] = ()
-            for text in units:
-                self.instrument.clock.spend(COMMAND_COST_S)
-                try:
-                    unit = parse_unit(text)
-                    command, path = self.tree.resolve(unit.header, prefix)
-                    prefix = prefix if unit.header.common else path[:-1]
-                    reply = run_unit(command, unit, self.instrument)
-                except ScpiError as error:
-                    self.instrument.report(error)
-                    if -199 <= error.code <= -100:
-                        break  # a command error discards the rest of the message
-                    continue
-                if reply is not None:
-                    replies.append(reply)
-        return ";".join(replies) if replies else None
+                if -199 <= error.code <= -100:
+                    break  # a command error discards the rest of the message
+                continue
+            if reply is not None:
+                replies.append(reply)
+        return Response(";".join(replies) if replies else None, wire)
+
+    def _firings(self, command: Command, unit: Unit) -> list[Firing]:
+        inst = self.instrument
+        return inst.faults.on_unit(command, unit.header.query, inst.tray.closed, unit.header.text)
+
+    def _apply(self, firings: list[Firing]) -> None:
+        for firing in firings:
+            if not firing.on_wire:
+                self.instrument.apply_fault(firing)

@@ -23,7 +23,7 @@ def test_packaged_dialect_has_exactly_the_dataclass_fields() -> None:
 def test_packaged_dialect_by_name_and_by_path_agree() -> None:
     by_name = load_dialect("scpi1999")
     assert by_name == load_dialect(PACKAGED)
-    assert by_name.measure_fields == ("voltage", "current", "status")
+    assert by_name.measure_fields == ("voltage", "current", "status", "errors")
     assert by_name.source == str(PACKAGED)
 
 
@@ -66,12 +66,13 @@ def test_voltage_text_without_its_placeholder_is_refused(tmp_path: Path) -> None
 @pytest.mark.parametrize(
     ("old", "new", "match"),
     [
-        ('measure: "READ?;:STAT:QUES:COND?"', "measure: null", "must not be null"),
+        ('measure: "READ?;:STAT:QUES:COND?;:SYST:ERR:COUN?"', "measure: null", "must not be null"),
         ('"SYST:INT?"', '"SYST:INT? {channel}"', "must contain no placeholder"),
         ("compliance_bit: 1", "compliance_bit: true", "bit number"),
-        ("[voltage, current, status]", "[voltage, status]", "'current' exactly once"),
-        ("[voltage, current, status]", "[voltage, current, temp]", "unknown"),
-        ("[voltage, current, status]", "[voltage, current]", "no 'status' field"),
+        ("[voltage, current, status, errors]", "[voltage, status]", "'current' exactly once"),
+        ("[voltage, current, status, errors]", "[voltage, current, temp]", "unknown"),
+        ("[voltage, current, status, errors]", "[voltage, current]", "no 'status' field"),
+        ("status, errors]", "status, errors, errors]", "'errors' more than once"),
         ('reset: "*RST"', "reset: 5", "must be text"),
         ('"OUTP {state}"', '"OUTP {state"', "bad braces"),
     ],
@@ -103,7 +104,7 @@ def test_render_formats_numbers_as_nr3_and_channels_as_nr1(dialect: Dialect) -> 
     assert dialect.render("set_current_limit", amps=5e-4) == "SOUR:CURR:LIM 5.000000E-04"
     assert dialect.render("select_channel", channel=3) == "ROUT:CLOS (@3)"
     assert dialect.render("output", state="OFF") == "OUTP OFF"
-    assert dialect.render("measure") == "READ?;:STAT:QUES:COND?"
+    assert dialect.render("measure") == "READ?;:STAT:QUES:COND?;:SYST:ERR:COUN?"
 
 
 def test_render_refuses_wrong_values(dialect: Dialect) -> None:

@@ -54,6 +54,9 @@ def test_measure_a_regulator_at_25_volts(conn: Connection, smu: ScpiSmu) -> None
     assert not reading.in_compliance
     assert output_seen_by_another_client(conn) is True
     smu.output(False)
+    # A write is not acknowledged; a query on the same link proves the instrument took it,
+    # before another client looks (two links are served in no guaranteed order).
+    assert smu.output_is_on() is False
     assert output_seen_by_another_client(conn) is False
     smu.check_errors()
 

@@ -13,7 +13,7 @@ from instruments.errors import DialectError, InstrumentDisconnected, ReplyError,
 from instruments.smu import MAX_ERROR_READS, Reading, ScpiSmu
 from instruments.transport import CallableTransport
 
-MEASURE = "READ?;:STAT:QUES:COND?"
+MEASURE = "READ?;:STAT:QUES:COND?;:SYST:ERR:COUN?"
 
 
 def test_configure_sends_the_dialect_text_in_order(smu: ScpiSmu, instrument) -> None:
@@ -91,10 +91,10 @@ def test_check_errors_refuses_a_garbled_entry(smu: ScpiSmu, instrument) -> None:
 @pytest.mark.parametrize(
     ("reply", "expected"),
     [
-        ("+2.500000E+01,+1.812345E-03;0", Reading(25.0, 1.812345e-3, False)),
-        ("+1.200000E+01,+5.000000E-04;2", Reading(12.0, 5e-4, True)),  # bit 1: limit active
-        ("+2.500000E+01,+1.800000E-03;1", Reading(25.0, 1.8e-3, False)),  # bit 0 is voltage
-        ("+2.500000E+01,+1.800000E-03;+3", Reading(25.0, 1.8e-3, True)),
+        ("+2.500000E+01,+1.812345E-03;0;0", Reading(25.0, 1.812345e-3, False)),
+        ("+1.200000E+01,+5.000000E-04;2;0", Reading(12.0, 5e-4, True)),  # bit 1: limit active
+        ("+2.500000E+01,+1.800000E-03;1;0", Reading(25.0, 1.8e-3, False)),  # bit 0 is voltage
+        ("+2.500000E+01,+1.800000E-03;+3;0", Reading(25.0, 1.8e-3, True)),
     ],
 )
 def test_measure_parses_one_reading(smu: ScpiSmu, instrument, reply, expected) -> None:
@@ -104,17 +104,30 @@ def test_measure_parses_one_reading(smu: ScpiSmu, instrument, reply, expected) -
 
 
 def test_measure_maps_special_values(smu: ScpiSmu, instrument) -> None:
-    instrument.replies[MEASURE] = "9.91E+37,-9.9E+37;0"  # SCPI-1999 Vol 1 7.2.1.4-5
+    instrument.replies[MEASURE] = "9.91E+37,-9.9E+37;0;0"  # SCPI-1999 Vol 1 7.2.1.4-5
     reading = smu.measure()
     assert math.isnan(reading.voltage_v)
     assert reading.current_a == -math.inf
 
 
-@pytest.mark.parametrize("reply", ["+2.5E+01,+1.8E-03", "+2.5E+01,+1.8E-03;0;7", "a,b;0", "1,2;x"])
+@pytest.mark.parametrize(
+    "reply", ["+2.5E+01,+1.8E-03;0", "+2.5E+01,+1.8E-03;0;0;7", "a,b;0;0", "1,2;x;0", "1,2;0;z"]
+)
 def test_measure_refuses_a_reply_of_the_wrong_shape(smu: ScpiSmu, instrument, reply) -> None:
     instrument.replies[MEASURE] = reply
     with pytest.raises(ReplyError, match=r"READ\?"):
         smu.measure()
+
+
+def test_measure_raises_the_queued_errors_instead_of_returning_the_reading(
+    smu: ScpiSmu, instrument
+) -> None:
+    instrument.replies[MEASURE] = "+2.0E+01,+1.8E-03;0;1"  # one entry in the error queue
+    instrument.errors = ['-221,"Settings conflict;interlock open"']
+    with pytest.raises(ScpiError, match="interlock open") as caught:
+        smu.measure()
+    assert caught.value.code == -221
+    assert instrument.sent == [MEASURE, "SYST:ERR?", "SYST:ERR?"]
 
 
 def test_measure_without_a_status_bit_compares_with_the_limit(
@@ -135,7 +148,7 @@ def test_driver_waits_itself_when_the_dialect_cannot_settle(
 ) -> None:
     waits: list[float] = []
     no_settle = dataclasses.replace(dialect, set_settle=None)
-    instrument = make_instrument({MEASURE: "+1.0E+00,+1.0E-03;0"})
+    instrument = make_instrument({MEASURE: "+1.0E+00,+1.0E-03;0;0"})
     smu = ScpiSmu(CallableTransport(instrument), no_settle, sleep=waits.append)
     smu.configure(limit_a=1e-3, nplc=1.0, settle_s=0.05)
     smu.measure()

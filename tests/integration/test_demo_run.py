@@ -70,7 +70,7 @@ def test_scpi_log_traces_every_exchange(demo_run):
     lines = (out / "scpi.log").read_text().splitlines()
     sent = [ln.split("\t")[3] for ln in lines if ln.split("\t")[2] == ">>"]
     assert sent[0] == "*IDN?"
-    assert sent.count("READ?;:STAT:QUES:COND?") == 20 * 86
+    assert sent.count("READ?;:STAT:QUES:COND?;:SYST:ERR:COUN?") == 20 * 86
     # the output is switched off after every device and the channel is chosen before it
     assert sent.count("OUTP OFF") >= 20
     assert "ROUT:CLOS (@20)" in sent

@@ -52,7 +52,7 @@ def test_preflight_refuses_and_names_step_and_numbers(recipe, limits, words):
     assert words in str(info.value)
 
 
-def test_guard_asks_interlock_once_above_touch_safe():
+def test_guard_asks_interlock_before_every_level_above_touch_safe():
     asked = []
 
     def lid():
@@ -64,17 +64,18 @@ def test_guard_asks_interlock_once_above_touch_safe():
     assert not asked
     guard.check_level(50.0, 1e-3)
     guard.check_level(60.0, 1e-3)
-    assert len(asked) == 1
+    guard.check_level(-41.0, 1e-3)
+    assert len(asked) == 2  # a lid opened mid-sweep is seen at the next hazardous level
 
 
 def test_guard_refuses_open_interlock_and_over_limit():
     guard = Guard(Limits(100.0, 0.02, 1.0), lambda: False)
     with pytest.raises(SafetyError, match="interlock reads open"):
         guard.check_level(50.0, 1e-3)
-    with pytest.raises(SafetyError, match="above the maximum"):
+    with pytest.raises(SafetyError, match="above the station's maximum 100 V"):
         guard.check_level(101.0, 1e-3)
     with pytest.raises(SafetyError, match="could exceed"):
-        dataclasses.replace(guard, checked_interlock=True).check_level(99.0, 0.0102)
+        dataclasses.replace(guard, interlock_closed=lambda: True).check_level(99.0, 0.0102)
 
 
 def test_ramp_down_steps():

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 import pytest
 
@@ -188,12 +186,41 @@ def test_virtual_clock_adds_up_acquisition_and_command_time(session: Session):
     assert after - before == pytest.approx(0.1 + 2 / 60 + 2 * 50e-6, abs=1e-9)
 
 
-def test_real_clock_sleeps_for_the_acquisition(inst: Instrument, session: Session):
-    slept: list[float] = []
-    inst.smu.clock = RealClock(sleep=slept.append)
+class FakeTime:
+    """A monotonic clock that moves by `compute_s` at every reading (the simulator's own work)
+    and by every sleep."""
+
+    def __init__(self, compute_s: float) -> None:
+        self.t, self.compute_s, self.slept = 100.0, compute_s, []
+
+    def now(self) -> float:
+        self.t += self.compute_s
+        return self.t
+
+    def sleep(self, seconds: float) -> None:
+        self.slept.append(seconds)
+        self.t += seconds
+
+
+@pytest.mark.parametrize("compute_s", [0.0, 0.004])
+def test_real_clock_sleeps_for_the_acquisition_less_its_compute_time(
+    inst: Instrument, session: Session, compute_s: float
+):
+    fake = FakeTime(compute_s)
+    inst.smu.clock = RealClock(sleep=fake.sleep, now=fake.now)
     session.handle("SENS:CURR:NPLC 1;:TRIG:DEL 0.01;:READ?")
-    assert math.fsum(slept) == pytest.approx(0.01 + 1 / 50 + 3 * 50e-6)
-    assert inst.clock.busy_s == pytest.approx(math.fsum(slept))
+    modelled = 0.01 + 1 / 50 + 3 * 50e-6  # delay + aperture + 3 message units
+    assert inst.clock.busy_s == pytest.approx(modelled, abs=1e-12)
+    # one sleep at the end of the message, shortened by the time the message took to compute
+    assert fake.slept == [pytest.approx(modelled - compute_s, abs=1e-12)]
+
+
+def test_real_clock_outside_a_message_sleeps_at_once():
+    fake = FakeTime(0.0)
+    clock = RealClock(sleep=fake.sleep, now=fake.now)
+    clock.spend(0.25)
+    clock.spend(0.5)
+    assert fake.slept == [pytest.approx(0.25), pytest.approx(0.5)]
 
 
 def test_two_sessions_share_one_instrument(inst: Instrument):

@@ -1,0 +1,154 @@
+"""Test benches for the safety tests: station and recipe files written from dicts, the simulated
+instrument reached in process (same SCPI text, no socket) or over TCP, and an independent second
+connection that reads what the output is doing."""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from instruments import Connection, ScpiSmu, load_dialect
+from instruments.transport import CallableTransport, open_visa
+from simulator import Session, SimOptions, build_instrument
+from simulator.instrument import Instrument
+
+ROOT = Path(__file__).resolve().parents[2]
+SET_VOLTAGE = re.compile(r"^SOUR:VOLT (\S+)$")
+SET_LIMIT = re.compile(r"^SOUR:CURR:LIM (\S+)$")
+
+STATION: dict[str, Any] = {
+    "station": "TEST-bench",
+    "instrument": {"resource": "sim", "timeout": "1 s"},
+    "tray": {"channels": 3},
+    "limits": {"max_voltage": "60 V", "max_current": "20 mA", "max_power": "250 mW"},
+    "fixture": {"interlocked": True},
+}
+RECIPE: dict[str, Any] = {
+    "product": "FLC-1.8 test part",
+    "lot": "FK2611-99",
+    "station": "station.yaml",
+    "nplc": 0.01,
+    "steps": [
+        {"sweep": {"name": "iv", "start": "0 V", "stop": "30 V", "points": 16,
+                   "compliance": "5 mA"}},
+        {"spot": {"name": "at-test-voltage", "voltage": "25 V", "compliance": "5 mA",
+                  "repeats": 2}},
+    ],
+}  # fmt: skip
+
+
+def write_bench(
+    folder: Path, *, station: dict[str, Any] | None = None, recipe: dict[str, Any] | None = None
+) -> Path:
+    """Write station.yaml and recipe.yaml (defaults above, top-level keys replaced); returns
+    the recipe's path."""
+    folder.mkdir(parents=True, exist_ok=True)
+    (folder / "station.yaml").write_text(yaml.safe_dump({**STATION, **(station or {})}))
+    path = folder / "recipe.yaml"
+    path.write_text(yaml.safe_dump({**RECIPE, **(recipe or {})}, sort_keys=False))
+    return path
+
+
+@dataclass
+class LoopBench:
+    """A simulated instrument reached in process; `sent` is every message the driver sent."""
+
+    instrument: Instrument
+    sent: list[str] = field(default_factory=list)
+
+    def handler(self, message: str) -> str | None:
+        self.sent.append(message)
+        return self.session.handle(message)
+
+    def __post_init__(self) -> None:
+        self.session = Session(self.instrument)
+
+    def smu(self) -> ScpiSmu:
+        return ScpiSmu(CallableTransport(self.handler, "loop"), load_dialect("scpi1999"))
+
+    def connection(self) -> Connection:
+        smu = self.smu()
+        smu.identify()
+        return Connection(smu, "loop", timeout_s=1.0, spy_log=None, simulator=None)
+
+    def levels_sent(self) -> list[float]:
+        return [float(m.group(1)) for s in self.sent if (m := SET_VOLTAGE.match(s))]
+
+    def limits_sent(self) -> list[float]:
+        return [float(m.group(1)) for s in self.sent if (m := SET_LIMIT.match(s))]
+
+    def points(self) -> list[tuple[float, float]]:
+        """(level, compliance in force) for every level sent, in order."""
+        limit, out = 0.0, []
+        for message in self.sent:
+            if m := SET_LIMIT.match(message):
+                limit = float(m.group(1))
+            elif m := SET_VOLTAGE.match(message):
+                out.append((float(m.group(1)), limit))
+        return out
+
+
+def loop_bench(devices: int = 3, **options: Any) -> LoopBench:
+    opts = {"clock": "virtual", "devices": devices, **options}
+    return LoopBench(build_instrument(SimOptions(**opts)))
+
+
+def read_output(resource: str, query: str = "OUTP?") -> str:
+    """Ask the instrument over a second, independent connection (not the tool's)."""
+    transport = open_visa(resource, timeout_s=2.0)
+    try:
+        return transport.query(query)
+    finally:
+        transport.close()
+
+
+@dataclass
+class SimProcess:
+    """`python -m simulator serve --port 0` as its own program, as an operator would start it."""
+
+    process: subprocess.Popen[str]
+    resource: str
+
+    def stop(self) -> None:
+        self.process.terminate()
+        try:
+            self.process.communicate(timeout=5)  # also closes the pipes
+        except subprocess.TimeoutExpired:
+            self.process.kill()
+            self.process.communicate()
+
+
+def start_sim_process(*args: str) -> SimProcess:
+    process = subprocess.Popen(
+        [sys.executable, "-m", "simulator", "serve", "--port", "0", *args],
+        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )  # fmt: skip
+    line = process.stdout.readline().strip() if process.stdout else ""
+    if not line.startswith("TCPIP0::"):
+        process.kill()
+        raise RuntimeError(f"simulator did not start: {line!r}")
+    return SimProcess(process, line)
+
+
+def run_cli(
+    args: list[str], *, cwd: Path = ROOT, timeout: float = 60
+) -> subprocess.CompletedProcess:
+    return subprocess.run(
+        [sys.executable, "-m", "sequencer.cli", *args],
+        cwd=cwd, capture_output=True, text=True, timeout=timeout,
+        env={"PATH": "/usr/bin:/bin", "COLUMNS": "200", "PYTHONPATH": str(ROOT)},
+    )  # fmt: skip
+
+
+def never(*_: Any, **__: Any) -> Any:
+    raise AssertionError("nothing may be opened or started after a refusal")
+
+
+Patch = Callable[[Any, str, Any], None]

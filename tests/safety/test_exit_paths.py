@@ -1,0 +1,176 @@
+"""Output off on every way out, seen in the SCPI text the driver sent (in process): the safe
+start before anything else, the ramp down before output-off, an exception, a store failure, a
+judge that raises, Ctrl-C at a chosen point, the normal end; and the signal gate that keeps a
+second signal from cutting a shutdown short."""
+
+from __future__ import annotations
+
+import signal
+
+import pytest
+
+import sequencer.lotrun
+import sequencer.store
+from sequencer.benchrun import SignalGate, Terminated
+from sequencer.errors import StoreError
+
+from .bench import SET_VOLTAGE, loop_bench
+from .test_guard import assert_output_off, run_loop
+
+
+def tail_after_last_reading(sent: list[str]) -> list[str]:
+    last = max(i for i, m in enumerate(sent) if m.startswith("READ?"))
+    return sent[last + 1 :]
+
+
+def test_the_instrument_is_made_safe_before_anything_else(tmp_path, monkeypatch):
+    bench = loop_bench()
+    bench.session.handle("SOUR:VOLT 30;:OUTP ON")  # left on by someone before us
+    assert bench.instrument.smu.output_on
+    code, text, _ = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 0, text
+    assert bench.sent[:4] == ["*IDN?", "OUTP OFF", "SOUR:VOLT 0.000000E+00", "OUTP?"]
+    assert_output_off(bench)
+
+
+@pytest.mark.robustness
+def test_an_output_that_will_not_read_off_is_refused_at_start(tmp_path, monkeypatch):
+    bench = loop_bench()
+    real = bench.handler
+    bench.handler = lambda message: "1" if message == "OUTP?" else real(message)
+    code, text, rows = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 3
+    assert "still reads ON after it was switched off" in text.strip().splitlines()[-1]
+    assert rows == [] and bench.levels_sent() == [0.0] * len(bench.levels_sent())
+
+
+def test_levels_above_a_few_volts_are_ramped_down_before_output_off(tmp_path, monkeypatch):
+    bench = loop_bench()
+    real = bench.handler
+
+    def fails_at_30_v(message: str):
+        if message.startswith("READ?") and bench.instrument.smu.level_v == 30.0:
+            return "garbage"
+        return real(message)
+
+    bench.handler = fails_at_30_v
+    code, _, rows = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 4 and rows[0]["verdict"] == "aborted"
+    tail = tail_after_last_reading(bench.sent)  # the garbled reading at 30 V is not in `sent`
+    levels = [float(m.group(1)) for s in tail if (m := SET_VOLTAGE.match(s))]
+    assert levels[:7] == [30.0, 25.0, 20.0, 15.0, 10.0, 5.0, 0.0]  # steps of at most 5 V
+    assert tail.index("OUTP OFF") > tail.index("SOUR:VOLT 0.000000E+00")
+    assert_output_off(bench)
+
+
+@pytest.mark.robustness
+def test_a_judge_that_raises_still_ends_with_the_output_off(tmp_path, monkeypatch):
+    bench = loop_bench()
+    real, calls = sequencer.lotrun.judge_curve, []
+
+    def judge(curve, settings):
+        calls.append(curve.device)
+        if len(calls) == 2:
+            raise ValueError("judge gave up")
+        return real(curve, settings)
+
+    monkeypatch.setattr(sequencer.lotrun, "judge_curve", judge)
+    code, text, rows = run_loop(tmp_path, monkeypatch, bench)
+    last = text.strip().splitlines()[-1]
+    assert code == 4
+    assert last.startswith("ccbench: internal error (ValueError: judge gave up); output off")
+    assert (tmp_path / "run" / "traceback.txt").read_text().count("judge gave up") >= 1
+    assert len(rows) == 1  # the first device is kept
+    assert_output_off(bench)
+
+
+@pytest.mark.robustness
+def test_a_store_failure_mid_run_ends_with_the_output_off(tmp_path, monkeypatch):
+    bench = loop_bench()
+    real = sequencer.store.RunStore.add_device
+
+    def add(self, curve, judgement):
+        if curve.channel == 2:
+            raise StoreError("disk full (made up for the test)")
+        real(self, curve, judgement)
+
+    monkeypatch.setattr(sequencer.store.RunStore, "add_device", add)
+    code, text, _ = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 5
+    assert text.strip().splitlines()[-1] == (
+        "ccbench: disk full (made up for the test); output off (read back from the instrument)"
+    )
+    assert_output_off(bench)
+
+
+@pytest.mark.robustness
+@pytest.mark.parametrize(
+    ("raised", "why"), [(KeyboardInterrupt, "Ctrl-C"), (Terminated, "SIGTERM")]
+)
+def test_an_interrupt_mid_sweep_keeps_the_data_and_switches_off(tmp_path, monkeypatch, raised, why):
+    bench = loop_bench()
+    real, reads = bench.handler, []
+
+    def interrupted(message: str):
+        if message.startswith("READ?"):
+            reads.append(message)
+            if len(reads) == 25:  # device 2, mid-sweep
+                raise raised(f"stopped by {why}")
+        return real(message)
+
+    bench.handler = interrupted
+    code, text, rows = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 130
+    assert (
+        text.strip()
+        .splitlines()[-1]
+        .startswith(
+            f"ccbench: stopped by {why}; output off (read back from the instrument); what was "
+            "measured is kept in"
+        )
+    )
+    assert [r["verdict"] for r in rows][1] == "aborted"
+    assert_output_off(bench)
+
+
+def test_normal_end_switches_off_and_reads_it_back(tmp_path, monkeypatch):
+    bench = loop_bench()
+    code, text, rows = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 0 and len(rows) == 3
+    assert "output off (read back from the instrument); results:" in text
+    zero = "SOUR:VOLT 0.000000E+00"
+    assert bench.sent[-8:] == [
+        *(zero, "OUTP OFF"),  # the runner, at the end of the last device
+        *(zero, "OUTP OFF", zero, "OUTP?"),  # make_safe: off again, and read back
+        *("OUTP OFF", zero),  # closing the connection: the driver's safe state
+    ]
+    assert_output_off(bench)
+
+
+# --- the signal gate --------------------------------------------------------------------------
+
+
+def test_the_first_signal_raises_and_later_ones_do_not():
+    gate = SignalGate()
+    with pytest.raises(KeyboardInterrupt):
+        gate.handler(signal.SIGINT, None)
+    gate.handler(signal.SIGTERM, None)  # already stopping: recorded, not raised
+    assert gate.received == [signal.SIGINT, signal.SIGTERM]
+
+
+def test_a_signal_during_a_held_block_waits_for_its_end():
+    gate, done = SignalGate(), []
+    with pytest.raises(Terminated), gate.held():
+        gate.handler(signal.SIGTERM, None)
+        done.append("shutdown finished")  # not cut short
+    assert done == ["shutdown finished"]
+
+
+def test_inside_raising_a_held_signal_raises_at_once():
+    gate = SignalGate()
+    with gate.held():
+        gate.handler(signal.SIGINT, None)  # arrived during the safe start
+        with pytest.raises(KeyboardInterrupt), gate.raising():
+            pytest.fail("the measurement must not start")  # pragma: no cover
+        gate.handler(signal.SIGINT, None)  # during the shutdown: ignored
+    assert gate.raised and len(gate.received) == 2
