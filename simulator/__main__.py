@@ -13,7 +13,7 @@ import sys
 import threading
 
 from simulator.errors import OptionError
-from simulator.faults import load_faults, parse_fault
+from simulator.faults import FaultSpec, load_faults, parse_fault
 from simulator.options import SimOptions
 from simulator.server import start_server
 
@@ -32,6 +32,14 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--defect-rate", type=float, default=d.defect_rate, help="0..1")
     serve.add_argument("--clock", choices=("real", "virtual"), default=d.clock)
     serve.add_argument("--line-frequency", type=float, choices=(50.0, 60.0), default=50.0)
+    serve.add_argument("--temperature", type=float, default=d.temperature, help="ambient, C")
+    serve.add_argument(
+        "--thermal-resistance",
+        type=float,
+        default=d.thermal_resistance,
+        help="junction to ambient, K/W (self-heating; 0 = off)",
+    )
+    serve.add_argument("--thermal-time", type=float, default=d.thermal_time, help="tau, s")
     serve.add_argument("--exit-with-stdin", action="store_true", help="stop when stdin closes")
     serve.add_argument(
         "--fault",
@@ -56,10 +64,13 @@ def options_from(args: argparse.Namespace) -> SimOptions:
         clock=args.clock,
         line_frequency=args.line_frequency,
         faults=_faults(args),
+        temperature=args.temperature,
+        thermal_resistance=args.thermal_resistance,
+        thermal_time=args.thermal_time,
     )
 
 
-def _faults(args: argparse.Namespace) -> tuple:
+def _faults(args: argparse.Namespace) -> tuple[FaultSpec, ...]:
     listed = load_faults(args.faults) if args.faults else ()
     return listed + tuple(parse_fault(text) for text in args.fault)
 

@@ -18,8 +18,8 @@ from pathlib import Path
 import pytest
 
 from instruments import Connection, connect
-from instruments.errors import InstrumentDisconnected, InstrumentTimeout, ReplyError, ScpiError
 from instruments import transport as transport_module
+from instruments.errors import InstrumentDisconnected, InstrumentTimeout, ReplyError, ScpiError
 from instruments.transport import open_visa
 from sequencer.lotrun import run_lot
 from sequencer.plan import make_plan
@@ -144,9 +144,7 @@ def test_late_reply_aborts_the_device_and_the_next_run_is_in_step(bench):
     assert not b.output_on()
 
 
-def test_a_reply_later_than_the_resync_wait_is_still_never_taken_for_an_answer(
-    bench, monkeypatch
-):
+def test_a_reply_later_than_the_resync_wait_is_still_never_taken_for_an_answer(bench, monkeypatch):
     monkeypatch.setattr(transport_module, "RESYNC_WAIT_S", 0.4)
     b = bench("late-reply:on=READ?,after=3,delay=1.2")
     with b.connect() as conn:
