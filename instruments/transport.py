@@ -102,9 +102,21 @@ def check_timeout(timeout_s: float) -> float:
 
 
 @functools.cache
-def _resource_manager() -> pyvisa.ResourceManager:
+def _cached_manager() -> pyvisa.ResourceManager:
     # One manager for the process: closing a manager closes every resource it opened.
     return pyvisa.ResourceManager("@py")
+
+
+def _resource_manager() -> pyvisa.ResourceManager:
+    # pyvisa hands every caller the same manager object, so anyone's rm.close() closes ours
+    # too (measured, pyvisa 1.16.2): open a fresh one then instead of failing every open.
+    manager = _cached_manager()
+    try:
+        manager.session  # noqa: B018 - the property raises once the manager is closed
+    except visa_errors.InvalidSession:
+        _cached_manager.cache_clear()
+        manager = _cached_manager()
+    return manager
 
 
 def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
@@ -325,10 +337,8 @@ class VisaTransport:
         self._out_of_step = False
 
     def _await_probes(self, command: str) -> None:
-        """Read until every probe sent has been answered, dropping late replies before them.
-
-        A probe that failed once (its answer later than the wait) is still counted, so that
-        its answer is never taken for the reply to a later query."""
+        """Read until every probe sent is answered, dropping late replies; a probe that timed
+        out stays counted, so that its answer is never taken for a later query's reply."""
         deadline = time.monotonic() + max(self._timeout_s, RESYNC_WAIT_S)
         stale = 0
         while self._probes_out:
@@ -360,14 +370,9 @@ class VisaTransport:
             if time.monotonic() > deadline:
                 detail = "the instrument keeps sending; its output has no end to find"
                 raise InstrumentError(self.resource, command, detail, hint="reset it, reconnect")
-        self._count_drained_probes(dropped)
-
-    def _count_drained_probes(self, dropped: bytes) -> None:
-        if self._probe_reply is None or not self._probes_out:
-            return
-        answer = self._probe_reply.encode("ascii", "replace")
-        lines = dropped.replace(b"\r", b"").split(b"\n")
-        self._probes_out = max(self._probes_out - lines.count(answer), 0)
+        if self._probe_reply is not None:  # probe answers drained here are answered, too
+            answered = dropped.replace(b"\r", b"").split(b"\n").count(self._probe_reply.encode())
+            self._probes_out = max(self._probes_out - answered, 0)
 
 
 def _pyvisa_py_session(inst: Any) -> Any:

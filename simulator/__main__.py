@@ -1,6 +1,7 @@
 """`python -m simulator serve ...`: run the simulated SMU as its own program.
 
-Prints exactly one line, the VISA resource string, once listening; serves until SIGINT or
+Prints exactly one line, the VISA resource string, once listening (with --serial a second line,
+the ASRL resource of a pseudo-terminal serving the same instrument); serves until SIGINT or
 SIGTERM (exit 0) or, with --exit-with-stdin, until standard input reaches end of file, so an
 embedded simulator dies with its parent even when the parent is killed.
 """
@@ -15,6 +16,7 @@ import threading
 from simulator.errors import OptionError
 from simulator.faults import FaultSpec, load_faults, parse_fault
 from simulator.options import SimOptions
+from simulator.serial_port import start_serial
 from simulator.server import start_server
 
 
@@ -41,6 +43,9 @@ def build_parser() -> argparse.ArgumentParser:
     )
     serve.add_argument("--thermal-time", type=float, default=d.thermal_time, help="tau, s")
     serve.add_argument("--exit-with-stdin", action="store_true", help="stop when stdin closes")
+    serve.add_argument(
+        "--serial", action="store_true", help="also serve on a pseudo-terminal (ASRL resource)"
+    )
     serve.add_argument(
         "--fault",
         action="append",
@@ -93,9 +98,14 @@ def main(argv: list[str] | None = None) -> int:
         signal.signal(signum, lambda *_: stop.set())
     if args.exit_with_stdin:
         threading.Thread(target=_watch_stdin, args=(stop,), daemon=True).start()
+    serial = start_serial(handle.instrument) if args.serial else None
     print(handle.resource, flush=True)
+    if serial is not None:
+        print(serial.resource, flush=True)
     while not stop.wait(0.1):
         pass
+    if serial is not None:
+        serial.stop()
     handle.stop()
     return 0
 
