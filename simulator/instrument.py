@@ -23,13 +23,15 @@ from __future__ import annotations
 import threading
 from dataclasses import dataclass
 
+import numpy as np
+
 from simulator.clock import Clock
 from simulator.dataformat import DataFormat
 from simulator.devices import TNOM_K, Device, open_circuit, short_circuit
 from simulator.errors import ESR_OPC, ErrorQueue, ScpiError, esr_bit
 from simulator.faults import FaultSchedule, Firing
 from simulator.lot import Lot
-from simulator.smu_model import Reading, Smu
+from simulator.smu_model import Reading, Smu, Truth
 from simulator.thermal import Thermal
 from simulator.tray import Tray
 
@@ -202,11 +204,13 @@ class Instrument:
         hazardous = max(abs(v) for v in levels) > self.touch_safe_v
         if smu.mode == "LIST" and hazardous and not self.lid_closed:
             raise ScpiError(-221, "interlock open")
+        steps = [levels[k % len(levels)] for k in range(smu.trigger_count)]
+        truths = self._solved_ahead(steps) if smu.mode == "LIST" else None
         readings = []  # collected apart: a fault mid-list must not lose the points before it
-        for k in range(smu.trigger_count):
+        for k, volts in enumerate(steps):
             if smu.mode == "LIST":
-                self._step_to(levels[k % len(levels)])
-            readings.append(self._acquire())
+                self._step_to(volts)
+            readings.append(self._acquire(truths[k] if truths else None))
         self.buffer = readings
         return readings
 
@@ -224,7 +228,18 @@ class Instrument:
         self.smu.set_level(volts)
         self._refresh_power()
 
-    def _acquire(self) -> Reading:
+    def _solved_ahead(self, steps: list[float]) -> list[Truth] | None:
+        """The whole list in one vectorised solve, when nothing can change during the run
+        (no self-heating, no fault waiting for a point); else None: point by point."""
+        closed = self.tray.closed
+        if closed is None or not self.smu.output_on or self.thermal.heating:
+            return None
+        if self.faults.waits_for_points:
+            return None
+        device = self.device_at(closed)
+        return self.smu.true_outputs(device, np.array(steps), self.junction_k())
+
+    def _acquire(self, truth: Truth | None = None) -> Reading:
         closed = self.tray.closed
         for firing in self.faults.on_point(closed):
             try:
@@ -232,7 +247,7 @@ class Instrument:
             except ScpiError as error:  # on a point, an error is queued; the reading goes on
                 self.report(error)
         device = None if closed is None else self.device_at(closed)
-        reading = self.smu.measure(device, self.junction_k())
+        reading = self.smu.measure(device, self.junction_k(), truth)
         self.status.set_condition(QUES_CURRENT if reading.limited else 0)
         self._refresh_power()
         return reading

@@ -31,6 +31,7 @@ VOLTAGE_NOISE_V = 50e-6
 CURRENT_RESOLUTION_OF_RANGE = 1e-6
 VOLTAGE_RESOLUTION_V = 1e-5
 DEFAULT_LIMIT_A = 1e-3
+Truth = tuple[float, float, bool]  # noiseless volts, amps, current limit active
 
 
 @dataclass(frozen=True)
@@ -98,10 +99,14 @@ class Smu:
     def max_applied_v(self) -> float:
         return max((abs(v) for v in self.applied_levels), default=0.0)
 
-    def measure(self, device: Device | None, temp_k: float = TNOM_K) -> Reading:
-        """One acquisition of (V, I) on the connected device (None: nothing connected)."""
+    def measure(
+        self, device: Device | None, temp_k: float = TNOM_K, truth: Truth | None = None
+    ) -> Reading:
+        """One acquisition of (V, I) on the connected device (None: nothing connected).
+
+        `truth` is the noiseless (V, I, limited) when the caller has solved it already."""
         self.clock.spend(self.trigger_delay_s + self.aperture_s)
-        volts, amps, limited = self.true_output(device, temp_k)
+        volts, amps, limited = truth if truth is not None else self.true_output(device, temp_k)
         if self.range_auto:
             self.range_a = range_for(amps)
         scale = 1.0 / np.sqrt(self.nplc)
@@ -114,9 +119,18 @@ class Smu:
             i = float(np.copysign(OVERFLOW_READING, i))
         return Reading(v, i, limited, overflow, self.range_a)
 
-    def true_output(
-        self, device: Device | None, temp_k: float = TNOM_K
-    ) -> tuple[float, float, bool]:
+    def true_outputs(self, device: Device, levels: np.ndarray, temp_k: float) -> list[Truth]:
+        """true_output at many levels in one vectorised solve (output on, same limit)."""
+        amps = np.asarray(device.current(levels, temp_k), dtype=float)
+        limited = np.abs(amps) > self.limit_a
+        clamp = np.copysign(self.limit_a, amps)
+        volts = np.array(levels, dtype=float)
+        if limited.any():
+            volts[limited] = device.voltage_at(clamp[limited], volts[limited], temp_k)
+        amps = np.where(limited, clamp, amps)
+        return [(float(v), float(i), bool(k)) for v, i, k in zip(volts, amps, limited, strict=True)]
+
+    def true_output(self, device: Device | None, temp_k: float = TNOM_K) -> Truth:
         """(V, I, limited) at the terminals without noise: what the device really sees."""
         if not self.output_on or device is None:
             return 0.0, 0.0, False

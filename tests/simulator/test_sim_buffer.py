@@ -130,3 +130,18 @@ def test_a_device_failing_mid_list_shows_in_the_readings_after_it():
     s.handle(LIST_SETUP)
     i = numbers(s.handle("READ?"))[1::2]
     assert i[1] > 1e-3 and abs(i[3]) < 1e-9  # the third acquisition onwards sees an open
+
+
+def test_a_list_solved_in_one_go_reads_as_solved_point_by_point():
+    def run(*faults: str) -> np.ndarray:
+        options = SimOptions(clock="virtual", devices=2, faults=tuple(map(parse_fault, faults)))
+        s = Session(build_instrument(options))
+        s.handle(LIST_SETUP.replace("0,5,10,25", ",".join(f"{v:g}" for v in range(-1, 40))))
+        s.handle("TRIG:COUN 41;:CURR:LIM 1.8 MA")
+        return numbers(s.handle("READ?")).reshape(-1, 2)
+
+    fast = run()
+    slow = run("device-open:on=point,channel=2")  # a fault waiting for points: one by one
+    # the same noise draws in the same order; at most one step of resolution apart
+    np.testing.assert_allclose(fast[:, 0], slow[:, 0], atol=1.01e-5)  # 10 uV
+    np.testing.assert_allclose(fast[:, 1], slow[:, 1], atol=1.01e-6 * 1e-2)  # 1 ppm of 10 mA
