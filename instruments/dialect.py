@@ -28,6 +28,7 @@ PLACEHOLDERS: dict[str, frozenset[str]] = {
     "set_current_range": frozenset({"amps"}),
     "output": frozenset({"state"}),
     "select_channel": frozenset({"channel"}),
+    "list_voltage": frozenset({"values", "count"}),
 }
 # Operations the driver cannot do without; every other SCPI key may be null (see the driver).
 REQUIRED = frozenset(
@@ -35,6 +36,14 @@ REQUIRED = frozenset(
     | {"measure", "measure_fields"}
 )
 MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "errors", "ignore"})
+FETCH_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
+# Keys added for source lists, the reading buffer and binary blocks: a dialect file written
+# before them may leave them out (they are then null: the driver sweeps point by point).
+OPTIONAL_KEYS = frozenset(
+    {"list_voltage", "initiate", "fetch", "fetch_fields", "binary_format", "binary_big_endian"}
+    | {"ascii_format", "fixed_mode", "list_max_points"}
+)
+_LIST_KEYS = ("list_voltage", "initiate", "fetch", "fetch_fields")  # all given, or none
 
 
 @dataclass(frozen=True)
@@ -64,7 +73,21 @@ class Dialect:
     select_channel: str | None
     open_all_channels: str | None
     interlock_query: str | None
+    # source lists and the reading buffer (all None: the instrument has none)
+    list_voltage: str | None = None
+    initiate: str | None = None
+    fetch: str | None = None
+    fetch_fields: tuple[str, ...] | None = None
+    binary_format: str | None = None
+    binary_big_endian: bool | None = None
+    ascii_format: str | None = None
+    fixed_mode: str | None = None
+    list_max_points: int | None = None
     source: str = "<built in>"
+
+    @property
+    def has_lists(self) -> bool:
+        return self.list_voltage is not None
 
     def render(self, key: str, **values: object) -> str:
         """The SCPI text of `key` with its placeholders filled (floats as NR3, ints as NR1)."""
@@ -87,7 +110,10 @@ class Dialect:
 
 
 _ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name != "source")
-_NON_TEXT = frozenset({"name", "description", "measure_fields", "compliance_bit"})
+_NON_TEXT = frozenset(
+    {"name", "description", "measure_fields", "compliance_bit", "fetch_fields"}
+    | {"binary_big_endian", "list_max_points"}
+)
 _TEXT_KEYS = frozenset(_ALL_KEYS) - _NON_TEXT
 
 
@@ -129,8 +155,9 @@ def parse_dialect(text: str, source: str | Path = "<text>") -> Dialect:
     if not isinstance(data, dict):
         raise DialectError(source, None, 1, "must be a mapping of keys to SCPI text")
     _check_keys(data, lines, source)
-    values = {key: _check_value(key, data[key], lines.get(key), source) for key in _ALL_KEYS}
+    values = {key: _check_value(key, data.get(key), lines.get(key), source) for key in _ALL_KEYS}
     _check_measure(values, lines, source)
+    _check_lists(values, lines, source)
     return Dialect(**values, source=str(source))
 
 
@@ -156,7 +183,7 @@ def _check_keys(data: dict[Any, Any], lines: dict[str, int], source: str | Path)
             raise DialectError(source, str(key), lines.get(str(key)), detail)
     last_line = max(lines.values(), default=None)
     for key in _ALL_KEYS:
-        if key not in data:
+        if key not in data and key not in OPTIONAL_KEYS:
             raise DialectError(source, key, last_line, "missing (write null if not supported)")
 
 
@@ -165,10 +192,18 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
         if key in REQUIRED:
             raise DialectError(source, key, line, "must not be null: the driver needs it")
         return None
-    if key == "measure_fields":
+    if key in ("measure_fields", "fetch_fields"):
         if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
             raise DialectError(source, key, line, "must be a list of field names")
         return tuple(value)
+    if key == "binary_big_endian":
+        if not isinstance(value, bool):
+            raise DialectError(source, key, line, f"must be true or false (got {value!r})")
+        return value
+    if key == "list_max_points":
+        if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+            raise DialectError(source, key, line, f"must be a whole number >= 1 (got {value!r})")
+        return value
     if key == "compliance_bit":
         if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 15:
             raise DialectError(source, key, line, f"must be a bit number 0..15 (got {value!r})")
@@ -189,6 +224,39 @@ def _check_placeholders(key: str, text: str, line: int | None, source: str | Pat
     if found != wanted:
         expected = ", ".join(f"{{{n}}}" for n in sorted(wanted)) or "no placeholder"
         raise DialectError(source, key, line, f"must contain {expected} (got {text!r})")
+
+
+def _check_lists(values: dict[str, Any], lines: dict[str, int], source: str | Path) -> None:
+    given = [key for key in _LIST_KEYS if values[key] is not None]
+    if given and len(given) != len(_LIST_KEYS):
+        missing = [key for key in _LIST_KEYS if values[key] is None]
+        detail = f"needs {', '.join(missing)} too (a list is loaded, started and fetched)"
+        raise DialectError(source, given[0], lines.get(given[0]), detail)
+    names = values["fetch_fields"]
+    if names is not None:
+        _check_field_names("fetch_fields", names, FETCH_FIELD_NAMES, lines, source)
+    if values["binary_format"] is not None and values["binary_big_endian"] is None:
+        detail = "binary_big_endian must say the byte order that binary_format selects"
+        raise DialectError(source, "binary_format", lines.get("binary_format"), detail)
+
+
+def _check_field_names(
+    key: str,
+    names: tuple[str, ...],
+    known: frozenset[str],
+    lines: dict[str, int],
+    source: str | Path,
+) -> None:
+    line = lines.get(key)
+    unknown = set(names) - known
+    if unknown:
+        detail = f"unknown {sorted(unknown)} ({', '.join(sorted(known))})"
+        raise DialectError(source, key, line, detail)
+    for name in ("voltage", "current"):
+        if names.count(name) != 1:
+            raise DialectError(source, key, line, f"needs {name!r} exactly once")
+    if names.count("status") > 1:
+        raise DialectError(source, key, line, "has 'status' more than once")
 
 
 def _check_measure(values: dict[str, Any], lines: dict[str, int], source: str | Path) -> None:

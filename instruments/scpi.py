@@ -64,6 +64,16 @@ def parse_number(text: str) -> float:
     return number
 
 
+def special_values(values: np.ndarray) -> np.ndarray:
+    """SCPI's special numbers in an array (as float32 blocks carry them) -> inf, -inf, nan."""
+    out = np.asarray(values, dtype=float).copy()
+    near = 1e-5 * SCPI_INF  # float32 keeps them within 1e-7; 9.9E+37 and 9.91E+37 are 1e-3 apart
+    infinite = np.abs(np.abs(out) - SCPI_INF) < near
+    out[infinite] = np.copysign(np.inf, out[infinite])
+    out[np.abs(out - SCPI_NAN) < near] = np.nan
+    return out
+
+
 def parse_int(text: str) -> int:
     """An integer from an NR1 reply field (registers, counts); '+2' and '2' both work."""
     field = text.strip()

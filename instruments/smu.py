@@ -12,13 +12,24 @@ import math
 import numbers
 import time
 from collections import deque
-from collections.abc import Callable
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import TypeVar
 
+import numpy as np
+
 from instruments.dialect import Dialect
 from instruments.errors import ReplyError, ScpiError
-from instruments.scpi import flat_fields, parse_bool, parse_error_entry, parse_int, parse_number
+from instruments.scpi import (
+    flat_fields,
+    format_number,
+    parse_bool,
+    parse_error_entry,
+    parse_int,
+    parse_number,
+    special_values,
+)
 from instruments.transport import Transport
 
 log = logging.getLogger(__name__)
@@ -28,6 +39,11 @@ MAX_ERROR_READS = 20  # a queue holds about 10 entries; more reads means it neve
 _RECENT = 8  # commands kept to say, in an error message, what the instrument was sent
 # Without a status bit, a reading this close to the programmed limit counts as in compliance.
 _LIMIT_FRACTION = 0.999
+# A list run's reply takes as long as the run: the timeout grows by this much per point beyond
+# the settling and the aperture (the slowest line frequency, 50 Hz, is assumed for the aperture).
+_LIST_MARGIN_S = 0.01
+_SLOWEST_LINE_HZ = 50.0
+Sweep = tuple[np.ndarray, np.ndarray, np.ndarray]  # voltage, current, in_compliance
 
 
 @dataclass(frozen=True)
@@ -156,6 +172,29 @@ class ScpiSmu:
         current = self._parse("measure", values["current"], parse_number)
         return Reading(voltage, current, self._in_compliance(values, current))
 
+    def list_sweep(
+        self, levels_v: Sequence[float], *, limit_a: float, nplc: float, settle_s: float
+    ) -> Sweep:
+        """Apply `levels_v` in order, each settled `settle_s` and measured over `nplc`, and
+        return (voltage, current, in_compliance) arrays, one entry per level.
+
+        The output must be on, as for `measure()`; the source is left at the last level. With
+        a list-capable dialect the instrument runs the whole list and the readings come back
+        in one fetch (one binary block where the dialect offers it, else ASCII), in chunks of
+        `list_max_points`; otherwise, and when the dialect cannot settle, point by point.
+        """
+        levels = np.asarray(levels_v, dtype=float)
+        if levels.ndim != 1 or not levels.size or not np.all(np.isfinite(levels)):
+            raise ValueError(f"levels_v must be a non-empty list of finite volts ({levels_v!r})")
+        self.configure(limit_a=limit_a, nplc=nplc, settle_s=settle_s)
+        if not self.dialect.has_lists or (settle_s and self.dialect.set_settle is None):
+            return self._point_by_point(levels)
+        size = self.dialect.list_max_points or levels.size
+        chunks = [levels[k : k + size] for k in range(0, levels.size, size)]
+        parts = [self._run_list(chunk, nplc, settle_s) for chunk in chunks]
+        voltage, current, limited = (np.concatenate(column) for column in zip(*parts, strict=True))
+        return voltage, current, limited
+
     def select_channel(self, channel: int) -> None:
         """Connect tray channel `channel` (1..N) alone to the SMU, then check it was accepted:
         a refused switch would otherwise measure the wrong device."""
@@ -194,6 +233,67 @@ class ScpiSmu:
         self.transport.close()
 
     # -- internals -------------------------------------------------------------------------
+
+    def _point_by_point(self, levels: np.ndarray) -> Sweep:
+        readings = []
+        for volts in levels:
+            self.set_voltage(float(volts))
+            readings.append(self.measure())
+        return (
+            np.array([r.voltage_v for r in readings]),
+            np.array([r.current_a for r in readings]),
+            np.array([r.in_compliance for r in readings], dtype=bool),
+        )
+
+    def _run_list(self, levels: np.ndarray, nplc: float, settle_s: float) -> Sweep:
+        values = ",".join(format_number(float(v)) for v in levels)
+        binary = self.dialect.binary_format is not None
+        try:
+            self._write("list_voltage", values=values, count=int(levels.size))
+            if binary:
+                self._write("binary_format")
+            self._write("initiate")
+            run_s = levels.size * (settle_s + nplc / _SLOWEST_LINE_HZ + _LIST_MARGIN_S)
+            with self._patience(2 * run_s):
+                self.check_errors()  # answered once the run is over; a refused list stops here
+            data = self._fetch(binary)
+        finally:
+            for key in ("ascii_format", "fixed_mode"):
+                self._write_if_known(key)
+        return self._split(data, levels.size)
+
+    def _fetch(self, binary: bool) -> np.ndarray:
+        fetch = self.dialect.render("fetch")
+        if binary:
+            big = bool(self.dialect.binary_big_endian)
+            return self.transport.query_block(fetch, datatype="f", big_endian=big)
+        reply = self.transport.query(fetch)
+        numbers_ = [self._parse("fetch", field, parse_number) for field in flat_fields(reply)]
+        return np.array(numbers_, dtype=float)
+
+    def _split(self, data: np.ndarray, points: int) -> Sweep:
+        names = self.dialect.fetch_fields or ()
+        if data.size != points * len(names):
+            detail = f"{data.size} values for {points} points of {list(names)}"
+            raise ReplyError(self.resource, self.dialect.fetch, detail)
+        table = {name: data[k :: len(names)].astype(float) for k, name in enumerate(names)}
+        voltage, current = (special_values(table[name]) for name in ("voltage", "current"))
+        if "status" in table and self.dialect.compliance_bit is not None:
+            bits = table["status"].astype(np.int64)
+            limited = ((bits >> self.dialect.compliance_bit) & 1).astype(bool)
+        else:
+            limited = np.abs(current) >= _LIMIT_FRACTION * (self._limit_a or np.inf)
+        return voltage, current, limited
+
+    @contextmanager
+    def _patience(self, extra_s: float) -> Iterator[None]:
+        """A longer reply timeout while the instrument works through a list."""
+        before = self.transport.timeout_s
+        self.transport.timeout_s = before + extra_s
+        try:
+            yield
+        finally:
+            self.transport.timeout_s = before
 
     def _write(self, key: str, **values: object) -> None:
         message = self.dialect.render(key, **values)

@@ -9,7 +9,8 @@ every exchange.
 pyvisa-py facts this module works around (measured, see SCPI.md):
 - a late reply after a timeout would be read as the answer to the next query, for good: after a
   timeout the transport is marked out of step and resynchronised before its next query (drain,
-  then *IDN? until its own answer comes back; if even that times out, a fresh link);
+  then *IDN? on the same link, waiting up to RESYNC_WAIT_S for its answer behind any late ones:
+  the same link keeps every command sent meanwhile in order);
 - a peer that closed the socket looks like a slow instrument (the read spins until the timeout):
   a query first waits for the socket itself and peeks, so a closed peer is reported at once;
 - a refused connection opens fine and only fails on the first write: `open_visa` asks `*IDN?`.
@@ -61,6 +62,7 @@ log = logging.getLogger(__name__)
 PROBE = "*IDN?"
 _QUIET_S = 0.1  # silence that ends a drain (what pyvisa-py's clear() waits for, too)
 _MAX_STALE = 4  # late replies discarded while resynchronising before giving up
+RESYNC_WAIT_S = 5.0  # how long a resync waits for its probe's answer (at least the timeout)
 
 
 @runtime_checkable
@@ -100,27 +102,28 @@ def check_timeout(timeout_s: float) -> float:
 
 
 @functools.cache
-def _resource_manager() -> pyvisa.ResourceManager:
+def _cached_manager() -> pyvisa.ResourceManager:
     # One manager for the process: closing a manager closes every resource it opened.
     return pyvisa.ResourceManager("@py")
 
 
+def _resource_manager() -> pyvisa.ResourceManager:
+    # pyvisa hands every caller the same manager object, so anyone's rm.close() closes ours
+    # too (measured, pyvisa 1.16.2): open a fresh one then instead of failing every open.
+    manager = _cached_manager()
+    try:
+        manager.session  # noqa: B018 - the property raises once the manager is closed
+    except visa_errors.InvalidSession:
+        _cached_manager.cache_clear()
+        manager = _cached_manager()
+    return manager
+
+
 def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
     """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers *IDN?."""
-    inst = _open_resource(resource, check_timeout(timeout_s))
-    transport = VisaTransport(inst, resource, timeout_s)
+    millis = round(check_timeout(timeout_s) * 1000)
     try:
-        transport.learn_probe()
-    except BaseException:
-        transport.close()
-        raise
-    return transport
-
-
-def _open_resource(resource: str, timeout_s: float) -> Any:
-    millis = round(timeout_s * 1000)
-    try:
-        return _resource_manager().open_resource(
+        inst = _resource_manager().open_resource(
             resource,
             read_termination="\n",
             write_termination="\n",
@@ -129,6 +132,13 @@ def _open_resource(resource: str, timeout_s: float) -> Any:
         )
     except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
         raise _open_error(resource, exc) from exc
+    transport = VisaTransport(inst, resource, timeout_s)
+    try:
+        transport.learn_probe()
+    except BaseException:
+        transport.close()
+        raise
+    return transport
 
 
 def _open_error(resource: str, exc: Exception) -> InstrumentError:
@@ -145,15 +155,9 @@ class VisaTransport:
     """A Transport over a pyvisa message-based resource; use `open_visa` to make one."""
 
     def __init__(self, inst: Any, resource: str, timeout_s: float) -> None:
+        self._inst = inst
         self.resource = resource
         self._timeout_s = check_timeout(timeout_s)
-        self._attach(inst)
-        self._probe_reply: str | None = None
-        self._out_of_step = False
-        self._closed = False
-
-    def _attach(self, inst: Any) -> None:
-        self._inst = inst
         self._session = _pyvisa_py_session(inst)
         self._socket = _tcp_socket(self._session)
         if self._socket is not None:
@@ -161,6 +165,10 @@ class VisaTransport:
             # command followed by a query then waits for the peer's delayed ACK: about 40 ms a
             # point, measured here. Setting the option on its socket removes the stall.
             self._socket.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        self._probe_reply: str | None = None
+        self._probes_out = 0  # probes sent whose answers have not been read yet
+        self._out_of_step = False
+        self._closed = False
 
     @property
     def timeout_s(self) -> float:
@@ -273,15 +281,16 @@ class VisaTransport:
                 self._resync(message)
         return message
 
-    def _read(self, command: str) -> str:
-        self._await_reply(command)
+    def _read(self, command: str, wait_s: float | None = None) -> str:
+        self._await_reply(command, wait_s)
         return self._inst.read().removesuffix("\r")
 
-    def _await_reply(self, command: str) -> None:
+    def _await_reply(self, command: str, wait_s: float | None = None) -> None:
         """Wait on the socket itself, so a peer that closed is seen at once, not after a timeout."""
         if self._socket is None or getattr(self._session, "_pending_buffer", None):
             return
-        ready, _, _ = select.select([self._socket], [], [], self._timeout_s)
+        wait = self._timeout_s if wait_s is None else wait_s
+        ready, _, _ = select.select([self._socket], [], [], wait)
         if not ready:
             raise self._after_timeout(command)
         lost = self._link_lost()
@@ -320,52 +329,50 @@ class VisaTransport:
         return decode_payload(payload[:-1], dtype)
 
     def _resync(self, command: str) -> None:
-        """Drop stale input, then prove the stream is in step with the probe. A reply later
-        than the probe's own timeout cannot be waited out: a fresh link carries none of it."""
         self._drain(command)
         if self._probe_reply is not None:
-            try:
-                self._probe(command)
-            except InstrumentTimeout:
-                log.warning("%s: no answer while resynchronising; reconnecting", self.resource)
-                self._reopen()
-                self._probe(command)
+            self._inst.write(PROBE)
+            self._probes_out += 1
+            self._await_probes(command)
         self._out_of_step = False
 
-    def _probe(self, command: str) -> None:
-        self._inst.write(PROBE)
-        self._await_probe(command)
-
-    def _reopen(self) -> None:
-        try:
-            self._inst.close()
-        except Exception as exc:  # the old link may be half broken; the new one matters
-            log.debug("closing the old link to %s: %r", self.resource, exc)
-        self._attach(_open_resource(self.resource, self._timeout_s))
-
-    def _await_probe(self, command: str) -> None:
-        for _ in range(_MAX_STALE):
-            reply = self._read(PROBE)
+    def _await_probes(self, command: str) -> None:
+        """Read until every probe sent is answered, dropping late replies; a probe that timed
+        out stays counted, so that its answer is never taken for a later query's reply."""
+        deadline = time.monotonic() + max(self._timeout_s, RESYNC_WAIT_S)
+        stale = 0
+        while self._probes_out:
+            reply = self._read(PROBE, max(deadline - time.monotonic(), 1e-3))
             if reply == self._probe_reply:
-                return
+                self._probes_out -= 1
+                continue
             log.warning("%s: discarded a late reply %r", self.resource, reply)
-        detail = f"still out of step after discarding {_MAX_STALE} late replies"
-        raise InstrumentError(self.resource, command, detail, hint="reconnect to the instrument")
+            stale += 1
+            if stale >= _MAX_STALE:
+                detail = f"still out of step after discarding {_MAX_STALE} late replies"
+                hint = "reconnect to the instrument"
+                raise InstrumentError(self.resource, command, detail, hint=hint)
 
     def _drain(self, command: str) -> None:
         """Read and drop input until it has been quiet for 0.1 s (bounded by the timeout)."""
         if self._socket is None:
             self._inst.clear()
             return
+        dropped = bytes(self._session._pending_buffer)
         self._session._pending_buffer.clear()
         deadline = time.monotonic() + max(self._timeout_s, 2 * _QUIET_S)
         while select.select([self._socket], [], [], _QUIET_S)[0]:
-            if not self._socket.recv(65536):
+            chunk = self._socket.recv(65536)
+            if not chunk:
                 detail = "the instrument closed the connection"
                 raise InstrumentDisconnected(self.resource, command, detail)
+            dropped += chunk
             if time.monotonic() > deadline:
                 detail = "the instrument keeps sending; its output has no end to find"
                 raise InstrumentError(self.resource, command, detail, hint="reset it, reconnect")
+        if self._probe_reply is not None:  # probe answers drained here are answered, too
+            answered = dropped.replace(b"\r", b"").split(b"\n").count(self._probe_reply.encode())
+            self._probes_out = max(self._probes_out - answered, 0)
 
 
 def _pyvisa_py_session(inst: Any) -> Any:

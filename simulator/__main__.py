@@ -1,6 +1,7 @@
 """`python -m simulator serve ...`: run the simulated SMU as its own program.
 
-Prints exactly one line, the VISA resource string, once listening; serves until SIGINT or
+Prints exactly one line, the VISA resource string, once listening (with --serial a second line,
+the ASRL resource of a pseudo-terminal serving the same instrument); serves until SIGINT or
 SIGTERM (exit 0) or, with --exit-with-stdin, until standard input reaches end of file, so an
 embedded simulator dies with its parent even when the parent is killed.
 """
@@ -13,8 +14,9 @@ import sys
 import threading
 
 from simulator.errors import OptionError
-from simulator.faults import load_faults, parse_fault
+from simulator.faults import FaultSpec, load_faults, parse_fault
 from simulator.options import SimOptions
+from simulator.serial_port import start_serial
 from simulator.server import start_server
 
 
@@ -32,7 +34,18 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--defect-rate", type=float, default=d.defect_rate, help="0..1")
     serve.add_argument("--clock", choices=("real", "virtual"), default=d.clock)
     serve.add_argument("--line-frequency", type=float, choices=(50.0, 60.0), default=50.0)
+    serve.add_argument("--temperature", type=float, default=d.temperature, help="ambient, C")
+    serve.add_argument(
+        "--thermal-resistance",
+        type=float,
+        default=d.thermal_resistance,
+        help="junction to ambient, K/W (self-heating; 0 = off)",
+    )
+    serve.add_argument("--thermal-time", type=float, default=d.thermal_time, help="tau, s")
     serve.add_argument("--exit-with-stdin", action="store_true", help="stop when stdin closes")
+    serve.add_argument(
+        "--serial", action="store_true", help="also serve on a pseudo-terminal (ASRL resource)"
+    )
     serve.add_argument(
         "--fault",
         action="append",
@@ -56,10 +69,13 @@ def options_from(args: argparse.Namespace) -> SimOptions:
         clock=args.clock,
         line_frequency=args.line_frequency,
         faults=_faults(args),
+        temperature=args.temperature,
+        thermal_resistance=args.thermal_resistance,
+        thermal_time=args.thermal_time,
     )
 
 
-def _faults(args: argparse.Namespace) -> tuple:
+def _faults(args: argparse.Namespace) -> tuple[FaultSpec, ...]:
     listed = load_faults(args.faults) if args.faults else ()
     return listed + tuple(parse_fault(text) for text in args.fault)
 
@@ -82,9 +98,14 @@ def main(argv: list[str] | None = None) -> int:
         signal.signal(signum, lambda *_: stop.set())
     if args.exit_with_stdin:
         threading.Thread(target=_watch_stdin, args=(stop,), daemon=True).start()
+    serial = start_serial(handle.instrument) if args.serial else None
     print(handle.resource, flush=True)
+    if serial is not None:
+        print(serial.resource, flush=True)
     while not stop.wait(0.1):
         pass
+    if serial is not None:
+        serial.stop()
     handle.stop()
     return 0
 

@@ -14,17 +14,39 @@ Simulator-only nodes (documented here, not part of SCPI-1999):
   SIMulation:FAULt:CLEar                       disarm every fault
   SIMulation:FAULt:PENDing?                    -> NR1 faults armed and not yet spent
   SIMulation:FAULt:FIRed?                      -> NR1 firings so far
+  SIMulation:TEMPerature <celsius>             ambient temperature of the tray (default 27 C,
+                                                  the SPICE nominal); + query
+  SIMulation:TEMPerature:JUNCtion?             -> NR3 junction temperature (C) of the connected
+                                                  device (above the ambient with self-heating)
 SIMulation:* units never trigger or count towards a fault.
+
+Source lists and the reading buffer (SCPI-1999 shapes; see instrument.py and dataformat.py):
+  [SOURce:]VOLTage:MODE FIXed|LIST, [SOURce:]LIST:VOLTage <v>{,<v>} (+ :POINts?),
+  TRIGger[:SEQuence]:COUNt <n>, INITiate[:IMMediate], ABORt, FETCh?, READ? (= INIT + FETCh?),
+  FORMat[:DATA] ASCii|REAL[,32], FORMat:BORDer NORMal|SWAPped, FORMat:FIELds VOLT,CURR[,STAT].
 """
 
 from __future__ import annotations
 
+from dataclasses import replace
+
+from simulator.dataformat import FIELDS
 from simulator.errors import OptionError, ScpiError
 from simulator.faults import parse_fault
 from simulator.instrument import Instrument
-from simulator.scpi_params import Boolean, Channels, Choice, Numeric, Strings
+from simulator.scpi_params import (
+    Boolean,
+    Channels,
+    Choice,
+    Choices,
+    DataType,
+    Numeric,
+    NumericList,
+    Strings,
+)
 from simulator.scpi_parser import Command
 from simulator.smu_model import CURRENT_RANGES_A, DEFAULT_LIMIT_A, Reading
+from simulator.thermal import KELVIN_AT_0C
 
 COMMAND_COST_S = 50e-6  # instrument time to parse and execute one message unit
 LEVEL = Numeric("V", -200.0, 200.0, default=0.0)
@@ -34,6 +56,9 @@ NPLC = Numeric(None, 0.01, 10.0, default=1.0)
 RANGE = Numeric("A", 0.0, CURRENT_RANGES_A[-1], least=CURRENT_RANGES_A[0])
 LINE = Numeric("HZ", 50.0, 60.0, default=50.0)
 SOURCE_MODES = Choice(("VOLTage", "CURRent"))
+MAX_POINTS = 10_000  # list length and trigger count; the buffer holds as many readings
+COUNT = Numeric(None, 1.0, MAX_POINTS, default=1.0, integer=True)
+AMBIENT = Numeric("CEL", -55.0, 150.0, default=27.0)
 MASK8 = Numeric(None, 0.0, 255.0, integer=True)
 MASK16 = Numeric(None, 0.0, 32767.0, integer=True)
 
@@ -129,6 +154,44 @@ def _range(inst: Instrument) -> str:
     return nr3(inst.smu.range_a)
 
 
+def _set_source_mode(inst: Instrument, mode: str) -> None:
+    inst.smu.mode = mode
+    inst.invalidate()
+
+
+def _set_list(inst: Instrument, levels: tuple[float, ...]) -> None:
+    inst.smu.set_list(levels)
+
+
+def _set_count(inst: Instrument, count: float) -> None:
+    inst.smu.trigger_count = int(count)
+
+
+def _read(inst: Instrument) -> str:
+    return inst.format.render(inst.initiate())
+
+
+def _set_data(inst: Instrument, kind: str) -> None:
+    inst.format = replace(inst.format, data=kind)
+
+
+def _set_border(inst: Instrument, order: str) -> None:
+    inst.format = replace(inst.format, byte_order=order)
+
+
+def _set_fields(inst: Instrument, names: tuple[str, ...]) -> None:
+    inst.format = replace(inst.format, fields=names)
+
+
+def _short(spelling: str) -> str:
+    return "".join(c for c in spelling if not c.islower())
+
+
+def _set_ambient(inst: Instrument, celsius: float) -> None:
+    inst.thermal.set_ambient(celsius + KELVIN_AT_0C)
+    inst.invalidate()
+
+
 def _arm_fault(inst: Instrument, texts: tuple[str, ...]) -> None:
     if len(texts) != 1:
         raise ScpiError(-108, "one quoted fault expected")
@@ -185,9 +248,44 @@ COMMANDS: tuple[Command, ...] = (
         lambda inst: ",".join(f'"{name}"' for name in inst.smu.sense_functions),
         Strings(),
     ),
+    # source lists, trigger and the reading buffer
+    Command(
+        "[SOURce:]VOLTage:MODE",
+        _set_source_mode,
+        lambda inst: _short(inst.smu.mode),
+        Choice(("FIXed", "LIST")),
+    ),
+    Command(
+        "[SOURce:]LIST:VOLTage",
+        _set_list,
+        lambda inst: ",".join(nr3(v) for v in inst.smu.list_v),
+        NumericList(LEVEL, MAX_POINTS),
+    ),
+    Command("[SOURce:]LIST:VOLTage:POINts", query=lambda inst: str(len(inst.smu.list_v))),
+    Command("TRIGger[:SEQuence]:COUNt", _set_count, lambda i: str(i.smu.trigger_count), COUNT),
+    Command("INITiate[:IMMediate]", set=Instrument.initiate),
+    Command("ABORt", set=lambda inst: None),  # acquisitions end before the next unit is read
+    Command(
+        "FORMat[:DATA]",
+        _set_data,
+        lambda inst: "ASC" if inst.format.data == "ASCii" else "REAL,32",
+        DataType(),
+    ),
+    Command(
+        "FORMat:BORDer",
+        _set_border,
+        lambda inst: _short(inst.format.byte_order),
+        Choice(("NORMal", "SWAPped")),
+    ),
+    Command(
+        "FORMat:FIELds",
+        _set_fields,
+        lambda inst: ",".join(_short(name) for name in inst.format.fields),
+        Choices(FIELDS),
+    ),
     # measurement instructions
-    Command("READ", query=lambda inst: pair(inst.measure())),
-    Command("FETCh", query=lambda inst: pair(inst.fetch())),
+    Command("READ", query=_read),
+    Command("FETCh", query=lambda inst: inst.format.render(inst.fetch())),
     Command("MEASure[:SCALar]:CURRent[:DC]", query=lambda inst: nr3(inst.measure().current_a)),
     Command("MEASure[:SCALar]:VOLTage[:DC]", query=lambda inst: nr3(inst.measure().voltage_v)),
     # STATus
@@ -215,6 +313,16 @@ COMMANDS: tuple[Command, ...] = (
     Command("SIMulation:BUSY", query=lambda inst: f"{inst.clock.busy_s:+.12E}"),
     Command("SIMulation:LEVels:MAXimum", query=lambda inst: nr3(inst.smu.max_applied_v())),
     Command("SIMulation:LEVels:COUNt", query=lambda inst: str(len(inst.smu.applied_levels))),
+    Command(
+        "SIMulation:TEMPerature",
+        _set_ambient,
+        lambda inst: nr3(inst.thermal.ambient_k - KELVIN_AT_0C),
+        AMBIENT,
+    ),
+    Command(
+        "SIMulation:TEMPerature:JUNCtion",
+        query=lambda inst: nr3(inst.junction_k() - KELVIN_AT_0C),
+    ),
     Command("SIMulation:FAULt", _arm_fault, spec=Strings()),
     Command("SIMulation:FAULt:CLEar", set=lambda inst: inst.faults.clear()),
     Command("SIMulation:FAULt:PENDing", query=lambda inst: str(inst.faults.pending)),

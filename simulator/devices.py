@@ -7,7 +7,10 @@ regions and both modes, with the (1 + lambda |VDS|) factor and both gate junctio
 biased through a source resistor: drain = anode, gate = cathode, source through RS to cathode.
 A reverse-biased regulator therefore conducts through its forward-biased gate-drain junction,
 like a diode. Every model takes a temperature argument; the JFET applies the SPICE temperature
-laws VTO(T) = VTO - TCV (T - TNOM) and BETA(T) = BETA (T/TNOM)^BEX (both off by default).
+laws VTO(T) = VTO - TCV (T - TNOM) and BETA(T) = BETA (T/TNOM)^BEX (both off by default), and
+every junction the SPICE saturation-current law
+    IS(T) = IS exp((T/TNOM - 1) EG / (N kT/q)) (T/TNOM)^(XTI/N)      (EG 1.11 eV, XTI 3)
+as ngspice's diode and JFET (with XTI given) models do.
 
 Each device offers `current(v)`, `current_slope(v)` -> (I, dI/dV) and `voltage_at(i, v_bound)`:
 the voltage between 0 and v_bound at which it draws `i` (the SMU's compliance clamp needs it).
@@ -38,6 +41,17 @@ Pair = tuple[np.ndarray, np.ndarray]
 def thermal_voltage(temp_k: float) -> float:
     """kT/q in volts."""
     return BOLTZMANN * temp_k / ELEMENTARY_CHARGE
+
+
+def saturation_current(
+    is_a: float, temp_k: float, tnom_k: float, eg_ev: float, xti: float, n: float = 1.0
+) -> float:
+    """IS(T) by the SPICE law (module docstring); IS itself at TNOM."""
+    if temp_k == tnom_k:
+        return is_a
+    ratio = temp_k / tnom_k
+    activation = (ratio - 1) * eg_ev / (n * thermal_voltage(temp_k))
+    return is_a * float(np.exp(activation)) * ratio ** (xti / n)
 
 
 def junction(v: np.ndarray, is_a: float, n_vt: float) -> Pair:
@@ -104,12 +118,19 @@ class Resistor(_Base):
 class Diode(_Base):
     is_a: float = 1e-14
     n: float = 1.0
+    eg_ev: float = 1.11
+    xti: float = 3.0
+    tnom_k: float = TNOM_K
+
+    def is_at(self, temp_k: float) -> float:
+        return saturation_current(self.is_a, temp_k, self.tnom_k, self.eg_ev, self.xti, self.n)
 
     def current_slope(self, v: ArrayLike, temp_k: float = TNOM_K) -> Pair:
-        return junction(np.asarray(v, dtype=float), self.is_a, self.n * thermal_voltage(temp_k))
+        n_vt = self.n * thermal_voltage(temp_k)
+        return junction(np.asarray(v, dtype=float), self.is_at(temp_k), n_vt)
 
     def voltage_at(self, i: ArrayLike, v_bound: ArrayLike, temp_k: float = TNOM_K) -> np.ndarray:
-        ratio = np.asarray(i, dtype=float) / self.is_a + 1.0
+        ratio = np.asarray(i, dtype=float) / self.is_at(temp_k) + 1.0
         lo, hi = _bracket(v_bound, np.broadcast_shapes(ratio.shape, np.shape(v_bound)))
         # at or below -IS a junction cannot carry the current at any voltage: pin to the bound
         log = np.log(np.where(ratio > 0, ratio, 1.0))
@@ -129,6 +150,8 @@ class JfetParams:
     tcv_v_per_k: float = 0.0
     bex: float = 0.0
     tnom_k: float = TNOM_K
+    eg_ev: float = 1.11
+    xti: float = 3.0
 
     def __post_init__(self) -> None:
         if not (self.idss_a > 0 and self.vto_v < 0 and self.lambda_per_v >= 0):
@@ -145,6 +168,10 @@ class JfetParams:
         """(VTO, BETA) at a temperature, by the SPICE level-1 temperature laws."""
         vto = self.vto_v - self.tcv_v_per_k * (temp_k - self.tnom_k)
         return vto, self.beta * (temp_k / self.tnom_k) ** self.bex
+
+    def is_at(self, temp_k: float) -> float:
+        """Gate-junction saturation current at a temperature (N = 1)."""
+        return saturation_current(self.is_a, temp_k, self.tnom_k, self.eg_ev, self.xti)
 
 
 def channel(vgs: np.ndarray, vgd: np.ndarray, p: JfetParams, temp_k: float):
@@ -183,10 +210,11 @@ class JfetRegulator(_Base):
         p = self.params
         vs = self.source_voltage(v, temp_k)
         i_ch, d_vgs, d_vgd = channel(-vs, -v, p, temp_k)
-        i_gd, g_gd = junction(-v, p.is_a, thermal_voltage(temp_k))
+        is_t = p.is_at(temp_k)
+        i_gd, g_gd = junction(-v, is_t, thermal_voltage(temp_k))
         if p.rs_ohm == 0:
             return i_ch - i_gd, g_gd - d_vgd
-        g_gs = junction(-vs, p.is_a, thermal_voltage(temp_k))[1]
+        g_gs = junction(-vs, is_t, thermal_voltage(temp_k))[1]
         loop = 1.0 / p.rs_ohm + d_vgs + g_gs  # d(KCL residual)/d(vs), always > 0
         # the source node follows V: dvs/dV = -d_vgd / loop (implicit differentiation)
         return i_ch - i_gd, g_gd - d_vgd * (1.0 - d_vgs / loop)
@@ -196,16 +224,16 @@ class JfetRegulator(_Base):
         p = self.params
         if p.rs_ohm == 0:
             return np.zeros_like(v)
-        n_vt = thermal_voltage(temp_k)
+        n_vt, is_t = thermal_voltage(temp_k), p.is_at(temp_k)
 
         def excess_into_rs(vs: np.ndarray) -> Pair:
             # current through RS minus what the channel and the gate-source junction deliver to
             # the source node: increasing in vs, zero where Kirchhoff's current law holds
             i_ch, d_vgs, _ = channel(-vs, -v, p, temp_k)
-            i_gs, g_gs = junction(-vs, p.is_a, n_vt)
+            i_gs, g_gs = junction(-vs, is_t, n_vt)
             return vs / p.rs_ohm - i_ch - i_gs, 1.0 / p.rs_ohm + d_vgs + g_gs
 
-        guess = self_bias_current(p) * p.rs_ohm
+        guess = self_bias_current(p, temp_k) * p.rs_ohm
         return solve_increasing(excess_into_rs, np.minimum(v, 0.0), np.maximum(v, 0.0), guess)
 
     def _voltage_guess(self, i: np.ndarray, temp_k: float) -> np.ndarray:
@@ -213,17 +241,19 @@ class JfetRegulator(_Base):
         # gate-drain junction alone. Either is close, so the solve needs only a few steps.
         p = self.params
         vto, beta = p.at(temp_k)
-        i_fwd = np.clip(i, 0.0, 0.999 * self_bias_current(p))
+        i_fwd = np.clip(i, 0.0, 0.999 * self_bias_current(p, temp_k))
         g = -vto - i_fwd * p.rs_ohm
         v_fwd = i_fwd * p.rs_ohm + g - np.sqrt(np.maximum(g * g - i_fwd / beta, 0.0))
-        v_rev = -thermal_voltage(temp_k) * np.log1p(np.maximum(-i, 0.0) / p.is_a)
+        v_rev = -thermal_voltage(temp_k) * np.log1p(np.maximum(-i, 0.0) / p.is_at(temp_k))
         return np.where(i >= 0, v_fwd, v_rev)
 
 
-def self_bias_current(p: JfetParams) -> float:
+def self_bias_current(p: JfetParams, temp_k: float = TNOM_K) -> float:
     """Saturated self-bias current for lambda = 0 (REFERENCES.md s2, the stable closed form)."""
-    k = p.idss_a * p.rs_ohm / abs(p.vto_v)
-    return 2.0 * p.idss_a / ((2.0 * k + 1.0) + np.sqrt(4.0 * k + 1.0))
+    vto, beta = p.at(temp_k)
+    idss = beta * vto * vto
+    k = idss * p.rs_ohm / abs(vto)
+    return 2.0 * idss / ((2.0 * k + 1.0) + np.sqrt(4.0 * k + 1.0))
 
 
 @dataclass(frozen=True)
@@ -254,6 +284,19 @@ class Series(_Base):
         v = self.first.voltage_at(i, v_bound, temp_k) + self.second.voltage_at(i, v_bound, temp_k)
         lo, hi = _bracket(v_bound, v.shape)
         return np.clip(v, lo, hi)
+
+
+@dataclass(frozen=True)
+class Parallel(_Base):
+    """Two devices side by side, e.g. a regulator with a leakage path across it."""
+
+    first: Device
+    second: Device
+
+    def current_slope(self, v: ArrayLike, temp_k: float = TNOM_K) -> Pair:
+        i1, g1 = self.first.current_slope(v, temp_k)
+        i2, g2 = self.second.current_slope(v, temp_k)
+        return i1 + i2, g1 + g2
 
 
 def regulator(params: JfetParams, blocking_diode: Diode | None = None) -> Device:

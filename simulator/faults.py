@@ -280,6 +280,11 @@ class FaultSchedule:
     def pending(self) -> int:
         return sum(not armed.spent for armed in self._armed)
 
+    @property
+    def waits_for_points(self) -> bool:
+        """Whether a fault still waits for an acquisition (`on: point`)."""
+        return any(armed.spec.on_point and not armed.spent for armed in self._armed)
+
     def on_unit(self, command: Command, query: bool, channel: int | None, header: str):
         """Faults that fire on this message unit, in arming order."""
         if command.pattern.upper().startswith("SIMULATION"):

@@ -1,12 +1,18 @@
-"""The simulated instrument as a whole: SMU, tray, fixture lid, status registers, error queue.
+"""The simulated instrument as a whole: SMU, tray, fixture lid, status registers, error queue,
+reading buffer and the junction temperatures of the tray's devices.
 
 Every SCPI handler calls a method here; the cross-cutting safety rules live here too, so they
 hold whichever command reaches them:
 - no hot switching: ROUTe:CLOSe is refused (-221) while the output is on above 1 V;
 - interlock: with the lid open, a level above the touch-safe threshold (42 V) is refused (-221)
-  and not applied, and so is switching the output on with such a level programmed; opening the
-  lid while such a level is applied forces the output off and queues -300 "Device-specific
-  error;interlock opened, output switched off" (so a driver polling the error queue sees it).
+  and not applied, and so is switching the output on with such a level programmed, or
+  starting a list that holds one; opening the lid while such a level is applied forces the
+  output off and queues -300 "Device-specific error;interlock opened, output switched off" (so
+  a driver polling the error queue sees it).
+Acquisitions (INITiate, READ?, MEASure?) fill the reading buffer that FETCh? answers; any change
+of level, output, routing or device empties it (FETCh? then gives -230). In LIST mode INITiate
+steps through the list, one acquisition per trigger (TRIGger:COUNt of them, wrapping round), and
+leaves the output at the last level it applied.
 Faults (simulator/faults.py) reach the instrument through `apply_fault`; a device fault
 replaces the device of one channel for the rest of the session.
 One lock guards the whole state: several client connections share one instrument.
@@ -17,12 +23,16 @@ from __future__ import annotations
 import threading
 from dataclasses import dataclass
 
+import numpy as np
+
 from simulator.clock import Clock
-from simulator.devices import Device, open_circuit, short_circuit
+from simulator.dataformat import DataFormat
+from simulator.devices import TNOM_K, Device, open_circuit, short_circuit
 from simulator.errors import ESR_OPC, ErrorQueue, ScpiError, esr_bit
 from simulator.faults import FaultSchedule, Firing
 from simulator.lot import Lot
-from simulator.smu_model import Reading, Smu
+from simulator.smu_model import Reading, Smu, Truth
+from simulator.thermal import Thermal
 from simulator.tray import Tray
 
 QUES_CURRENT = 2  # QUEStionable bit 1: the current limit was active at the last reading
@@ -67,6 +77,7 @@ class Instrument:
         touch_safe_v: float = TOUCH_SAFE_V,
         hot_switch_v: float = HOT_SWITCH_V,
         faults: FaultSchedule | None = None,
+        thermal: Thermal | None = None,
     ) -> None:
         self.lock = threading.RLock()
         self.lot = lot
@@ -78,9 +89,15 @@ class Instrument:
         self.touch_safe_v = touch_safe_v
         self.hot_switch_v = hot_switch_v
         self.lid_closed = True
-        self.last_reading: Reading | None = None
+        self.buffer: list[Reading] = []  # the acquisitions FETCh? answers
+        self.format = DataFormat()
         self.faults = faults if faults is not None else FaultSchedule(lot.seed)
         self.replaced: dict[int, Device] = {}  # channel -> device put there by a fault
+        self.thermal = thermal or Thermal(TNOM_K, now=lambda: self.clock.now_s)
+
+    @property
+    def last_reading(self) -> Reading | None:
+        return self.buffer[-1] if self.buffer else None
 
     @property
     def clock(self) -> Clock:
@@ -94,7 +111,8 @@ class Instrument:
     def reset(self) -> None:
         self.smu.reset()
         self.tray.open_all()
-        self.last_reading = None
+        self.format = DataFormat()
+        self.invalidate()
 
     def clear_status(self) -> None:
         self.errors.clear()
@@ -122,13 +140,13 @@ class Instrument:
         if not self.lid_closed and abs(volts) > self.touch_safe_v:
             raise ScpiError(-221, "interlock open")
         self.smu.set_level(volts)
-        self.last_reading = None
+        self.invalidate()
 
     def set_output(self, on: bool) -> None:
         if on and not self.lid_closed and abs(self.smu.level_v) > self.touch_safe_v:
             raise ScpiError(-221, "interlock open")
         self.smu.set_output(on)
-        self.last_reading = None
+        self.invalidate()
 
     def set_lid(self, closed: bool) -> None:
         self.lid_closed = closed
@@ -148,7 +166,7 @@ class Instrument:
             if channel is not None:
                 broken = open_circuit if kind == "device-open" else short_circuit
                 self.replaced[channel] = broken()
-                self.last_reading = None
+                self.invalidate()
         elif kind == "error":
             raise ScpiError(firing.spec.code, f"injected fault on {firing.header}")
 
@@ -164,15 +182,64 @@ class Instrument:
         if self.smu.output_on and abs(self.smu.level_v) > self.hot_switch_v:
             raise ScpiError(-221, "output on above 1 V (no hot switching)")
         self.tray.close(channels[0])
-        self.last_reading = None
+        self.invalidate()
 
     def open_all(self) -> None:
         self.tray.open_all()
-        self.last_reading = None
+        self.invalidate()
 
     # --- measurement ------------------------------------------------------------------------
 
     def measure(self) -> Reading:
+        """One acquisition at the present level; the buffer then holds just it."""
+        self.buffer = [self._acquire()]
+        return self.buffer[0]
+
+    def initiate(self) -> list[Reading]:
+        """TRIGger:COUNt acquisitions, at the fixed level or stepping through the list."""
+        smu = self.smu
+        levels = smu.list_v if smu.mode == "LIST" else (smu.level_v,)
+        if not levels:
+            raise ScpiError(-221, "LIST mode with an empty list")
+        hazardous = max(abs(v) for v in levels) > self.touch_safe_v
+        if smu.mode == "LIST" and hazardous and not self.lid_closed:
+            raise ScpiError(-221, "interlock open")
+        steps = [levels[k % len(levels)] for k in range(smu.trigger_count)]
+        truths = self._solved_ahead(steps) if smu.mode == "LIST" else None
+        readings = []  # collected apart: a fault mid-list must not lose the points before it
+        for k, volts in enumerate(steps):
+            if smu.mode == "LIST":
+                self._step_to(volts)
+            readings.append(self._acquire(truths[k] if truths else None))
+        self.buffer = readings
+        return readings
+
+    def fetch(self) -> list[Reading]:
+        if not self.buffer:
+            raise ScpiError(-230, "no reading since the last change")
+        return self.buffer
+
+    def junction_k(self) -> float:
+        return self.thermal.temperature(self.tray.closed)
+
+    def _step_to(self, volts: float) -> None:
+        if not self.lid_closed and abs(volts) > self.touch_safe_v:
+            return  # the lid opened mid-list: the output is off and stays off
+        self.smu.set_level(volts)
+        self._refresh_power()
+
+    def _solved_ahead(self, steps: list[float]) -> list[Truth] | None:
+        """The whole list in one vectorised solve, when nothing can change during the run
+        (no self-heating, no fault waiting for a point); else None: point by point."""
+        closed = self.tray.closed
+        if closed is None or not self.smu.output_on or self.thermal.heating:
+            return None
+        if self.faults.waits_for_points:
+            return None
+        device = self.device_at(closed)
+        return self.smu.true_outputs(device, np.array(steps), self.junction_k())
+
+    def _acquire(self, truth: Truth | None = None) -> Reading:
         closed = self.tray.closed
         for firing in self.faults.on_point(closed):
             try:
@@ -180,12 +247,25 @@ class Instrument:
             except ScpiError as error:  # on a point, an error is queued; the reading goes on
                 self.report(error)
         device = None if closed is None else self.device_at(closed)
-        reading = self.smu.measure(device)
+        reading = self.smu.measure(device, self.junction_k(), truth)
         self.status.set_condition(QUES_CURRENT if reading.limited else 0)
-        self.last_reading = reading
+        self._refresh_power()
         return reading
 
-    def fetch(self) -> Reading:
-        if self.last_reading is None:
-            raise ScpiError(-230, "no reading since the last change")
-        return self.last_reading
+    def invalidate(self) -> None:
+        """A level, output, route or device changed: old readings are stale, power moves."""
+        self.buffer = []
+        self._refresh_power()
+
+    def _refresh_power(self) -> None:
+        thermal = self.thermal
+        if not thermal.heating:
+            return
+        closed = self.tray.closed
+        for channel in thermal.heated_channels():
+            if channel != closed:
+                thermal.set_power(channel, 0.0)
+        if closed is not None:
+            device = self.device_at(closed)
+            volts, amps, _ = self.smu.true_output(device, thermal.temperature(closed))
+            thermal.set_power(closed, volts * amps)

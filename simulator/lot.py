@@ -2,6 +2,10 @@
 
 Each device draws from its own child of `SeedSequence(seed)`, so device k is the same whatever the
 lot size, and changing the defect rate never changes the process parameters of any device.
+
+Defect kinds (weights and ranges in data/presets.yaml): open and short replace the device;
+leaky puts a resistance across it (a lower dynamic impedance, more current everywhere, also in
+reverse); out-of-spec scales its RS so that the regulated current misses the family's +/-10 %.
 """
 
 from __future__ import annotations
@@ -10,11 +14,11 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from simulator.devices import Device, JfetParams, open_circuit, regulator, short_circuit
+from simulator.devices import Device, JfetParams, Parallel, Resistor, open_circuit, short_circuit
 from simulator.errors import OptionError
-from simulator.presets import family, preset
+from simulator.presets import Preset, family, preset
 
-DEFECT_BUILDERS = {"open": open_circuit, "short": short_circuit}  # kinds the data file may name
+DEFECT_KINDS = ("open", "short", "leaky", "out-of-spec")  # the kinds the data file may name
 
 
 @dataclass(frozen=True)
@@ -52,7 +56,7 @@ def make_lot(
         got = f"got {count}, {spread}, {defect_rate}"
         problem = f"needs count >= 1, spread >= 0, 0 <= defect rate <= 1 ({got})"
         raise OptionError("lot", problem)
-    base = preset(preset_name).params
+    base = preset(preset_name)
     children = np.random.SeedSequence(seed).spawn(count)
     devices = tuple(
         _draw(k + 1, np.random.default_rng(child), base, spread, defect_rate)
@@ -62,19 +66,43 @@ def make_lot(
 
 
 def _draw(
-    channel: int, rng: np.random.Generator, base: JfetParams, spread: float, defect_rate: float
+    channel: int, rng: np.random.Generator, base: Preset, spread: float, defect_rate: float
 ) -> LotDevice:
     sigmas = family().spread
     factors = np.exp(rng.normal(0.0, 1.0, len(sigmas)) * spread * np.array(list(sigmas.values())))
-    drawn = {name: getattr(base, name) * float(f) for name, f in zip(sigmas, factors, strict=True)}
-    params = replace(base, **drawn)
+    drawn = {
+        name: getattr(base.params, name) * float(f) for name, f in zip(sigmas, factors, strict=True)
+    }
+    params = replace(base.params, **drawn)
     defective = rng.random() < defect_rate
     kind = _defect_kind(rng) if defective else "good"
-    device = DEFECT_BUILDERS[kind]() if defective else regulator(params)
-    return LotDevice(channel, kind, params, device)
+    return LotDevice(channel, kind, params, _build(kind, base, params, rng))
+
+
+def _build(kind: str, base: Preset, params: JfetParams, rng: np.random.Generator) -> Device:
+    """The device of a drawn kind; defects draw their own values after everything else."""
+    if kind == "open":
+        return open_circuit()
+    if kind == "short":
+        return short_circuit()
+    if kind == "leaky":
+        return Parallel(base.device(params), Resistor(_log_uniform(rng, family().leaky_ohm)))
+    if kind == "out-of-spec":
+        factor = _log_uniform(rng, family().out_of_spec_rs_factor)
+        factor = factor if rng.random() < 0.5 else 1.0 / factor
+        return base.device(replace(params, rs_ohm=params.rs_ohm * factor))
+    return base.device(params)
+
+
+def _log_uniform(rng: np.random.Generator, bounds: tuple[float, float]) -> float:
+    low, high = np.log(bounds)
+    return float(np.exp(rng.uniform(low, high)))
 
 
 def _defect_kind(rng: np.random.Generator) -> str:
     weights = family().defects
+    unknown = set(weights) - set(DEFECT_KINDS)
+    if unknown:
+        raise OptionError("preset data", f"unknown defect kinds {sorted(unknown)}")
     p = np.array(list(weights.values()))
     return str(rng.choice(list(weights), p=p / p.sum()))

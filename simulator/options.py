@@ -14,6 +14,7 @@ from simulator.instrument import HOT_SWITCH_V, TOUCH_SAFE_V, Instrument
 from simulator.lot import make_lot
 from simulator.presets import preset
 from simulator.smu_model import Smu
+from simulator.thermal import Thermal, celsius_to_kelvin
 
 NOISE_STREAM = 0x5EED  # keeps the noise stream apart from the lot's streams of the same seed
 
@@ -34,6 +35,9 @@ class SimOptions:
     touch_safe_v: float = TOUCH_SAFE_V
     hot_switch_v: float = HOT_SWITCH_V
     faults: tuple[FaultSpec, ...] = ()  # armed at start (simulator/faults.py)
+    temperature: float = 27.0  # ambient, Celsius (27 C is the SPICE nominal: no shift)
+    thermal_resistance: float = 0.0  # junction to ambient, K/W; 0 turns self-heating off
+    thermal_time: float = 1.0  # thermal time constant, s
 
     def __post_init__(self) -> None:
         checks = {
@@ -45,6 +49,9 @@ class SimOptions:
             "defect_rate": (0 <= self.defect_rate <= 1, "must be 0..1"),
             "clock": (self.clock in ("real", "virtual"), "must be real or virtual"),
             "line_frequency": (self.line_frequency in (50, 60), "must be 50 or 60"),
+            "temperature": (-55 <= self.temperature <= 150, "must be -55..150 C"),
+            "thermal_resistance": (0 <= self.thermal_resistance <= 1e4, "must be 0..10000 K/W"),
+            "thermal_time": (1e-3 <= self.thermal_time <= 1e4, "must be 0.001..10000 s"),
         }
         for name, (ok, problem) in checks.items():
             if not ok:
@@ -60,6 +67,12 @@ def build_instrument(options: SimOptions | None = None) -> Instrument:
     lot = make_lot(o.seed, o.devices, o.preset, o.spread, o.defect_rate)
     rng = np.random.default_rng([NOISE_STREAM, o.seed])
     smu = Smu(make_clock(o.clock), rng, float(o.line_frequency))
+    thermal = Thermal(
+        celsius_to_kelvin(o.temperature),
+        o.thermal_resistance,
+        o.thermal_time,
+        now=lambda: smu.clock.now_s,
+    )
     return Instrument(
         lot,
         smu,
@@ -67,4 +80,5 @@ def build_instrument(options: SimOptions | None = None) -> Instrument:
         touch_safe_v=o.touch_safe_v,
         hot_switch_v=o.hot_switch_v,
         faults=FaultSchedule.of(o.faults, o.seed),
+        thermal=thermal,
     )

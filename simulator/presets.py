@@ -9,8 +9,10 @@ from typing import Any
 
 import yaml
 
-from simulator.devices import JfetParams
+from simulator.devices import Device, Diode, JfetParams, regulator
 from simulator.errors import OptionError
+
+BLOCKED_SUFFIX = "B"  # FLC-1.8B: the FLC-1.8 behind a series blocking diode
 
 
 @dataclass(frozen=True)
@@ -18,6 +20,11 @@ class Preset:
     name: str
     nominal_a: float  # regulated current at 25 V the family name promises
     params: JfetParams
+    diode: Diode | None = None  # series blocking diode at the anode, if any
+
+    def device(self, params: JfetParams | None = None) -> Device:
+        """The preset's device, or the same construction with drawn parameters."""
+        return regulator(params or self.params, self.diode)
 
 
 @dataclass(frozen=True)
@@ -26,6 +33,8 @@ class Family:
     presets: dict[str, Preset]
     spread: dict[str, float]  # relative sigma per JfetParams field at spread 1
     defects: dict[str, float]  # defect kind -> relative weight
+    leaky_ohm: tuple[float, float]  # range of a leaky device's parallel resistance
+    out_of_spec_rs_factor: tuple[float, float]  # range of an out-of-spec device's RS factor
 
 
 @cache
@@ -36,14 +45,24 @@ def family() -> Family:
 
 
 def _parse(raw: dict[str, Any]) -> Family:
+    common = {key: float(value) for key, value in raw.get("common", {}).items()}
+    diode = Diode(**{key: float(value) for key, value in raw["blocking_diode"].items()})
     presets = {}
     for name, fields in raw["presets"].items():
-        values = {key: float(value) for key, value in fields.items()}
+        values = common | {key: float(value) for key, value in fields.items()}
         nominal = values.pop("nominal_a")
-        presets[name] = Preset(name, nominal, JfetParams(**values))
+        params = JfetParams(**values)
+        presets[name] = Preset(name, nominal, params)
+        presets[name + BLOCKED_SUFFIX] = Preset(name + BLOCKED_SUFFIX, nominal, params, diode)
     spread = {key: float(value) for key, value in raw["spread"].items()}
     defects = {key: float(value) for key, value in raw["defects"].items()}
-    return Family(str(raw["default"]), presets, spread, defects)
+    leaky, factor = (_range(raw[key]) for key in ("leaky_ohm", "out_of_spec_rs_factor"))
+    return Family(str(raw["default"]), presets, spread, defects, leaky, factor)
+
+
+def _range(values: list[Any]) -> tuple[float, float]:
+    low, high = (float(value) for value in values)
+    return low, high
 
 
 def preset(name: str) -> Preset:

@@ -235,4 +235,51 @@ class Channels:
         return param.channels
 
 
-Spec = Numeric | Boolean | Choice | Strings | Channels
+@dataclass(frozen=True)
+class NumericList:
+    """One or more numbers of the same kind (a source list); too many gives -223."""
+
+    item: Numeric
+    max_count: int
+
+    def convert(self, params: tuple[Param, ...]) -> tuple[float, ...]:
+        if not params:
+            raise ScpiError(-109)
+        if len(params) > self.max_count:
+            raise ScpiError(-223, f"{len(params)} values, at most {self.max_count}")
+        return tuple(self.item.convert((param,)) for param in params)
+
+
+@dataclass(frozen=True)
+class Choices:
+    """One or more distinct items of a fixed set of character data, in the order given."""
+
+    options: tuple[str, ...]
+
+    def convert(self, params: tuple[Param, ...]) -> tuple[str, ...]:
+        if not params:
+            raise ScpiError(-109)
+        chosen = tuple(Choice(self.options).convert((param,)) for param in params)
+        if len(set(chosen)) != len(chosen):
+            raise ScpiError(-224, "an item is given twice")
+        return chosen
+
+
+@dataclass(frozen=True)
+class DataType:
+    """FORMat[:DATA]: ASCii, or REAL with an optional length that must be 32."""
+
+    def convert(self, params: tuple[Param, ...]) -> str:
+        if not params or len(params) > 2:
+            raise ScpiError(-109 if not params else -108)
+        kind = Choice(("ASCii", "REAL")).convert(params[:1])
+        if len(params) == 2:
+            length = params[1]
+            if kind != "REAL" or not isinstance(length, Number) or length.suffix:
+                raise ScpiError(-104, "FORM REAL takes a length of 32")
+            if length.value != 32:
+                raise ScpiError(-224, f"REAL,{length.value:g} (only REAL,32)")
+        return kind
+
+
+Spec = Numeric | Boolean | Choice | Strings | Channels | NumericList | Choices | DataType

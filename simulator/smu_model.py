@@ -11,6 +11,7 @@ Measurement model (documented here because a driver's tests depend on it):
   10 uV.
 - Time: each acquisition costs trigger delay + NPLC / line frequency on the injected clock.
 - Output off, or nothing connected: the true voltage and current are 0 (the reading is noise).
+- The device is evaluated at the junction temperature the instrument passes in.
 """
 
 from __future__ import annotations
@@ -20,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from simulator.clock import Clock
-from simulator.devices import Device
+from simulator.devices import TNOM_K, Device
 
 CURRENT_RANGES_A = (1e-6, 1e-5, 1e-4, 1e-3, 1e-2, 1e-1)
 OVERRANGE = 1.05
@@ -30,6 +31,7 @@ VOLTAGE_NOISE_V = 50e-6
 CURRENT_RESOLUTION_OF_RANGE = 1e-6
 VOLTAGE_RESOLUTION_V = 1e-5
 DEFAULT_LIMIT_A = 1e-3
+Truth = tuple[float, float, bool]  # noiseless volts, amps, current limit active
 
 
 @dataclass(frozen=True)
@@ -69,10 +71,16 @@ class Smu:
         self.range_auto = True
         self.range_a = CURRENT_RANGES_A[-1]
         self.sense_functions: tuple[str, ...] = ("VOLT", "CURR")
+        self.mode = "FIXed"  # or "LIST": INITiate steps through list_v
+        self.list_v: tuple[float, ...] = ()
+        self.trigger_count = 1
 
     @property
     def aperture_s(self) -> float:
         return self.nplc / self.line_frequency_hz
+
+    def set_list(self, levels: tuple[float, ...]) -> None:
+        self.list_v = levels
 
     def set_output(self, on: bool) -> None:
         self.output_on = on
@@ -91,10 +99,14 @@ class Smu:
     def max_applied_v(self) -> float:
         return max((abs(v) for v in self.applied_levels), default=0.0)
 
-    def measure(self, device: Device | None) -> Reading:
-        """One acquisition of (V, I) on the connected device (None: nothing connected)."""
+    def measure(
+        self, device: Device | None, temp_k: float = TNOM_K, truth: Truth | None = None
+    ) -> Reading:
+        """One acquisition of (V, I) on the connected device (None: nothing connected).
+
+        `truth` is the noiseless (V, I, limited) when the caller has solved it already."""
         self.clock.spend(self.trigger_delay_s + self.aperture_s)
-        volts, amps, limited = self._true_output(device)
+        volts, amps, limited = truth if truth is not None else self.true_output(device, temp_k)
         if self.range_auto:
             self.range_a = range_for(amps)
         scale = 1.0 / np.sqrt(self.nplc)
@@ -107,15 +119,27 @@ class Smu:
             i = float(np.copysign(OVERFLOW_READING, i))
         return Reading(v, i, limited, overflow, self.range_a)
 
-    def _true_output(self, device: Device | None) -> tuple[float, float, bool]:
+    def true_outputs(self, device: Device, levels: np.ndarray, temp_k: float) -> list[Truth]:
+        """true_output at many levels in one vectorised solve (output on, same limit)."""
+        amps = np.asarray(device.current(levels, temp_k), dtype=float)
+        limited = np.abs(amps) > self.limit_a
+        clamp = np.copysign(self.limit_a, amps)
+        volts = np.array(levels, dtype=float)
+        if limited.any():
+            volts[limited] = device.voltage_at(clamp[limited], volts[limited], temp_k)
+        amps = np.where(limited, clamp, amps)
+        return [(float(v), float(i), bool(k)) for v, i, k in zip(volts, amps, limited, strict=True)]
+
+    def true_output(self, device: Device | None, temp_k: float = TNOM_K) -> Truth:
+        """(V, I, limited) at the terminals without noise: what the device really sees."""
         if not self.output_on or device is None:
             return 0.0, 0.0, False
         volts = self.level_v
-        amps = float(device.current(volts))
+        amps = float(device.current(volts, temp_k))
         if abs(amps) <= self.limit_a:
             return volts, amps, False
         clamp = float(np.copysign(self.limit_a, amps))
-        return float(device.voltage_at(clamp, volts)), clamp, True
+        return float(device.voltage_at(clamp, volts, temp_k)), clamp, True
 
 
 def _round(value: float, step: float) -> float:

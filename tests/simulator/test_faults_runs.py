@@ -18,6 +18,7 @@ from pathlib import Path
 import pytest
 
 from instruments import Connection, connect
+from instruments import transport as transport_module
 from instruments.errors import InstrumentDisconnected, InstrumentTimeout, ReplyError, ScpiError
 from instruments.transport import open_visa
 from sequencer.lotrun import run_lot
@@ -137,8 +138,8 @@ def test_late_reply_aborts_the_device_and_the_next_run_is_in_step(bench):
             ("FK-FAULT-001", "pass", POINTS),
             ("FK-FAULT-002", "aborted", 4),  # the four points before the fault are kept
         ]
-        # recovery: the transport resynchronises (here by a fresh link, since the reply comes
-        # later than its probe waits); a new run on the same connection reads no stale reply
+        # recovery: before its next query the transport drains, sends *IDN? and waits behind
+        # the late reply for that answer; a new run on the same connection reads no stale reply
         again, out2 = b.run(conn, "again")
         assert again is None
         assert [d[1] for d in stored(out2)] == ["pass", "pass", "pass"]
@@ -146,17 +147,19 @@ def test_late_reply_aborts_the_device_and_the_next_run_is_in_step(bench):
     assert not b.output_on()
 
 
-def test_slightly_late_reply_is_discarded_in_the_same_link(bench):
-    b = bench("late-reply:on=READ?,after=3,delay=0.45")
+def test_a_reply_later_than_the_resync_wait_is_still_never_taken_for_an_answer(bench, monkeypatch):
+    monkeypatch.setattr(transport_module, "RESYNC_WAIT_S", 0.4)
+    b = bench("late-reply:on=READ?,after=3,delay=1.2")
     with b.connect() as conn:
         for _ in range(3):
             conn.smu.measure()
         with pytest.raises(InstrumentTimeout):
-            conn.smu.measure()
-        transport = conn.smu.transport
-        before = transport._inst  # the link itself
-        assert conn.smu.output_is_on() is False  # the late reading is discarded, not returned
-        assert transport._inst is before
+            conn.smu.measure()  # times out after 0.3 s
+        with pytest.raises(InstrumentTimeout):
+            conn.smu.output_is_on()  # its resync gives up at 0.4 s, 0.5 s before the reply
+        time.sleep(1.0)  # the late reading and the first probe's answer arrive meanwhile
+        assert conn.smu.output_is_on() is False  # neither is read as OUTP?'s answer
+        assert conn.smu.identify().startswith("CCBENCH")
 
 
 def test_no_reply_aborts_the_device(bench):

@@ -198,3 +198,17 @@ def test_station_faults_are_read_with_their_line(tmp_path: Path):
     path.write_text(STATION.format(faults="    - {kind: close, when: 3}"))
     with pytest.raises(RecipeError, match=r":8: simulator.faults\[0\].when is not a known"):
         recipe_module.load_station(path)
+
+
+def test_embedded_command_line_carries_faults_and_thermal_options():
+    from instruments.embedded import simulator_command
+
+    faults = ["close:after=3", {"kind": "error", "on": "SOUR:VOLT", "code": -222}]
+    command = simulator_command({"faults": faults, "temperature": 85, "thermal_resistance": 200})
+    args = cli.build_parser().parse_args(command[3:])
+    options = cli.options_from(args)
+    assert options.faults == (
+        parse_fault("close:after=3"),
+        parse_fault("error:on=SOUR:VOLT,code=-222"),
+    )
+    assert (options.temperature, options.thermal_resistance) == (85.0, 200.0)

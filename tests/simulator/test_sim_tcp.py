@@ -10,6 +10,7 @@ import sys
 from collections.abc import Iterator
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from simulator import ServerHandle, SimOptions, start_server
@@ -81,6 +82,24 @@ def test_pyvisa_session_runs_the_driver_messages(served: ServerHandle, visa):
     inst.write("OUTP OFF")
     assert inst.query("*OPC?") == "1"  # the write has been executed
     assert second.query("OUTP?") == "0"
+
+
+@pytest.mark.parametrize(("order", "big_endian"), [("NORM", True), ("SWAP", False)])
+def test_binary_block_reads_through_pyvisa_and_ends_with_a_newline(
+    served: ServerHandle, visa, order: str, big_endian: bool
+):
+    inst = visa(served.resource)
+    levels = np.linspace(0.0, 30.0, 301)  # 301 x 2 float32 = 2408 bytes, LF bytes likely inside
+    inst.write("ROUT:CLOS (@1);:CURR:LIM 10 MA;:OUTP ON;:VOLT:MODE LIST;:TRIG:COUN 301")
+    inst.write("LIST:VOLT " + ",".join(f"{v:.2f}" for v in levels))
+    inst.write(f"FORM REAL,32;:FORM:BORD {order}")
+    values = inst.query_binary_values(
+        "READ?", datatype="f", is_big_endian=big_endian, container=np.array
+    )  # pyvisa expects the LF after the block by default (expect_termination=True)
+    np.testing.assert_allclose(values[0::2], levels, atol=1e-3)
+    assert inst.query("FORM ASC;:FETC?").count(",") == 2 * 301 - 1  # still in step
+    raw = raw_exchange(served.port, [b"FORM REAL,32;:FETC?\n"], 1)
+    assert raw[0].startswith(b"#42408")  # definite length, 4 digits
 
 
 def test_byte_stream_crlf_and_split_messages(served: ServerHandle):
