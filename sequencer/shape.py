@@ -19,6 +19,7 @@ from .judgesettings import SHAPES, JudgeSettings
 from .slopes import masked_mean
 
 OK, OPEN, SHORT, CLAMPED, OSCILLATING, NON_MONOTONIC = range(len(SHAPES))
+COLLAPSE_FRACTION = 0.5
 
 
 def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -30,8 +31,16 @@ def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     # Later assignments overwrite earlier ones: go from the last test to the first.
     drop, peak = _drawdown(r)
     _mark(shape, quoted, drop > s.shape.drop_limit * peak, NON_MONOTONIC, drop)
-    scatter = np.fmax(sigma / level, _spot_scatter(r, s.test_voltage_v))
+    # Scatter relative to a current that has fallen to the open threshold says nothing about
+    # oscillation (a part gone open mid-sweep reads pA of noise around pA), so the floor.
+    floor = s.shape.open_below_a
+    spot_sd, spot_mean = _spot_scatter(r, s.test_voltage_v)
+    scatter = np.fmax(sigma / np.fmax(level, floor), spot_sd / np.fmax(spot_mean, floor))
     _mark(shape, quoted, scatter > s.shape.scatter_limit, OSCILLATING, scatter)
+    # A fall by most of the peak is one event (a part going open mid-sweep), not scatter; it
+    # would also inflate the scatter estimate, so it keeps its own name.
+    collapse = drop > COLLAPSE_FRACTION * peak
+    _mark(shape, quoted, collapse, NON_MONOTONIC, drop)
     v, i, good, clamped = r.take(r.layout.forward)
     top = np.where(good, np.abs(i), 0.0).max(axis=1, initial=0.0)
     any_clamped = clamped.any(axis=1)
@@ -86,15 +95,15 @@ def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
     return np.sqrt(var), np.abs(level)
 
 
-def _spot_scatter(r, volts: float) -> np.ndarray:
-    """Relative standard deviation of repeated spot readings at the test voltage."""
+def _spot_scatter(r, volts: float) -> tuple[np.ndarray, np.ndarray]:
+    """(standard deviation, |mean|) of repeated spot readings at the test voltage."""
     cols = r.layout.at(volts, "spot")
     n = r.voltage.shape[0]
     if cols.size < 2:
-        return np.full(n, np.nan)
+        return np.full(n, np.nan), np.full(n, np.nan)
     _, i, good, _ = r.take(cols)
     count, mean, sd = masked_mean(i, good)
-    return np.where(count >= 2, sd / np.abs(mean), np.nan)
+    return np.where(count >= 2, sd, np.nan), np.abs(mean)
 
 
 def _drawdown(r) -> tuple[np.ndarray, np.ndarray]:

@@ -135,3 +135,12 @@ def test_unreadable_curve_is_incomplete_not_open():
     j = judge_curve(spots_only, JudgeSettings())
     assert j.figures["regulated_current"].value == pytest.approx(1.8e-3)
     assert "limiting voltage missing: there is no forward sweep" in j.reasons
+
+
+def test_a_part_going_open_mid_sweep_is_non_monotonic_not_oscillating():
+    # The current collapses to noise at 7 V: one event, whatever it does to the scatter estimate.
+    rng = np.random.default_rng(5)
+    current = np.where(GRID < 7.0, GOOD, 0.0) + rng.normal(0, 10e-12, GRID.size)
+    j = _judge(current)
+    assert j.classification == "non-monotonic"
+    assert j.reasons[0].startswith("non-monotonic: the current falls")

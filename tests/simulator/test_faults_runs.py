@@ -223,7 +223,10 @@ def test_interlock_opening_mid_sweep_forces_the_output_off_and_stops_the_run(ben
 
 @pytest.mark.parametrize(
     ("kind", "reason"),
-    [("device-open", "regulated current"), ("device-short", "short: compliance reached")],
+    [
+        ("device-open", "non-monotonic: the current falls"),
+        ("device-short", "short: compliance reached"),
+    ],
 )
 def test_device_failing_mid_sweep_is_judged_and_the_run_goes_on(bench, kind, reason):
     b = bench(f"{kind}:on=point,channel=2,after=15")
