@@ -16,13 +16,12 @@ from pathlib import Path
 
 from rich.console import Console
 
-from . import __version__
+from . import __version__, results, runsession
 from .errors import CcbenchError, RunError, SafetyError
 from .lotrun import run_lot
 from .plan import make_plan
 from .recipe import Recipe, load_recipe
 from .safety import CAUTION, is_hazardous, preflight
-from .store import RunStore
 from .view import device_line, plan_summary, plan_table, progress_bar, summary_table
 
 EXIT_INTERRUPTED = 130
@@ -50,10 +49,13 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
+    runsession.add_run_options(run)
 
     check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
     check.add_argument("recipe", type=Path)
     check.add_argument("--station", type=Path, help="station file instead of the recipe's")
+
+    results.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -101,10 +103,15 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     _cautions(console, recipe, plan)
     console.print(plan_summary(recipe, plan), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
-    store = RunStore.create(out, _manifest(recipe, args, resource))
+    repeat = runsession.repeat_for(recipe, args)
+    manifest = _manifest(recipe, args, resource)
+    manifest |= runsession.manifest_extras(recipe, resource, repeat)
+    store = runsession.open_store(out, manifest, args, console)
+    if runsession.nothing_left(console, store, plan, repeat, _now()):
+        return 0
     status = "failed"
     try:
-        with open(out / "scpi.log", "w", encoding="utf-8") as log:
+        with open(out / "scpi.log", "a", encoding="utf-8") as log:
             conn = connect(
                 resource,
                 dialect=recipe.station.dialect,
@@ -116,7 +123,11 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
                 store.set_identity(conn.resource, conn.identity)
                 console.print(f"instrument: {conn.identity} at {conn.resource}", soft_wrap=True)
                 conn.smu.safe_state()
-                summary = _measure(console, recipe, plan, conn.smu, store)
+
+                def measure(part):
+                    return _measure(console, recipe, part, conn.smu, store)
+
+                summary = runsession.measure_passes(console, store, plan, repeat, measure)
         status = summary.status
     except InstrumentError as exc:
         raise RunError(f"instrument: {exc}") from None
@@ -124,7 +135,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         status = "interrupted"
         raise
     finally:
-        store.finish(status, _now())
+        if problem := store.finish(status, _now()):
+            console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
     console.print(summary_table(summary))
     console.print(f"results: {out / 'devices.csv'}", soft_wrap=True)
     return 0
@@ -190,7 +202,7 @@ def cmd_sim(args: argparse.Namespace, console: Console) -> int:
         return 0
 
 
-COMMANDS = {"run": cmd_run, "check": cmd_check, "sim": cmd_sim}
+COMMANDS = {"run": cmd_run, "check": cmd_check, "sim": cmd_sim, "results": results.cmd_results}
 
 
 if __name__ == "__main__":

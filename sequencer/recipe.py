@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from .repeat import Repeat, parse_repeat
 from .units import UnitProblem, parse_quantity
 from .yamlsource import Source, load_yaml
 
@@ -126,6 +127,7 @@ class Recipe:
     judge: JudgeSettings
     operator: str = ""
     text: str = ""
+    repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
 
     @property
     def digest(self) -> str:
@@ -315,9 +317,10 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     top.check(0.01 <= nplc <= 10, "nplc", f"must be 0.01 to 10 power-line cycles (got {nplc})")
     steps = _steps(source, top.raw("steps"))
     judge = _judge(source, top.raw("judge", {}))
+    repeat = parse_repeat(source, top.raw("repeat", None))
     top.finish()
     text = path.read_text(encoding="utf-8")
-    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text)
+    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text, repeat)
 
 
 def _steps(source: Source, value: Any) -> tuple[Step, ...]:
