@@ -86,8 +86,9 @@ def parse_repeat(source: Source, value: Any) -> Repeat | None:
     passes = value.get("passes")
     if passes is not None and (isinstance(passes, bool) or not isinstance(passes, int)):
         raise source.error("repeat.passes", f"must be a whole number (got {passes!r})")
+    every_s, for_s = time("every") or 0.0, time("for")
     try:
-        return Repeat(time("every") or 0.0, time("for"), passes)
+        return Repeat(every_s, for_s, passes)
     except ValueError as exc:
         raise source.error("repeat", str(exc)) from None
 

@@ -11,6 +11,7 @@ import math
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from rich import box
 from rich.console import Console
 from rich.table import Table
 
@@ -52,7 +53,7 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
     keep = Filter(args.lot, args.product, since, args.verdict)
     folders = find_runs(args.run_dirs, args.under)
     table = merge_runs(folders, keep)
-    console.print(runs_table(table))
+    console.print(runs_table(table, show_yield=args.verdict is None))
     if args.devices:
         console.print(devices_table(table))
     target, kind = (args.parquet, "parquet") if args.parquet else (args.csv, "csv")
@@ -64,36 +65,43 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
     return 0
 
 
-def runs_table(frame: pd.DataFrame) -> Table:
-    """One line per run: where, what, when, and how its (selected) devices came out."""
-    table = Table(title="Runs", title_justify="left")
-    for column in ("folder", "lot", "product", "started", "status", "passes", "devices"):
-        table.add_column(column)
-    for column in ("pass", "fail", "yield"):
-        table.add_column(column, justify="right")
+def runs_table(frame: pd.DataFrame, *, show_yield: bool = True) -> Table:
+    """One line per run: where, what, when, and how its (selected) devices came out; the yield
+    is of the judged devices (pass and fail) and left out when a verdict filter is on."""
+    table = Table(
+        title="Runs",
+        title_justify="left",
+        box=box.SIMPLE_HEAD,
+        pad_edge=False,
+        collapse_padding=True,
+    )
+    longest = max((len(str(f)) for f in frame["folder"].unique()), default=6)
+    table.add_column("folder", overflow="fold", min_width=min(longest, 24))
+    for column in ("lot", "started (UTC)", "status"):
+        table.add_column(column, no_wrap=True)
+    for column in ("devices", "pass", "fail", "yield"):
+        table.add_column(column, justify="right", no_wrap=True)
     if frame.empty:
         return table
     for folder, group in frame.groupby("folder", sort=False):
         verdicts = group["verdict"].value_counts()
-        judged = int(verdicts.get("pass", 0) + verdicts.get("fail", 0))
-        good = int(verdicts.get("pass", 0))
+        good, bad = int(verdicts.get("pass", 0)), int(verdicts.get("fail", 0))
+        passes = group["pass"].nunique()
         table.add_row(
             str(folder),
             _text(group["lot"].iloc[0]),
-            _text(group["product"].iloc[0]),
-            _text(group["run_started"].iloc[0])[:19],
+            _text(group["run_started"].iloc[0])[:16].replace("T", " "),
             _text(group["run_status"].iloc[0]),
-            str(group["pass"].nunique()),
-            str(len(group)),
+            f"{len(group)}" + (f" in {passes} passes" if passes > 1 else ""),
             str(good),
-            str(int(verdicts.get("fail", 0))),
-            f"{100 * good / judged:.1f} %" if judged else "—",
+            str(bad),
+            f"{100 * good / (good + bad):.1f}%" if good + bad and show_yield else "—",
         )
     return table
 
 
 def devices_table(frame: pd.DataFrame) -> Table:
-    table = Table(title="Devices", title_justify="left")
+    table = Table(title="Devices", title_justify="left", box=box.SIMPLE_HEAD)
     for column in ("folder", "device", "pass", "verdict", *(s for _, s, _ in SHOWN_FIGURES)):
         table.add_column(column)
     for values in frame.to_dict("records"):
