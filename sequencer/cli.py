@@ -135,7 +135,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         status = "interrupted"
         raise
     finally:
-        if problem := store.finish(status, _now()):
+        problem = store.finish(status, _now())  # after a failure, the failure is the news
+        if problem and status == "completed":
             console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
     console.print(summary_table(summary))
     console.print(f"results: {out / 'devices.csv'}", soft_wrap=True)

@@ -79,6 +79,15 @@ def update_session(db: sqlite3.Connection, run_id: int, number: int, **fields: A
         )
 
 
+def mark_lost(db: sqlite3.Connection, run_id: int, status: str) -> None:
+    """Sessions still 'running' when a new one begins ended without recording it."""
+    with transaction(db):
+        db.execute(
+            "UPDATE session SET status = ? WHERE run_id = ? AND status = 'running'",
+            (status, run_id),
+        )
+
+
 def write_device(db: sqlite3.Connection, run_id: int, entry: dict[str, Any]) -> bool:
     """Store one journal entry (device row and its points) in one transaction. An entry for a
     device already stored (an aborted one, measured again on resume) replaces it. Returns

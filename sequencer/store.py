@@ -90,6 +90,7 @@ def device_row(judgement: Judgement, channel: int) -> dict[str, Any]:
 JOURNAL_FILE = "journal.jsonl"
 DATABASE_FILE = "results.sqlite"
 CSV_FILE = "devices.csv"
+LOST = "ended unrecorded"  # a session whose process died (SIGKILL, power cut) before its end
 
 
 @dataclass
@@ -171,27 +172,23 @@ class RunStore:
     ) -> RunStore:
         run = read_manifest(folder)
         notes = [check_recipe(folder, run, manifest, accept)]
-        try:
-            seq, note = journal_notes(folder)
-            db, run_id, rebuilt = open_or_rebuild(folder, run)
-            applied = catch_up(db, run_id, folder, seq)
-            csv_file = _rewrite_csv(folder, db, run_id)
-            journal = Journal(folder / JOURNAL_FILE, last_seq=seq)
-        except OSError as exc:
-            raise StoreError(f"{folder}: cannot be resumed ({exc.strerror or exc})") from None
-        except sqlite3.Error as exc:
-            raise StoreError(f"{folder}/{DATABASE_FILE}: cannot be resumed ({exc})") from None
-        notes += [note, rebuilt]
-        if applied:
-            notes.append(f"{DATABASE_FILE} and {CSV_FILE} caught up with the journal")
+        db, run_id, journal, csv_file, found = _reopen(folder, run)
         number = len(run.get("sessions", [])) + 1
         session = session_info(number, manifest, run)
-        run.setdefault("sessions", []).append(session)
+        for earlier in run.setdefault("sessions", []):
+            if earlier.get("status") == "running":  # its process died without a word
+                earlier["status"] = LOST
+        run["sessions"].append(session)
         run["status"] = "running"
         store = cls(folder, db, run_id, journal, csv_file, lock, run)
-        store._write_meta(lambda: dbase.begin_session(db, run_id, number, session))
-        store._write_meta(lambda: dbase.update_run(db, run_id, status="running"))
-        done = [n for n in notes if n]
+        try:
+            store._write_meta(lambda: dbase.mark_lost(db, run_id, LOST))
+            store._write_meta(lambda: dbase.begin_session(db, run_id, number, session))
+            store._write_meta(lambda: dbase.update_run(db, run_id, status="running"))
+        except BaseException:
+            store._close()
+            raise
+        done = [n for n in notes + found if n]
         store.progress = progress(db, run_id, number, str(run.get("started", "")), done)
         return store
 
@@ -253,10 +250,15 @@ class RunStore:
             self._try(lambda: dbase.update_session(self.db, self.run_id, self.session, **ends)),
             self._try(lambda: write_manifest(self.folder, self.manifest)),
         ]
-        for close in (self.db.close, self.journal.close, self.csv_file.close, self.lock.release):
-            problems.append(self._try(close))
+        problems.append(self._close())
         found = [p for p in problems if p]
         return f"{self.folder}: end of run not recorded ({found[0]})" if found else ""
+
+    def _close(self) -> str:
+        """Close every file; the lock goes last, once nothing more is written."""
+        problems = [self._try(close) for close in (self.db.close, self.journal.close)]
+        problems += [self._try(self.csv_file.close), self._try(self.lock.release)]
+        return next((p for p in problems if p), "")
 
     def _write_meta(self, write: Any) -> None:
         problem = self._try(write)
@@ -270,6 +272,28 @@ class RunStore:
         except (OSError, sqlite3.Error) as exc:
             return getattr(exc, "strerror", None) or str(exc)
         return ""
+
+
+def _reopen(
+    folder: Path, run: dict[str, Any]
+) -> tuple[sqlite3.Connection, int, Journal, IO[str], list[str]]:
+    """The folder's files brought up to date from the journal, open again for writing."""
+    db = None
+    try:
+        seq, torn = journal_notes(folder)
+        db, run_id, rebuilt = open_or_rebuild(folder, run)
+        applied = catch_up(db, run_id, folder, seq)
+        csv_file = _rewrite_csv(folder, db, run_id)
+        journal = Journal(folder / JOURNAL_FILE, last_seq=seq)
+    except BaseException as exc:
+        if db is not None:
+            db.close()
+        if isinstance(exc, OSError | sqlite3.Error):
+            why = getattr(exc, "strerror", None) or str(exc)
+            raise StoreError(f"{folder}: cannot be resumed ({why})") from None
+        raise
+    caught = f"{DATABASE_FILE} and {CSV_FILE} caught up with the journal" if applied else ""
+    return db, run_id, journal, csv_file, [torn, rebuilt, caught]
 
 
 def _rewrite_csv(folder: Path, db: sqlite3.Connection, run_id: int) -> IO[str]:
