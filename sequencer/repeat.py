@@ -42,7 +42,8 @@ class Repeat:
         return self.for_s is None and self.passes is None
 
     def describe(self) -> str:
-        parts = [f"a pass every {_duration(self.every_s)}"]
+        every = f"a pass every {_duration(self.every_s)}"
+        parts = [every if self.every_s else "one pass straight after another"]
         if self.for_s is not None:
             parts.append(f"for {_duration(self.for_s)}")
         if self.passes is not None:
@@ -56,6 +57,8 @@ class Repeat:
 
 
 def _duration(seconds: float) -> str:
+    if seconds == 0:
+        return "0 s"
     for unit, size in (("h", 3600.0), ("min", 60.0)):
         if seconds >= size and (seconds / size) == round(seconds / size, 3):
             return f"{seconds / size:g} {unit}"

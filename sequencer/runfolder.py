@@ -124,7 +124,11 @@ def read_manifest(folder: Path) -> dict[str, Any]:
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        raise FolderRefused(folder, "holds no run to resume (no manifest.json)") from None
+        raise FolderRefused(
+            folder,
+            "holds a run without manifest.json (an older ccbench's); it can be read "
+            "with `ccbench results` but not resumed",
+        ) from None
     except (OSError, ValueError) as exc:
         raise StoreError(f"{path}: cannot be read ({exc})") from None
     if not isinstance(data, dict) or data.get("manifest_format") != MANIFEST_FORMAT:

@@ -66,6 +66,8 @@ def open_store(
     """Lock the folder and open a new run in it, or continue the one it holds (--resume)."""
     if args.accept_changed_recipe and not args.resume:
         raise RecipeError("command line", None, "--accept-changed-recipe", "needs --resume")
+    if args.resume and args.out is None:
+        raise RecipeError("command line", None, "--resume", "needs --out, the run's folder")
     if not args.resume:
         return RunStore.create(out, manifest)
     store = RunStore.resume(out, manifest, accept_changed_recipe=args.accept_changed_recipe)
@@ -120,7 +122,11 @@ def measure_passes(
             soft_wrap=True,
         )
 
-    return run_passes(store, plan, repeat, measure, on_pass=passed, on_wait=waiting)
+    summary = run_passes(store, plan, repeat, measure, on_pass=passed, on_wait=waiting)
+    if repeat is not None or store.progress.stored:
+        devices, passes = store.counts()
+        console.print(f"run in all: {devices} devices stored over {passes} passes", soft_wrap=True)
+    return summary
 
 
 def _counts(s: RunSummary) -> str:

@@ -228,6 +228,13 @@ class RunStore:
         csv.writer(self.csv_file).writerow([_csv(entry.get(c)) for c in RUN_CSV_COLUMNS])
         self.csv_file.flush()
 
+    def counts(self) -> tuple[int, int]:
+        """Devices stored in the run so far, and over how many passes."""
+        row = self.db.execute(
+            "SELECT COUNT(*), COUNT(DISTINCT pass) FROM device WHERE run_id = ?", (self.run_id,)
+        ).fetchone()
+        return int(row[0]), int(row[1])
+
     def set_identity(self, resource: str, identity: str) -> None:
         """The instrument this session talks to (resource string and *IDN? reply)."""
         self.manifest.update(resource=resource, identity=identity)

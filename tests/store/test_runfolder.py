@@ -11,6 +11,7 @@ import sqlite3
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import pytest
 
@@ -151,3 +152,21 @@ def test_an_unwritable_folder_is_one_clear_error(tmp_path, monkeypatch):
         RunStore.create(tmp_path / "run", MANIFEST)
     monkeypatch.undo()
     assert list((tmp_path / "run").iterdir()) == []
+
+
+@pytest.mark.robustness
+def test_a_folder_from_the_first_release_is_readable_but_not_resumable(tmp_path):
+    folder = tmp_path / "old"
+    folder.mkdir()
+    db = sqlite3.connect(folder / "results.sqlite")
+    db.executescript((Path(__file__).parent / "data" / "run-v1.sql").read_text())
+    db.execute("PRAGMA user_version = 1")
+    db.close()
+    (folder / "journal.jsonl").write_text('{"device": "FK2611-03-001"}\n')
+    with pytest.raises(FolderRefused, match=r"without manifest\.json .* not resumed"):
+        RunStore.resume(folder, MANIFEST)
+    with pytest.raises(FolderRefused, match="already holds a run"):
+        RunStore.create(folder, MANIFEST)
+    db = sqlite3.connect(folder / "results.sqlite")
+    assert db.execute("PRAGMA user_version").fetchone() == (1,)  # refused before any change
+    db.close()
