@@ -189,12 +189,15 @@ def run(folder: Path, passes: int, sample_every: float, remember: bool) -> tuple
     recipe = load_recipe(folder / "recipe.yaml")
     plan = make_plan(recipe)
     assert plan.points_per_device == POINTS_PER_DEVICE
-    instrument = build_instrument(SimOptions(seed=2611, spread=1.3, defect_rate=0.05,
-                                             clock="virtual"))  # fmt: skip
+    instrument = build_instrument(
+        SimOptions(seed=2611, spread=1.3, defect_rate=0.05, clock="virtual")
+    )
     if remember:
         remember_physics(instrument)
-    store = RunStore.create(folder / "run", {"started": "2026-05-04T22:00:00.000+00:00",
-                                             "lot": recipe.lot, "product": recipe.product})  # fmt: skip
+    store = RunStore.create(
+        folder / "run",
+        {"started": "2026-05-04T22:00:00.000+00:00", "lot": recipe.lot, "product": recipe.product},
+    )
     clock, sampler = VirtualClock(), Sampler(sample_every)
     with open(folder / "run" / "scpi.log", "w", encoding="utf-8") as log:
         transport = SpyTransport(CallableTransport(Session(instrument).handle, "loop"), log)
@@ -210,8 +213,15 @@ def run(folder: Path, passes: int, sample_every: float, remember: bool) -> tuple
             instrument.tray.history.clear()
 
         started = time.monotonic()
-        run_passes(store, plan, Repeat(600.0, passes=passes), measure, on_pass=pass_done,
-                   clock=clock, sleep=clock.sleep)  # fmt: skip
+        run_passes(
+            store,
+            plan,
+            Repeat(600.0, passes=passes),
+            measure,
+            on_pass=pass_done,
+            clock=clock,
+            sleep=clock.sleep,
+        )
         seconds = time.monotonic() - started
     sampler.take(time.monotonic() - sampler.start)
     store.finish("completed", "2026-05-05T06:00:00.000+00:00")
@@ -225,8 +235,10 @@ def report(run: Path, sampler: Sampler, seconds: float, passes: int, traced: boo
     print(f"\n{sampler.points:,} points in {seconds:.0f} s ({sampler.points / seconds:,.0f}/s)")
     print(f"peak resident memory (ru_maxrss): {peak:.1f} MB (target under {TARGET_MB:.0f} MB)")
     if later and first is not None:
-        print(f"after the first minute: RSS {first:.1f} -> {later[-1]:.1f} MB "
-              f"(max {max(later):.1f}, growth {later[-1] - first:+.1f} MB)")  # fmt: skip
+        print(
+            f"after the first minute: RSS {first:.1f} -> {later[-1]:.1f} MB "
+            f"(max {max(later):.1f}, growth {later[-1] - first:+.1f} MB)"
+        )
     else:
         print("the run took less than a minute: no samples after the first minute")
     if traced:
@@ -239,8 +251,10 @@ def report(run: Path, sampler: Sampler, seconds: float, passes: int, traced: boo
     journal = (run / "journal.jsonl").read_bytes().count(b"\n")
     with open(run / "devices.csv", "rb") as f:
         csv_rows = sum(1 for _ in f) - 1
-    print(f"stored: {stored_points:,} points, {stored_devices:,} devices in results.sqlite; "
-          f"{journal:,} journal lines; {csv_rows:,} CSV rows; {passes * DEVICES:,} expected")  # fmt: skip
+    print(
+        f"stored: {stored_points:,} points, {stored_devices:,} devices in results.sqlite; "
+        f"{journal:,} journal lines; {csv_rows:,} CSV rows; {passes * DEVICES:,} expected"
+    )
     ok = peak < TARGET_MB and stored_points == sampler.points and journal == passes * DEVICES
     print("meets the target" if ok else "DOES NOT meet the target")
 

@@ -62,6 +62,16 @@ def write_recipe(
     return path
 
 
+@pytest.fixture(autouse=True)
+def _fresh_visa_manager() -> None:
+    """In-process runs open the simulator through instruments.transport's cached pyvisa
+    manager; tests/simulator/test_sim_tcp.py closes pyvisa's shared '@py' manager, which is
+    the same object, so start each test from a fresh one."""
+    from instruments import transport
+
+    transport._resource_manager.cache_clear()
+
+
 @pytest.fixture
 def recipe_file(tmp_path: Path) -> Path:
     return write_recipe(tmp_path / "recipes")
