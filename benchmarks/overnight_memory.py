@@ -27,6 +27,7 @@ import shutil
 import sqlite3
 import sys
 import tempfile
+import textwrap
 import time
 import tracemalloc
 from dataclasses import replace
@@ -159,7 +160,7 @@ def main() -> int:
     args = parse_args()
     folder = Path(args.folder) if args.folder else Path(tempfile.mkdtemp(prefix="overnight-"))
     passes = math.ceil(args.points / (DEVICES * POINTS_PER_DEVICE))
-    print(__doc__.split("\n\n")[1].replace("\n", " ").strip(), "\n")
+    print(textwrap.fill(__doc__.split("\n\n")[2].replace("\n", " "), 100), "\n")
     print(f"{passes} passes x {DEVICES} devices x {POINTS_PER_DEVICE} points into {folder / 'run'}")
     if args.tracemalloc:
         tracemalloc.start()

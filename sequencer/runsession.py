@@ -125,7 +125,8 @@ def measure_passes(
     summary = run_passes(store, plan, repeat, measure, on_pass=passed, on_wait=waiting)
     if repeat is not None or store.progress.stored:
         devices, passes = store.counts()
-        console.print(f"run in all: {devices} devices stored over {passes} passes", soft_wrap=True)
+        over = f"{passes} pass" + ("es" if passes != 1 else "")
+        console.print(f"run in all: {devices} devices stored over {over}", soft_wrap=True)
     return summary
 
 

@@ -178,3 +178,26 @@ def test_a_really_full_and_then_read_only_filesystem(tmp_path, recipe):
         assert code == 0, text
         journal, in_db, in_csv = stored(out)
         assert in_csv == in_db == journal == [f"FK2611-07-{c:03d}" for c in range(1, 6)]
+
+
+def test_a_torn_journal_line_is_named_on_resume_and_its_device_measured_again(tmp_path, recipe):
+    out = tmp_path / "run"
+    assert ccbench("run", str(recipe), "--sim", "--out", str(out))[0] == 0
+    journal = out / "journal.jsonl"
+    lines = journal.read_bytes().splitlines(keepends=True)
+    journal.write_bytes(b"".join(lines[:-1]) + lines[-1][:120])  # the crash cut the last line
+    db = sqlite3.connect(out / "results.sqlite")  # ... before the database had it
+    db.execute("DELETE FROM point WHERE device = 'FK2611-07-005'")
+    db.execute("DELETE FROM device WHERE device = 'FK2611-07-005'")
+    db.commit()
+    db.close()
+    code, text = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume")
+    assert code == 0, text
+    assert (
+        "resume: journal.jsonl: dropped a torn last line (120 bytes) left by the crash; the 4 "
+        "entries before it are kept" in text
+    )
+    measured = text.split("instrument:")[1]
+    assert "FK2611-07-005" in measured and "FK2611-07-004" not in measured  # it alone, again
+    journal, in_db, in_csv = stored(out)
+    assert in_csv == in_db == journal == [f"FK2611-07-{c:03d}" for c in range(1, 6)]
