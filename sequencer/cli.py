@@ -16,7 +16,7 @@ from pathlib import Path
 
 from rich.console import Console
 
-from . import __version__, judgecmd, reportcmd
+from . import __version__, judgecmd, reportcmd, results, runsession
 from .benchrun import GATE, Bench, Terminated, on_bench
 from .errors import CcbenchError, RunError
 from .lotrun import run_lot
@@ -24,7 +24,6 @@ from .plan import make_plan
 from .recipe import Recipe, load_recipe
 from .safety import CAUTION, check_hazard, is_hazardous, preflight
 from .safetyview import limits_table
-from .store import RunStore
 from .view import device_line, plan_summary, plan_table, progress_bar, summary_table
 
 EXIT_INTERRUPTED = 130
@@ -57,6 +56,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
     run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
+    runsession.add_run_options(run)
 
     check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
     check.add_argument("recipe", type=Path)
@@ -65,6 +65,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     judgecmd.add_parsers(sub)
     reportcmd.add_parser(sub)
+
+    results.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -110,10 +112,15 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     _cautions(console, recipe, plan)
     console.print(plan_summary(recipe, plan), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
-    store = RunStore.create(out, _manifest(recipe, args, resource))
+    repeat = runsession.repeat_for(recipe, args)
+    manifest = _manifest(recipe, args, resource)
+    manifest |= runsession.manifest_extras(recipe, resource, repeat)
+    store = runsession.open_store(out, manifest, args, console)
+    if runsession.nothing_left(console, store, plan, repeat, _now()):
+        return 0
     status, bench = "failed", Bench()
     try:
-        with open(out / "scpi.log", "w", encoding="utf-8") as log, GATE.held():
+        with open(out / "scpi.log", "a", encoding="utf-8") as log, GATE.held():
             conn = connect(
                 resource,
                 dialect=recipe.station.dialect,
@@ -124,7 +131,11 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
 
             def measure(guard):
                 store.set_identity(conn.resource, conn.identity)
-                return _measure(console, recipe, plan, conn.smu, store, guard)
+
+                def one_pass(part):
+                    return _measure(console, recipe, part, conn.smu, store, guard)
+
+                return runsession.measure_passes(console, store, plan, repeat, one_pass)
 
             def announce(text):
                 console.print(text, soft_wrap=True)
@@ -145,7 +156,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         detail = f"internal error ({type(exc).__name__}: {exc}); {bench.ending()}"
         raise RunError(f"{detail}; details in {out / 'traceback.txt'}") from None
     finally:
-        store.finish(status, _now())
+        problem = store.finish(status, _now())  # after a failure, the failure is the news
+        if problem and status == "completed":
+            console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
     console.print(summary_table(summary))
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
@@ -233,6 +246,7 @@ COMMANDS = {
     "sim": cmd_sim,
     **judgecmd.COMMANDS,
     **reportcmd.COMMANDS,
+    "results": results.cmd_results,
 }
 
 

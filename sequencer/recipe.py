@@ -29,6 +29,7 @@ from .limits import (
     parse_ratings,
     parse_recipe_limits,
 )
+from .repeat import Repeat, parse_repeat
 from .uncertainty import DEFAULT_ACCURACY, Accuracy
 from .yamlsource import Source, load_yaml
 
@@ -121,6 +122,7 @@ class Recipe:
     ratings: Ratings = field(default_factory=Ratings)
     on_trip: str = "stop"  # after a device trip: "stop" the run, or "skip" to the next device
     hazardous_voltage_acknowledged: bool = False
+    repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
 
     @property
     def effective_limits(self) -> EffectiveLimits:
@@ -278,9 +280,22 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     steps = _steps(source, top.raw("steps"))
     judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
     safety = _safety_settings(source, top, station)
+    repeat = parse_repeat(source, top.raw("repeat", None))
     top.finish()
     text = path.read_text(encoding="utf-8")
-    return Recipe(str(path), product, lot, station, nplc, steps, judge, operator, text, **safety)
+    return Recipe(
+        str(path),
+        product,
+        lot,
+        station,
+        nplc,
+        steps,
+        judge,
+        operator,
+        text,
+        repeat=repeat,
+        **safety,
+    )
 
 
 def _safety_settings(source: Source, top: _Fields, station: Station) -> dict[str, Any]:

@@ -1,58 +1,57 @@
 """The run folder: a journal line per device (flushed and fsynced) first, then SQLite, then CSV.
 
 Layout of a run folder:
+    run.lock         held (fcntl) by the run using the folder; names its pid and host
+    manifest.json    the run: recipe and station text, hash, instrument, software, sessions
     journal.jsonl    one JSON object per device, the first place a result is written
-    results.sqlite   tables run, device, point (schema version in PRAGMA user_version)
-    devices.csv      one row per device, figures with their uncertainties beside them
+    results.sqlite   tables run, session, device, point (schema version in PRAGMA user_version)
+    devices.csv      one row per device and pass, figures with their uncertainties beside them
     scpi.log         every SCPI exchange with a timestamp (written by the driver's spy)
+
+A device's key is (pass, device): a repeated run measures each tray position once per pass.
 """
 
 from __future__ import annotations
 
 import csv
-import json
 import math
 import os
 import sqlite3
-from dataclasses import dataclass
+import uuid
+from dataclasses import dataclass, field, replace
 from pathlib import Path
-from typing import Any
+from typing import IO, Any
 
+from . import database as dbase
 from .curve import Curve
 from .errors import StoreError
+from .journal import Journal, encode_floats
 from .judge import Judgement
 from .judgesettings import FIGURE_UNIT
+from .migrations import LATEST
 from .recipe import FIGURES
+from .resume import (
+    Progress,
+    catch_up,
+    check_recipe,
+    journal_notes,
+    open_or_rebuild,
+    progress,
+    session_info,
+)
+from .runfolder import (
+    FolderLock,
+    FolderRefused,
+    holds_run,
+    read_manifest,
+    unwritable,
+    utc_now,
+    write_manifest,
+)
 
-# 2: bins (hard_bin, bin_class, soft_bin) and the reverse and peak figures in the device table
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = LATEST  # 2: bins, reverse and peak figures; 3: passes (migrations.py)
 UNITS = FIGURE_UNIT
 BIN_COLUMNS = ["hard_bin", "bin_class", "soft_bin"]
-
-SCHEMA = """
-CREATE TABLE run (
-    id INTEGER PRIMARY KEY,
-    started TEXT NOT NULL, finished TEXT, status TEXT NOT NULL,
-    product TEXT, lot TEXT, operator TEXT, host TEXT, software_version TEXT,
-    recipe_file TEXT, recipe_sha256 TEXT, recipe_text TEXT,
-    station TEXT, station_text TEXT, resource TEXT, identity TEXT, simulator TEXT
-);
-CREATE TABLE device (
-    run_id INTEGER NOT NULL REFERENCES run(id),
-    device TEXT NOT NULL, channel INTEGER, verdict TEXT NOT NULL,
-    hard_bin INTEGER, bin_class TEXT, soft_bin TEXT,
-    classification TEXT, reasons TEXT,
-    {figure_columns},
-    PRIMARY KEY (run_id, device)
-);
-CREATE TABLE point (
-    run_id INTEGER NOT NULL, device TEXT NOT NULL, idx INTEGER NOT NULL,
-    step TEXT, level_V REAL, voltage_V REAL, current_A REAL, time_s REAL,
-    in_compliance INTEGER,
-    PRIMARY KEY (run_id, device, idx),
-    FOREIGN KEY (run_id, device) REFERENCES device(run_id, device)
-);
-"""
 
 
 def figure_columns() -> list[str]:
@@ -72,10 +71,12 @@ CSV_COLUMNS = [
     "classification",
     "reasons",
 ]
+# devices.csv: a device row with its pass number and the time it was measured
+RUN_CSV_COLUMNS = ["device", "pass", *CSV_COLUMNS[1:], "measured"]
 
 
 def _num(x: float) -> float | None:
-    return None if math.isnan(x) else x
+    return x if math.isfinite(x) else None
 
 
 def device_row(judgement: Judgement, channel: int) -> dict[str, Any]:
@@ -94,107 +95,234 @@ def device_row(judgement: Judgement, channel: int) -> dict[str, Any]:
     return row
 
 
+JOURNAL_FILE = "journal.jsonl"
+DATABASE_FILE = "results.sqlite"
+CSV_FILE = "devices.csv"
+LOST = "ended unrecorded"  # a session whose process died (SIGKILL, power cut) before its end
+
+
 @dataclass
 class RunStore:
-    """An open run folder. Create it with `RunStore.create`, close it with `finish`."""
+    """An open run folder, locked for this process. Open it with `create` (a new run) or
+    `resume` (continue one); close it with `finish`. `begin_pass` names the pass the next
+    devices belong to."""
 
     folder: Path
     db: sqlite3.Connection
     run_id: int
-    journal: Any
-    csv_file: Any
+    journal: Journal
+    csv_file: IO[str]
+    lock: FolderLock
+    manifest: dict[str, Any]
+    progress: Progress = field(default_factory=Progress)
+    pass_no: int = 1
+    pass_started: str | None = None
+
+    @property
+    def session(self) -> int:
+        return self.progress.session
 
     @classmethod
     def create(cls, folder: Path, manifest: dict[str, Any]) -> RunStore:
-        if (folder / "journal.jsonl").exists():
-            raise StoreError(f"{folder}: already holds a run; choose another --out folder")
+        """A new run in `folder`; refused when the folder holds one already."""
+        lock = FolderLock.take(folder)
         try:
-            folder.mkdir(parents=True, exist_ok=True)
-            db = sqlite3.connect(folder / "results.sqlite")
-            db.execute("PRAGMA journal_mode=WAL")
-            db.executescript(SCHEMA.replace("{figure_columns}", _figure_sql()))
-            db.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
-            keys = ", ".join(manifest)
-            marks = ", ".join("?" for _ in manifest)
-            with db:
-                cur = db.execute(
-                    f"INSERT INTO run (status, {keys}) VALUES ('running', {marks})",
-                    list(manifest.values()),
+            if holds_run(folder):
+                raise FolderRefused(
+                    folder,
+                    "already holds a run; add --resume to continue it, or choose another --out",
                 )
-            journal = open(folder / "journal.jsonl", "a", encoding="utf-8")  # noqa: SIM115
-            csv_file = open(folder / "devices.csv", "w", newline="", encoding="utf-8")  # noqa: SIM115
-            csv.writer(csv_file).writerow(CSV_COLUMNS)
-            csv_file.flush()
+            return cls._new(folder, lock, manifest)
+        except BaseException:
+            lock.release()
+            raise
+
+    @classmethod
+    def resume(
+        cls, folder: Path, manifest: dict[str, Any], *, accept_changed_recipe: bool = False
+    ) -> RunStore:
+        """Continue the run in `folder` (start it, if it holds none): drop a torn journal
+        line, bring the database and CSV up to date from the journal, open a new session."""
+        lock = FolderLock.take(folder)
+        try:
+            if not holds_run(folder):
+                store = cls._new(folder, lock, manifest)
+                note = f"{folder}: held no run to resume; started a new one"
+                store.progress = replace(store.progress, notes=(note,))
+                return store
+            return cls._continue(folder, lock, manifest, accept_changed_recipe)
+        except BaseException:
+            lock.release()
+            raise
+
+    @classmethod
+    def _new(cls, folder: Path, lock: FolderLock, manifest: dict[str, Any]) -> RunStore:
+        run = {"uid": uuid.uuid4().hex, **manifest, "status": "running"}
+        session = session_info(1, manifest, run)
+        run["sessions"] = [session]
+        try:
+            write_manifest(folder, run)
+            db = dbase.open_database(folder / DATABASE_FILE)
+            run_id = dbase.insert_run(db, run)
+            dbase.begin_session(db, run_id, 1, session)
+            journal = Journal(folder / JOURNAL_FILE)
+            csv_file = _rewrite_csv(folder, db, run_id)
         except OSError as exc:
-            raise StoreError(f"{folder}: cannot create the run folder ({exc.strerror})") from None
+            raise unwritable(folder, exc) from None
         except sqlite3.Error as exc:
-            raise StoreError(f"{folder}/results.sqlite: cannot be created ({exc})") from None
-        return cls(folder, db, int(cur.lastrowid or 0), journal, csv_file)
+            raise StoreError(f"{folder}/{DATABASE_FILE}: cannot be created ({exc})") from None
+        progress = Progress(run_started=str(run.get("started", "")))
+        return cls(folder, db, run_id, journal, csv_file, lock, run, progress)
+
+    @classmethod
+    def _continue(
+        cls, folder: Path, lock: FolderLock, manifest: dict[str, Any], accept: bool
+    ) -> RunStore:
+        run = read_manifest(folder)
+        notes = [check_recipe(folder, run, manifest, accept)]
+        db, run_id, journal, csv_file, found = _reopen(folder, run)
+        number = len(run.get("sessions", [])) + 1
+        session = session_info(number, manifest, run)
+        for earlier in run.setdefault("sessions", []):
+            if earlier.get("status") == "running":  # its process died without a word
+                earlier["status"] = LOST
+        run["sessions"].append(session)
+        run["status"] = "running"
+        store = cls(folder, db, run_id, journal, csv_file, lock, run)
+        try:
+            store._write_meta(lambda: dbase.mark_lost(db, run_id, LOST))
+            store._write_meta(lambda: dbase.begin_session(db, run_id, number, session))
+            store._write_meta(lambda: dbase.update_run(db, run_id, status="running"))
+        except BaseException:
+            store._close()
+            raise
+        done = [n for n in notes + found if n]
+        store.progress = progress(db, run_id, number, str(run.get("started", "")), done)
+        return store
+
+    def begin_pass(self, pass_no: int, started: str | None = None) -> None:
+        """The devices stored from now on belong to pass `pass_no`, which began at `started`."""
+        self.pass_no = pass_no
+        self.pass_started = started or utc_now()
 
     def add_device(self, curve: Curve, judgement: Judgement) -> None:
         """Journal (fsync) first, then one SQLite transaction, then the CSV row."""
-        row = device_row(judgement, curve.channel)
+        entry: dict[str, Any] = {"pass": self.pass_no, "session": self.session}
+        entry.update(device_row(judgement, curve.channel))
+        entry["measured"] = utc_now()
+        entry["pass_started"] = self.pass_started or entry["measured"]
+        entry["points"] = _points(curve)
         try:
-            self._journal(row, curve)
-            self._database(row, curve)
-            csv.writer(self.csv_file).writerow([_csv(row[c]) for c in CSV_COLUMNS])
-            self.csv_file.flush()
+            entry = {"seq": self.journal.append(entry), **entry}
         except OSError as exc:
             raise StoreError(
-                f"{self.folder}: result of {curve.device} could not be written ({exc.strerror}); "
-                "everything before it is kept"
+                f"{self.folder}: result of {curve.device} could not be written "
+                f"({exc.strerror or exc}); everything before it is kept"
+            ) from None
+        try:
+            self._database_and_csv(entry)
+        except (OSError, sqlite3.Error) as exc:
+            why = getattr(exc, "strerror", None) or str(exc)
+            raise StoreError(
+                f"{self.folder}: result of {curve.device} is in the journal but not in "
+                f"{DATABASE_FILE}/{CSV_FILE} ({why}); --resume brings them up to date"
             ) from None
 
-    def _journal(self, row: dict[str, Any], curve: Curve) -> None:
-        entry = dict(row, points=_points(curve))
-        self.journal.write(json.dumps(entry, allow_nan=False, default=_json) + "\n")
-        self.journal.flush()
-        os.fsync(self.journal.fileno())
+    def _database_and_csv(self, entry: dict[str, Any]) -> None:
+        if dbase.write_device(self.db, self.run_id, entry):
+            self.csv_file.close()  # an aborted device measured again: its row is replaced
+            self.csv_file = _rewrite_csv(self.folder, self.db, self.run_id)
+            return
+        csv.writer(self.csv_file).writerow([_csv(entry.get(c)) for c in RUN_CSV_COLUMNS])
+        self.csv_file.flush()
 
-    def _database(self, row: dict[str, Any], curve: Curve) -> None:
-        cols = ["run_id", *row]
-        with self.db:
-            self.db.execute(
-                f"INSERT INTO device ({', '.join(cols)}) VALUES ({', '.join('?' * len(cols))})",
-                [self.run_id, *row.values()],
-            )
-            self.db.executemany(
-                "INSERT INTO point VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                [
-                    (
-                        self.run_id,
-                        curve.device,
-                        k,
-                        curve.steps[int(curve.segment[k])],
-                        float(curve.level_v[k]),
-                        float(curve.voltage_v[k]),
-                        float(curve.current_a[k]),
-                        float(curve.time_s[k]),
-                        int(curve.in_compliance[k]),
-                    )
-                    for k in range(len(curve))
-                ],
-            )
-
-    def finish(self, status: str, finished: str, identity: str = "") -> None:
-        try:
-            with self.db:
-                self.db.execute(
-                    "UPDATE run SET status = ?, finished = ?, identity = COALESCE(NULLIF(?, ''), "
-                    "identity) WHERE id = ?",
-                    (status, finished, identity, self.run_id),
-                )
-        finally:
-            self.db.close()
-            self.journal.close()
-            self.csv_file.close()
+    def counts(self) -> tuple[int, int]:
+        """Devices stored in the run so far, and over how many passes."""
+        row = self.db.execute(
+            "SELECT COUNT(*), COUNT(DISTINCT pass) FROM device WHERE run_id = ?", (self.run_id,)
+        ).fetchone()
+        return int(row[0]), int(row[1])
 
     def set_identity(self, resource: str, identity: str) -> None:
-        with self.db:
-            self.db.execute(
-                "UPDATE run SET resource = ?, identity = ? WHERE id = ?",
-                (resource, identity, self.run_id),
-            )
+        """The instrument this session talks to (resource string and *IDN? reply)."""
+        self.manifest.update(resource=resource, identity=identity)
+        self.manifest["sessions"][-1].update(resource=resource, identity=identity)
+        ids = {"resource": resource, "identity": identity}
+        self._write_meta(lambda: dbase.update_run(self.db, self.run_id, **ids))
+        self._write_meta(lambda: dbase.update_session(self.db, self.run_id, self.session, **ids))
+        self._write_meta(lambda: write_manifest(self.folder, self.manifest))
+
+    def finish(self, status: str, finished: str, identity: str = "") -> str:
+        """Record the end of this session and close the folder (the lock goes last). Never
+        raises: it runs on every way out; a problem is returned as text for the screen."""
+        ends = {"status": status, "finished": finished}
+        if identity:
+            ends["identity"] = identity
+        self.manifest.update(ends)
+        self.manifest["sessions"][-1].update(ends)
+        problems = [
+            self._try(lambda: dbase.update_run(self.db, self.run_id, **ends)),
+            self._try(lambda: dbase.update_session(self.db, self.run_id, self.session, **ends)),
+            self._try(lambda: write_manifest(self.folder, self.manifest)),
+        ]
+        problems.append(self._close())
+        found = [p for p in problems if p]
+        return f"{self.folder}: end of run not recorded ({found[0]})" if found else ""
+
+    def _close(self) -> str:
+        """Close every file; the lock goes last, once nothing more is written."""
+        problems = [self._try(close) for close in (self.db.close, self.journal.close)]
+        problems += [self._try(self.csv_file.close), self._try(self.lock.release)]
+        return next((p for p in problems if p), "")
+
+    def _write_meta(self, write: Any) -> None:
+        problem = self._try(write)
+        if problem:
+            raise StoreError(f"{self.folder}: run record could not be written ({problem})")
+
+    @staticmethod
+    def _try(action: Any) -> str:
+        try:
+            action()
+        except (OSError, sqlite3.Error) as exc:
+            return getattr(exc, "strerror", None) or str(exc)
+        return ""
+
+
+def _reopen(
+    folder: Path, run: dict[str, Any]
+) -> tuple[sqlite3.Connection, int, Journal, IO[str], list[str]]:
+    """The folder's files brought up to date from the journal, open again for writing."""
+    db = None
+    try:
+        seq, torn = journal_notes(folder)
+        db, run_id, rebuilt = open_or_rebuild(folder, run)
+        applied = catch_up(db, run_id, folder, seq)
+        csv_file = _rewrite_csv(folder, db, run_id)
+        journal = Journal(folder / JOURNAL_FILE, last_seq=seq)
+    except BaseException as exc:
+        if db is not None:
+            db.close()
+        if isinstance(exc, OSError | sqlite3.Error):
+            why = getattr(exc, "strerror", None) or str(exc)
+            raise StoreError(f"{folder}: cannot be resumed ({why})") from None
+        raise
+    caught = f"{DATABASE_FILE} and {CSV_FILE} caught up with the journal" if applied else ""
+    return db, run_id, journal, csv_file, [torn, rebuilt, caught]
+
+
+def _rewrite_csv(folder: Path, db: sqlite3.Connection, run_id: int) -> IO[str]:
+    """devices.csv from the database, replaced atomically; returned open for appending."""
+    path, spare = folder / CSV_FILE, folder / (CSV_FILE + ".new")
+    with open(spare, "w", newline="", encoding="utf-8") as f:
+        writer = csv.writer(f)
+        writer.writerow(RUN_CSV_COLUMNS)
+        for row in dbase.device_rows(db, run_id, RUN_CSV_COLUMNS):
+            writer.writerow([_csv(v) for v in row])
+        f.flush()
+        os.fsync(f.fileno())
+    os.replace(spare, path)
+    return open(path, "a", newline="", encoding="utf-8")
 
 
 def _figure_sql() -> str:
@@ -206,21 +334,12 @@ def _figure_sql() -> str:
 def _points(curve: Curve) -> dict[str, list]:
     return {
         "step": [curve.steps[int(s)] for s in curve.segment],
-        "level_V": _finite(curve.level_v),
-        "voltage_V": _finite(curve.voltage_v),
-        "current_A": _finite(curve.current_a),
-        "time_s": _finite(curve.time_s),
+        "level_V": encode_floats(curve.level_v.tolist()),
+        "voltage_V": encode_floats(curve.voltage_v.tolist()),
+        "current_A": encode_floats(curve.current_a.tolist()),
+        "time_s": encode_floats(curve.time_s.tolist()),
         "in_compliance": curve.in_compliance.astype(int).tolist(),
     }
-
-
-def _finite(values) -> list[float | None]:
-    """JSON has no infinity or NaN: an over-range reading is journalled as null."""
-    return [v if math.isfinite(v) else None for v in values.tolist()]
-
-
-def _json(value: Any) -> Any:
-    raise TypeError(f"cannot journal {type(value).__name__}")
 
 
 def _csv(value: Any) -> Any:

@@ -35,6 +35,7 @@ from simulator.smu_model import Reading, Smu, Truth
 from simulator.thermal import Thermal
 from simulator.tray import Tray
 
+CHANNEL_NOISE_STREAM = 0xC4A7  # noise of a closed channel, apart from the lot's streams
 QUES_CURRENT = 2  # QUEStionable bit 1: the current limit was active at the last reading
 TOUCH_SAFE_V = 42.0
 HOT_SWITCH_V = 1.0
@@ -93,6 +94,7 @@ class Instrument:
         self.format = DataFormat()
         self.faults = faults if faults is not None else FaultSchedule(lot.seed)
         self.replaced: dict[int, Device] = {}  # channel -> device put there by a fault
+        self._closures: dict[int, int] = {}  # channel -> times closed (seeds its noise)
         self.thermal = thermal or Thermal(TNOM_K, now=lambda: self.clock.now_s)
 
     @property
@@ -181,8 +183,18 @@ class Instrument:
         self.tray.check(channels[0])
         if self.smu.output_on and abs(self.smu.level_v) > self.hot_switch_v:
             raise ScpiError(-221, "output on above 1 V (no hot switching)")
+        if self.tray.closed != channels[0]:
+            self._reseed_noise(channels[0])
         self.tray.close(channels[0])
         self.invalidate()
+
+    def _reseed_noise(self, channel: int) -> None:
+        # Noise drawn from (seed, channel, how often it was closed): a device measured again on
+        # a freshly started simulator (a resumed run) reads what an uninterrupted run reads.
+        count = self._closures.get(channel, 0)
+        self._closures[channel] = count + 1
+        seed = [CHANNEL_NOISE_STREAM, self.lot.seed, channel, count]
+        self.smu.rng = np.random.default_rng(seed)
 
     def open_all(self) -> None:
         self.tray.open_all()

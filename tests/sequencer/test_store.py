@@ -13,7 +13,7 @@ from sequencer.curve import Curve
 from sequencer.errors import StoreError
 from sequencer.judge import judge_curve
 from sequencer.recipe import FigureLimit, JudgeSettings
-from sequencer.store import CSV_COLUMNS, SCHEMA_VERSION, RunStore
+from sequencer.store import RUN_CSV_COLUMNS, SCHEMA_VERSION, RunStore
 
 SETTINGS = JudgeSettings(limits=(FigureLimit("dynamic_impedance", 1e5, None),))
 
@@ -21,7 +21,7 @@ SETTINGS = JudgeSettings(limits=(FigureLimit("dynamic_impedance", 1e5, None),))
 def _curve(name, r_ohm):
     v = np.linspace(0, 40, 41)
     i = v / r_ohm
-    i[5] = np.inf  # an over-range reading must survive the journal as null
+    i[5] = np.inf  # an over-range reading must survive the journal (as the text 'inf')
     return Curve.from_sweep(name, v, i)
 
 
@@ -37,7 +37,7 @@ def test_results_in_journal_sqlite_and_csv(tmp_path):
     lines = (tmp_path / "run" / "journal.jsonl").read_text().splitlines()
     entries = [json.loads(x) for x in lines]
     assert [e["device"] for e in entries] == ["a", "b"]
-    assert entries[0]["points"]["current_A"][5] is None
+    assert entries[0]["points"]["current_A"][5] == "inf"
 
     db = sqlite3.connect(tmp_path / "run" / "results.sqlite")
     assert db.execute("PRAGMA user_version").fetchone()[0] == SCHEMA_VERSION
@@ -47,10 +47,13 @@ def test_results_in_journal_sqlite_and_csv(tmp_path):
     assert (va, vb) == ("fail", "pass")
     assert za == pytest.approx(47e3) and zb == pytest.approx(220e3)
     assert db.execute("SELECT COUNT(*) FROM point").fetchone()[0] == 82
+    stored = db.execute("SELECT current_A FROM point WHERE device = 'a' AND idx = 5")
+    assert stored.fetchone()[0] == np.inf
 
     with open(tmp_path / "run" / "devices.csv", newline="") as f:
         table = list(csv.DictReader(f))
-    assert list(table[0]) == CSV_COLUMNS
+    assert list(table[0]) == RUN_CSV_COLUMNS
+    assert [r["pass"] for r in table] == ["1", "1"]
     assert table[0]["verdict"] == "fail" and "below min" in table[0]["reasons"]
     for col in (
         "regulated_current_A",
