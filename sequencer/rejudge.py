@@ -38,11 +38,11 @@ CREATE TABLE IF NOT EXISTS rejudge (
 );
 CREATE TABLE IF NOT EXISTS rejudge_device (
     rejudge_id INTEGER NOT NULL REFERENCES rejudge(id),
-    device TEXT NOT NULL, channel INTEGER, verdict TEXT NOT NULL,
-    hard_bin INTEGER, bin_class TEXT, soft_bin TEXT,
+    device TEXT NOT NULL, pass INTEGER NOT NULL DEFAULT 1, channel INTEGER,
+    verdict TEXT NOT NULL, hard_bin INTEGER, bin_class TEXT, soft_bin TEXT,
     {figure_columns},
     classification TEXT, reasons TEXT, original_verdict TEXT,
-    PRIMARY KEY (rejudge_id, device)
+    PRIMARY KEY (rejudge_id, pass, device)
 );
 """
 
@@ -52,6 +52,7 @@ class StoredDevice:
     curve: Curve
     verdict: str
     reasons: str
+    pass_number: int = 1  # a repeated run measures each device once per pass
 
 
 @dataclass(frozen=True)
@@ -86,12 +87,18 @@ def load_run(folder: Path) -> StoredRun:
         if run is None:
             raise StoreError(f"{folder}/results.sqlite: holds no run")
         run_id, status, station_text = run
+        # Folders older than schema 3 have one pass and no pass column.
+        passes = "pass" if _has_column(db, "device", "pass") else "1"
         devices = db.execute(
-            "SELECT device, channel, verdict, reasons FROM device WHERE run_id = ? ORDER BY rowid",
+            f"SELECT {passes}, device, channel, verdict, reasons FROM device WHERE run_id = ? "
+            "ORDER BY rowid",
             (run_id,),
         ).fetchall()
         points = db.execute(
-            "SELECT device, step, level_V, voltage_V, current_A, time_s, in_compliance "
+            f"SELECT {passes}, device, step, level_V, voltage_V, current_A, time_s, "
+            "in_compliance FROM point WHERE run_id = ? ORDER BY pass, device, idx"
+            if passes == "pass"
+            else "SELECT 1, device, step, level_V, voltage_V, current_A, time_s, in_compliance "
             "FROM point WHERE run_id = ? ORDER BY device, idx",
             (run_id,),
         ).fetchall()
@@ -99,25 +106,33 @@ def load_run(folder: Path) -> StoredRun:
         raise StoreError(f"{folder}/results.sqlite: cannot be read ({exc})") from None
     finally:
         db.close()
-    curves = _curves(devices, points)
-    stored = tuple(StoredDevice(curves[d], v, r or "") for d, _, v, r in devices)
+    curves = _curves([row[1:] for row in devices], points, [row[0] for row in devices])
+    stored = tuple(StoredDevice(curves[(p, d)], v, r or "", int(p)) for p, d, _, v, r in devices)
     return StoredRun(folder, run_id, status, station_text or "", stored)
 
 
-def _curves(devices: list, points: list) -> dict[str, Curve]:
+def _has_column(db: sqlite3.Connection, table: str, column: str) -> bool:
+    return any(row[1] == column for row in db.execute(f"PRAGMA table_info({table})"))
+
+
+def _curves(devices: list, points: list, passes: list) -> dict[tuple[int, str], Curve]:
+    """Curves keyed by (pass, device); each point row starts with its pass number."""
     steps: list[str] = []
-    per_device: dict[str, list] = {d: [] for d, *_ in devices}
+    per_device: dict[tuple[int, str], list] = {
+        (p, d): [] for p, (d, *_) in zip(passes, devices, strict=True)
+    }
     for row in points:
-        if row[1] not in steps:
-            steps.append(row[1])
-        per_device.setdefault(row[0], []).append(row)
+        if row[2] not in steps:
+            steps.append(row[2])
+        per_device.setdefault((row[0], row[1]), []).append(row[1:])
     levels: dict[str, set] = {name: set() for name in steps}
     for row in points:
-        levels[row[1]].add(row[2])
+        levels[row[2]].add(row[3])
     kinds = tuple("sweep" if len(levels[s]) > 1 else "spot" for s in steps)
     channel = {d: c for d, c, *_ in devices}
     return {
-        d: _curve(d, channel.get(d, 0), rows, tuple(steps), kinds) for d, rows in per_device.items()
+        key: _curve(key[1], channel.get(key[1], 0), rows, tuple(steps), kinds)
+        for key, rows in per_device.items()
     }
 
 
@@ -209,6 +224,7 @@ def _rows(run: StoredRun, judgements: list[Judgement]) -> list[dict]:
     rows = []
     for device, judgement in zip(run.devices, judgements, strict=True):
         row = device_row(judgement, device.curve.channel)
+        row = {"device": row.pop("device"), "pass": device.pass_number, **row}
         row["original_verdict"] = device.verdict
         rows.append(row)
     return rows
@@ -217,7 +233,7 @@ def _rows(run: StoredRun, judgements: list[Judgement]) -> list[dict]:
 def _write_csv(path: Path, rows: list[dict]) -> None:
     if path.exists():
         raise StoreError(f"{path}: already exists; nothing is overwritten")
-    columns = [*CSV_COLUMNS, "original_verdict"]
+    columns = ["device", "pass", *CSV_COLUMNS[1:], "original_verdict"]
     try:
         with open(path, "x", newline="", encoding="utf-8") as f:
             out = csv.writer(f)

@@ -180,3 +180,25 @@ def test_judge_takes_the_accuracy_of_a_named_station(tmp_path):
     # 1 % of reading, rectangular, dominates: u = 0.01 IP / sqrt(3) [GUM 4.3.7, from memory]
     assert u_rough == pytest.approx(0.01 * ip / np.sqrt(3), rel=1e-3)
     assert json.loads(plain)["regulated_current_u_A"] < u_rough / 3
+
+
+def test_rejudge_keeps_each_pass_of_a_repeated_run(tmp_path):
+    # An overnight run measures every device once per pass: each pass is re-judged on its own.
+    recipe = load_recipe(RECIPES / "demo.yaml")
+    folder = tmp_path / "run"
+    store = RunStore.create(folder, {"started": "t0", "lot": recipe.lot})
+    curves = [replace(c, channel=k + 1) for k, c in enumerate(mixed_lot()[:3])]
+    for pass_no in (1, 2):
+        store.begin_pass(pass_no)
+        for c in curves:
+            store.add_device(c, judge_curve(c, recipe.judge))
+    store.finish("completed", "t1")
+
+    code, text = run("rejudge", str(folder), "--recipe", str(_stricter(tmp_path)))
+    assert code == 0, text
+    with open(folder / "rejudged-1.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    assert [(r["pass"], r["device"]) for r in rows] == [
+        (str(p), c.device) for p in (1, 2) for c in curves
+    ]
+    assert [r["verdict"] for r in rows[:3]] == [r["verdict"] for r in rows[3:]]
