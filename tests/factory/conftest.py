@@ -7,6 +7,7 @@ import itertools
 import os
 from collections.abc import Iterator
 from pathlib import Path
+from types import ModuleType
 
 import pytest
 
@@ -15,21 +16,30 @@ from tests.factory.pgserver import PgServer, find_bindir, remove_server, start_s
 _names = itertools.count(1)
 
 
+def _missing(why: str) -> None:
+    """Skip with the reason; under CI (CI set) a missing piece fails instead."""
+    if os.environ.get("CI"):
+        pytest.fail(why + " (required under CI)")
+    pytest.skip(why, allow_module_level=True)
+
+
+def needs_psycopg() -> ModuleType:
+    """The psycopg module, or the calling test module skipped (failed under CI)."""
+    try:
+        import psycopg
+    except ImportError:
+        _missing("psycopg is not installed; pip install '.[test]'")
+    return psycopg
+
+
 @pytest.fixture(scope="session")
 def pg_server() -> Iterator[PgServer]:
     bindir = find_bindir()
     if bindir is None:
-        why = "PostgreSQL server binaries (initdb, pg_ctl) not found; apt-get install postgresql"
-        if os.environ.get("CI"):
-            pytest.fail(why + " (required under CI)")
-        pytest.skip(why)
-    try:
-        import psycopg  # noqa: F401
-    except ImportError:
-        why = "psycopg is not installed; pip install '.[test]'"
-        if os.environ.get("CI"):
-            pytest.fail(why + " (required under CI)")
-        pytest.skip(why)
+        _missing(
+            "PostgreSQL server binaries (initdb, pg_ctl) not found; apt-get install postgresql"
+        )
+    needs_psycopg()
     server = start_server(bindir)
     try:
         yield server
