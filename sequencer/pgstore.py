@@ -158,6 +158,12 @@ def version(conn: psycopg.Connection) -> int:
     return int(row[0]) if row else 0
 
 
+def version_or_none(conn: psycopg.Connection) -> int | None:
+    """The schema version, or None where no ccbench has written yet (a read must not create)."""
+    row = conn.execute("SELECT to_regclass('ccbench_schema')").fetchone()
+    return None if row is None or row[0] is None else version(conn)
+
+
 def migrate(conn: psycopg.Connection, where: str = "shared database") -> tuple[int, int]:
     """Bring the shared database to LATEST, one transaction per step, under an advisory lock."""
     with conn.transaction():  # IF NOT EXISTS alone races between stations: take the lock first

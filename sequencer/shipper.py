@@ -279,7 +279,7 @@ def cmd_upload(args: argparse.Namespace, console: Console) -> int:
 
     if not args.run_dirs and args.under is None:
         raise RecipeError("command line", None, "", "name run folders or give --under DIR")
-    chosen = _database_arg(args.database)
+    chosen = database_option(args.database)
     failed = 0
     for folder in find_runs(args.run_dirs, args.under):
         database = chosen or station_database(folder)
@@ -295,7 +295,8 @@ def cmd_upload(args: argparse.Namespace, console: Console) -> int:
     return 0
 
 
-def _database_arg(url: str | None) -> SharedDatabase | None:
+def database_option(url: str | None) -> SharedDatabase | None:
+    """The command line's --database URL, checked as the station's would be."""
     if url is None:
         return None
     try:
