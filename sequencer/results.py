@@ -54,7 +54,7 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
 
     if not args.run_dirs and args.under is None and args.database is None:
         raise RecipeError(
-            "command line", None, "", "name run folders, give --under DIR or --database URL"
+            "command line", None, "", "name run folders or give --under DIR (or --database URL)"
         )
     since = parse_since(args.since) if args.since else None
     keep = Filter(args.lot, args.product, since, args.verdict)
