@@ -47,7 +47,11 @@ POINT_COLUMNS += ("current_A", "time_s", "in_compliance")
 
 
 class Unreachable(StoreError, ConnectionError):
-    """The shared database cannot be reached or refused the work (the message says why)."""
+    """The shared database cannot be reached: `where` (host, port, database) and `why`."""
+
+    def __init__(self, where: str, why: str) -> None:
+        super().__init__(f"{where}: cannot be reached ({why})")
+        self.where, self.why = where, why
 
 
 def q(name: str) -> str:
@@ -149,7 +153,7 @@ def connect(url: str) -> psycopg.Connection:
     try:
         return psycopg.connect(url, autocommit=True, **CONNECT)
     except psycopg.Error as exc:
-        raise Unreachable(f"{_where(url)}: cannot be reached ({_why(exc)})") from None
+        raise Unreachable(_where(url), _why(exc)) from None
 
 
 def version(conn: psycopg.Connection) -> int:

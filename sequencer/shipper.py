@@ -133,7 +133,8 @@ class Shipper:
         if not left:
             return f"{where}: every result of the run is stored ({self.sent} sent by this session)"
         return (
-            f"{where} not reached ({self.problem}); {left} results wait in "
+            f"{where} not reached ({self.problem}); "
+            f"{left} result{'s wait' if left != 1 else ' waits'} in "
             f"{self.folder / JOURNAL_FILE}; `ccbench upload {self.folder}` sends them"
         )
 
@@ -177,7 +178,8 @@ class Shipper:
         self._manifest_stamp = stamp
 
     def _lost(self, exc: BaseException) -> None:
-        self.problem = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        text = getattr(exc, "why", None) or str(exc).strip() or type(exc).__name__
+        self.problem = text.splitlines()[0]
         log.info("shared database: %s", self.problem)
         self._close()
 

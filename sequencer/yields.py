@@ -15,6 +15,7 @@ from rich.table import Table
 
 GROUPS = ("station", "lot", "day")
 COUNTED = ("pass", "fail", "guard-band", "aborted")
+SHORT = {"guard-band": "guard", "first-test yield": "1st yield"}  # fits 80 columns
 
 
 def final_mask(frame: pd.DataFrame, key: pd.Series | None = None) -> pd.Series:
@@ -49,10 +50,17 @@ def yield_by(frame: pd.DataFrame, by: str) -> pd.DataFrame:
 
 
 def yield_table(frame: pd.DataFrame, by: str) -> Table:
-    table = Table(title=f"Yield per {by}", title_justify="left", box=box.SIMPLE_HEAD)
+    table = Table(
+        title=f"Yield per {by}",
+        title_justify="left",
+        box=box.SIMPLE_HEAD,
+        show_edge=False,
+        padding=(0, 0),  # the box puts one space between columns: fits 80 columns
+    )
     summary = yield_by(frame, by)
     for column in summary.columns:
-        table.add_column(column, justify="left" if column == by else "right", no_wrap=True)
+        header = SHORT.get(column, column)
+        table.add_column(header, justify="left" if column == by else "right", no_wrap=True)
     for row in summary.itertuples(index=False):
         *counts, first, final = row
         table.add_row(*(str(v) for v in counts), _percent(first), _percent(final))
