@@ -16,7 +16,7 @@ from pathlib import Path
 
 from rich.console import Console
 
-from . import __version__, judgecmd, reportcmd, results, runsession
+from . import __version__, judgecmd, operator, reportcmd, results, runsession, shipper
 from .benchrun import GATE, Bench, Terminated, on_bench
 from .errors import CcbenchError, RunError
 from .lotrun import run_lot
@@ -55,6 +55,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
+    run.add_argument("--part-by-part", action="store_true", help=operator.FLAG_HELP)
     run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
     runsession.add_run_options(run)
 
@@ -67,6 +68,7 @@ def build_parser() -> argparse.ArgumentParser:
     reportcmd.add_parser(sub)
 
     results.add_parser(sub)
+    shipper.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -115,10 +117,13 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     repeat = runsession.repeat_for(recipe, args)
     manifest = _manifest(recipe, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
+    manifest |= operator.manifest_extras(recipe, args, repeat)
+    shipper.check_driver(recipe.station.results_database)
     store = runsession.open_store(out, manifest, args, console)
-    if runsession.nothing_left(console, store, plan, repeat, _now()):
+    if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
         return 0
     status, bench = "failed", Bench()
+    uploads = shipper.start_for(recipe.station.results_database, store, console)
     try:
         with open(out / "scpi.log", "a", encoding="utf-8") as log, GATE.held():
             conn = connect(
@@ -131,6 +136,10 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
 
             def measure(guard):
                 store.set_identity(conn.resource, conn.identity)
+                if args.part_by_part:
+                    tester = operator.PartBench(recipe, plan, conn.smu, store, guard)
+                    write, sim = conn.smu.transport.write, resource == "sim"
+                    return operator.from_command_line(console, tester, sim, write)
 
                 def one_pass(part):
                     return _measure(console, recipe, part, conn.smu, store, guard)
@@ -159,6 +168,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         problem = store.finish(status, _now())  # after a failure, the failure is the news
         if problem and status == "completed":
             console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
+        shipper.finish(uploads, console)
     console.print(summary_table(summary))
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
@@ -247,6 +257,7 @@ COMMANDS = {
     **judgecmd.COMMANDS,
     **reportcmd.COMMANDS,
     "results": results.cmd_results,
+    "upload": shipper.cmd_upload,
 }
 
 

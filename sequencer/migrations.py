@@ -101,7 +101,13 @@ def _rekey(db: sqlite3.Connection, table: str, added: list[str], key: str, extra
     db.execute(f"ALTER TABLE {table}_new RENAME TO {table}")
 
 
-MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_v1, _v2, _v3)
+def _v4(db: sqlite3.Connection) -> None:
+    """Part-by-part testing: whether an attempt became its part's result when it was stored
+    (1 or 0; NULL for a device of a tray run, which is its own result). sequencer.retest"""
+    db.execute("ALTER TABLE device ADD COLUMN standing INTEGER")
+
+
+MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_v1, _v2, _v3, _v4)
 LATEST = len(MIGRATIONS)
 
 

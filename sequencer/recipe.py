@@ -30,6 +30,8 @@ from .limits import (
     parse_recipe_limits,
 )
 from .repeat import Repeat, parse_repeat
+from .resultsdb import SharedDatabase, parse_results_database
+from .retest import RetestPolicy, parse_part_by_part
 from .uncertainty import DEFAULT_ACCURACY, Accuracy
 from .yamlsource import Source, load_yaml
 
@@ -69,6 +71,7 @@ class Station:
     simulator: tuple[tuple[str, object], ...] = ()
     text: str = ""
     accuracy: Accuracy = DEFAULT_ACCURACY
+    results_database: SharedDatabase | None = None  # a shared store besides the run folder
 
     @property
     def simulator_options(self) -> dict[str, object]:
@@ -123,6 +126,7 @@ class Recipe:
     on_trip: str = "stop"  # after a device trip: "stop" the run, or "skip" to the next device
     hazardous_voltage_acknowledged: bool = False
     repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
+    part_by_part: RetestPolicy = field(default_factory=RetestPolicy)  # --part-by-part
 
     @property
     def effective_limits(self) -> EffectiveLimits:
@@ -168,6 +172,7 @@ def load_station(path: Path) -> Station:
     fixture.finish()
     sim = _simulator_options(source, top.raw("simulator", {}))
     accuracy = parse_accuracy(source, top.raw("accuracy", None))
+    shared = parse_results_database(source, top.raw("results_database", None))
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Station(
@@ -183,6 +188,7 @@ def load_station(path: Path) -> Station:
         sim,
         text,
         accuracy,
+        shared,
     )
 
 
@@ -281,6 +287,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
     safety = _safety_settings(source, top, station)
     repeat = parse_repeat(source, top.raw("repeat", None))
+    parts = parse_part_by_part(source, top.raw("part_by_part", None))
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Recipe(
@@ -294,6 +301,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
         operator,
         text,
         repeat=repeat,
+        part_by_part=parts,
         **safety,
     )
 

@@ -25,6 +25,7 @@ from .errors import CcbenchError, RecipeError, StoreError
 from .judgeconfig import parse_judge
 from .judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, JudgeSettings
 from .yamlsource import parse_yaml
+from .yields import final_mask
 
 RUN_TEXT = (
     "lot", "product", "status", "started", "finished", "station", "identity", "operator",
@@ -185,7 +186,7 @@ def _devices(frames: list[pd.DataFrame]) -> pd.DataFrame:
     _fill_missing(devices)
     devices["row"] = devices.index
     key = devices["lot"].astype(str) + "\0" + devices["device"].astype(str)
-    devices["final"] = ~key.duplicated(keep="last")
+    devices["final"] = final_mask(devices, key)  # the last row, or the last that stood
     devices["retest"] = key.duplicated(keep="first")
     return devices
 

@@ -17,6 +17,7 @@ from rich.table import Table
 
 from .errors import RecipeError
 from .units import format_si
+from .yields import GROUPS, yield_table
 
 if TYPE_CHECKING:  # pandas is imported when the command runs, not on every ccbench start
     import pandas as pd
@@ -39,6 +40,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     res.add_argument("--since", metavar="DATE", help="only devices measured on or after DATE")
     res.add_argument("--verdict", choices=VERDICTS, help="only devices with this verdict")
     res.add_argument("--devices", action="store_true", help="list every device on screen")
+    res.add_argument(
+        "--database", metavar="URL", help="read the shared results database instead of folders"
+    )
+    res.add_argument("--by", choices=GROUPS, help="yield per station, lot or day")
     out = res.add_mutually_exclusive_group()
     out.add_argument("--csv", type=Path, metavar="OUT", help="write the merged table as CSV")
     out.add_argument("--parquet", type=Path, metavar="OUT", help="write it as Parquet")
@@ -47,22 +52,40 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def cmd_results(args: argparse.Namespace, console: Console) -> int:
     from .export import Filter, find_runs, merge_runs, parse_since, write_table
 
-    if not args.run_dirs and args.under is None:
-        raise RecipeError("command line", None, "", "name run folders or give --under DIR")
+    if not args.run_dirs and args.under is None and args.database is None:
+        raise RecipeError(
+            "command line", None, "", "name run folders or give --under DIR (or --database URL)"
+        )
     since = parse_since(args.since) if args.since else None
     keep = Filter(args.lot, args.product, since, args.verdict)
-    folders = find_runs(args.run_dirs, args.under)
-    table = merge_runs(folders, keep)
+    if args.database is not None:
+        table, source = _shared(args, keep)
+    else:
+        folders = find_runs(args.run_dirs, args.under)
+        table = merge_runs(folders, keep)
+        source = f"of {len(folders)} runs"
     console.print(runs_table(table, show_yield=args.verdict is None))
     if args.devices:
         console.print(devices_table(table))
+    if args.by:
+        console.print(yield_table(table, args.by))
     target, kind = (args.parquet, "parquet") if args.parquet else (args.csv, "csv")
     if target is not None:
         write_table(table, target, kind)
     runs = table["folder"].nunique() if len(table) else 0
     saved = f"; written to {target}" if target is not None else ""
-    console.print(f"{len(table)} devices from {runs} of {len(folders)} runs{saved}", soft_wrap=True)
+    console.print(f"{len(table)} devices from {runs} {source}{saved}", soft_wrap=True)
     return 0
+
+
+def _shared(args: argparse.Namespace, keep: object) -> tuple[pd.DataFrame, str]:
+    from .sharedquery import load_shared
+    from .shipper import database_option
+
+    if args.run_dirs or args.under is not None:
+        raise RecipeError("command line", None, "--database", "reads no run folders; name none")
+    database = database_option(args.database)
+    return load_shared(database, keep), f"runs in the shared database {database.shown}"
 
 
 def runs_table(frame: pd.DataFrame, *, show_yield: bool = True) -> Table:

@@ -49,7 +49,7 @@ from .runfolder import (
     write_manifest,
 )
 
-SCHEMA_VERSION = LATEST  # 2: bins, reverse and peak figures; 3: passes (migrations.py)
+SCHEMA_VERSION = LATEST  # 2: bins, reverse and peak figures; 3: passes; 4: standing (migrations)
 UNITS = FIGURE_UNIT
 BIN_COLUMNS = ["hard_bin", "bin_class", "soft_bin"]
 
@@ -205,10 +205,14 @@ class RunStore:
         self.pass_no = pass_no
         self.pass_started = started or utc_now()
 
-    def add_device(self, curve: Curve, judgement: Judgement) -> None:
-        """Journal (fsync) first, then one SQLite transaction, then the CSV row."""
+    def add_device(
+        self, curve: Curve, judgement: Judgement, extra: dict[str, Any] | None = None
+    ) -> None:
+        """Journal (fsync) first, then one SQLite transaction, then the CSV row. `extra`: more
+        device columns (part-by-part testing adds `standing`)."""
         entry: dict[str, Any] = {"pass": self.pass_no, "session": self.session}
         entry.update(device_row(judgement, curve.channel))
+        entry.update(extra or {})
         entry["measured"] = utc_now()
         entry["pass_started"] = self.pass_started or entry["measured"]
         entry["points"] = _points(curve)
