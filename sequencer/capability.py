@@ -42,6 +42,11 @@ class Capability:
         return (self.lsl is not None) + (self.usl is not None)
 
 
+# Below this many parts a capability index says nothing about the process (common practice,
+# no source; 25 or more are usually asked for): no index rather than a misleading one.
+MIN_SAMPLES = 5
+
+
 def cp(lsl: float, usl: float, s: float) -> float:
     return (usl - lsl) / (6 * s) if s > 0 else NAN
 
@@ -90,12 +95,12 @@ def capability(
     usl: float | None,
     confidence: float = 0.95,
 ) -> Capability:
-    """Every index of one figure; NaN where the sample is too small (n < 2) or has no spread."""
+    """Every index of one figure; NaN where the sample is too small or has no spread."""
     x = np.asarray(values, float)
     x = x[np.isfinite(x)]
     n = len(x)
     mean = float(x.mean()) if n else NAN
-    s = float(x.std(ddof=1)) if n >= 2 else NAN
+    s = float(x.std(ddof=1)) if n >= MIN_SAMPLES else NAN
     both = lsl is not None and usl is not None
     index = cpk(lsl, usl, mean, s)
     low, high = cpk_interval(index, n, confidence)

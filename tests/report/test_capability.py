@@ -116,3 +116,13 @@ def test_observed_ppm_counts_values_outside():
     assert observed_ppm(x, 1.5, 3.5) == pytest.approx(500_000)
     assert observed_ppm(x, None, 3.5) == pytest.approx(250_000)
     assert math.isnan(observed_ppm(x, None, None))
+
+
+def test_no_index_from_a_handful_of_parts():
+    # Two parts (an operator's first two tests) give no capability index at all.
+    from sequencer.capability import MIN_SAMPLES, capability
+
+    few = capability(np.array([1.80e-3, 1.90e-3]), 1.62e-3, 1.98e-3)
+    assert np.isnan(few.cpk) and np.isnan(few.cp) and few.n == 2
+    enough = capability(np.linspace(1.7e-3, 1.9e-3, MIN_SAMPLES), 1.62e-3, 1.98e-3)
+    assert np.isfinite(enough.cpk)
