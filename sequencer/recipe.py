@@ -15,6 +15,7 @@ from typing import Any
 from .fields import Fields as _Fields
 from .fields import positive as _positive
 from .fields import show as _show
+from .figuresstep import FiguresStep, parse_figures
 from .judgeconfig import parse_accuracy, parse_judge
 from .judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
 from .limits import (
@@ -104,7 +105,7 @@ class SpotStep:
             raise ValueError("a spot needs at least 1 repeat")
 
 
-Step = SweepStep | SpotStep
+Step = SweepStep | SpotStep | FiguresStep  # figures: the production step (figuresstep.py)
 
 
 @dataclass(frozen=True)
@@ -123,6 +124,7 @@ class Recipe:
     on_trip: str = "stop"  # after a device trip: "stop" the run, or "skip" to the next device
     hazardous_voltage_acknowledged: bool = False
     repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
+    lists: bool = False  # run steps as instrument-side lists where safe (sequencer.segmentrun)
 
     @property
     def effective_limits(self) -> EffectiveLimits:
@@ -281,6 +283,8 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
     safety = _safety_settings(source, top, station)
     repeat = parse_repeat(source, top.raw("repeat", None))
+    lists = top.raw("lists", False)
+    top.check(isinstance(lists, bool), "lists", f"must be true or false (got {lists!r})")
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Recipe(
@@ -294,6 +298,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
         operator,
         text,
         repeat=repeat,
+        lists=lists,
         **safety,
     )
 
@@ -312,20 +317,22 @@ def _safety_settings(source: Source, top: _Fields, station: Station) -> dict[str
 
 def _steps(source: Source, value: Any) -> tuple[Step, ...]:
     if not isinstance(value, list) or not value:
-        raise source.error("steps", "must be a list of one or more steps (sweep or spot)")
+        raise source.error("steps", "must be a list of one or more steps (sweep, spot, figures)")
     steps: list[Step] = []
     for index, item in enumerate(value):
         where = f"steps[{index}]"
         if not isinstance(item, dict) or len(item) != 1:
-            raise source.error(where, "must be one 'sweep:' or 'spot:' mapping")
+            raise source.error(where, "must be one 'sweep:', 'spot:' or 'figures:' mapping")
         ((kind, body),) = item.items()
         path = f"{where}.{kind}"
         if kind == "sweep":
             steps.append(_sweep(_Fields.at(source, path, body), index))
         elif kind == "spot":
             steps.append(_spot(_Fields.at(source, path, body), index))
+        elif kind == "figures":
+            steps.append(parse_figures(_Fields.at(source, path, body), index))
         else:
-            raise source.error(path, "is not a step kind (expected 'sweep' or 'spot')")
+            raise source.error(path, "is not a step kind (expected 'sweep', 'spot' or 'figures')")
     names = [s.name for s in steps]
     for index, name in enumerate(names):
         if names.index(name) != index:
