@@ -20,9 +20,14 @@ step's own settings.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from .fields import Fields, positive
 from .limits import ON_COMPLIANCE, parse_choice
+
+if TYPE_CHECKING:
+    from .judgesettings import JudgeSettings
+    from .yamlsource import Source
 
 MAX_WINDOW_READINGS = 50
 MAX_SEARCH_POINTS = 30
@@ -86,6 +91,26 @@ def parse_figures(f: Fields, index: int) -> FiguresStep:
 
 
 _WINDOW_KEYS = ("test_window_readings", "knee_window_readings")
+
+
+def check_against_judge(source: Source, steps: tuple[object, ...], judge: JudgeSettings) -> None:
+    """A `figures:` step's search must lie below the knee window the judge section sets."""
+    edge = judge.knee_voltage_v - judge.knee_window / 2
+    for index, step in enumerate(steps):
+        if not isinstance(step, FiguresStep):
+            continue
+        where = f"steps[{index}].figures"
+        if not step.search_from_v < edge:
+            got = step.search_from_v
+            problem = f"must lie below the knee window's lower edge {edge:g} V (got {got:g} V)"
+            raise source.error(f"{where}.search_from", problem)
+        typical = step.typical_limiting_v
+        if typical is not None and not step.search_from_v <= typical <= edge:
+            problem = (
+                f"must lie between search_from ({step.search_from_v:g} V) and the knee window's "
+                f"lower edge ({edge:g} V) (got {typical:g} V)"
+            )
+            raise source.error(f"{where}.typical_limiting_voltage", problem)
 
 
 def _count(f: Fields, key: str, default: int, least: int, most: int) -> int:

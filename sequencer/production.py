@@ -77,8 +77,8 @@ def production_segments(step: FiguresStep, judge: JudgeSettings) -> list[Segment
     out = [Segment(step.name, "sweep", fixed_levels(step, judge), *args)]
     if step.repeats:
         levels = (judge.test_voltage_v,) * step.repeats
-        out.append(Segment(f"{step.name}-at-test-voltage", "spot", levels, *args))
+        out.append(Segment(f"{step.name}-at-vt", "spot", levels, *args))
     search = knee_search(step, judge)
     levels = (search.low_v, search.high_v)  # the range it may read in: what preflight checks
-    out.append(Segment(f"{step.name}-knee-search", "sweep", levels, *args, search=search))
+    out.append(Segment(f"{step.name}-knee", "sweep", levels, *args, search=search))
     return out

@@ -15,7 +15,7 @@ from typing import Any
 from .fields import Fields as _Fields
 from .fields import positive as _positive
 from .fields import show as _show
-from .figuresstep import FiguresStep, parse_figures
+from .figuresstep import FiguresStep, check_against_judge, parse_figures
 from .judgeconfig import parse_accuracy, parse_judge
 from .judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
 from .limits import (
@@ -281,6 +281,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     top.check(0.01 <= nplc <= 10, "nplc", f"must be 0.01 to 10 power-line cycles (got {nplc})")
     steps = _steps(source, top.raw("steps"))
     judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
+    check_against_judge(source, steps, judge)
     safety = _safety_settings(source, top, station)
     repeat = parse_repeat(source, top.raw("repeat", None))
     lists = top.raw("lists", False)

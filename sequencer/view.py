@@ -58,10 +58,11 @@ def plan_table(recipe: Recipe, plan: Plan) -> Table:
             if seg.kind == "sweep"
             else (f"{seg.levels_v[0]:g} V")
         )
+        searched = seg.search is not None  # levels chosen at run time, within the range shown
         table.add_row(
             seg.step,
-            seg.kind,
-            str(len(seg.levels_v)),
+            "search" if searched else seg.kind,
+            f"~{seg.expected_points}" if searched else str(len(seg.levels_v)),
             levels,
             format_si(seg.compliance_a, "A"),
             format_si(seg.settle_s, "s"),
