@@ -16,6 +16,7 @@ from .fields import Fields as _Fields
 from .fields import positive as _positive
 from .fields import show as _show
 from .figuresstep import FiguresStep, check_against_judge, parse_figures
+from .instrumentspec import InstrumentSpec, instrument_specs
 from .judgeconfig import parse_accuracy, parse_judge
 from .judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
 from .limits import (
@@ -70,6 +71,8 @@ class Station:
     simulator: tuple[tuple[str, object], ...] = ()
     text: str = ""
     accuracy: Accuracy = DEFAULT_ACCURACY
+    # Every SMU with its channels (sequencer.instrumentspec); the fields above name the first.
+    instruments: tuple[InstrumentSpec, ...] = ()
 
     @property
     def simulator_options(self) -> dict[str, object]:
@@ -144,18 +147,11 @@ def load_station(path: Path) -> Station:
     source = load_yaml(path)
     top = _Fields.at(source, "", source.data)
     name = top.text("station")
-    inst = _Fields.at(source, "instrument", top.raw("instrument"))
-    resource = inst.text("resource")
-    dialect = inst.text("dialect", "scpi1999")
-    if dialect != "scpi1999" and not Path(dialect).is_absolute():
-        dialect = str((path.parent / dialect).resolve())
-    timeout_s = inst.quantity("timeout", "time", "2 s")
-    inst.check(0.05 <= timeout_s <= 60, "timeout", f"must be 50 ms to 60 s (got {timeout_s} s)")
-    line_hz = inst.quantity("line_frequency", "frequency", "50 Hz")
-    inst.check(line_hz in (50.0, 60.0), "line_frequency", f"must be 50 Hz or 60 Hz (got {line_hz})")
-    inst.finish()
-    channels = _channels(source, top.raw("tray"))
-    top.used.add("tray")
+    specs = instrument_specs(source, top, path.parent)  # `instrument:` + `tray:`, or several
+    first = specs[0]
+    resource, dialect, timeout_s = first.resource, first.dialect, first.timeout_s
+    line_hz = first.line_frequency_hz
+    channels = tuple(c for spec in specs for c in spec.channels)
     lim = _Fields.at(source, "limits", top.raw("limits"))
     limits = Limits(
         max_voltage_v=_positive(lim, "max_voltage", "voltage"),
@@ -185,26 +181,7 @@ def load_station(path: Path) -> Station:
         sim,
         text,
         accuracy,
-    )
-
-
-def _channels(source: Source, value: Any) -> tuple[int, ...]:
-    tray = _Fields.at(source, "tray", value)
-    raw = tray.raw("channels")
-    tray.finish()
-    where = "tray.channels"
-    if isinstance(raw, int) and not isinstance(raw, bool) and raw > 0:
-        return tuple(range(1, raw + 1))
-    if isinstance(raw, list) and raw and all(isinstance(c, int) and c > 0 for c in raw):
-        if len(set(raw)) != len(raw):
-            raise source.error(where, "lists a channel twice")
-        return tuple(raw)
-    if isinstance(raw, str) and "-" in raw:
-        first, _, last = raw.partition("-")
-        if first.strip().isdigit() and last.strip().isdigit() and 0 < int(first) <= int(last):
-            return tuple(range(int(first), int(last) + 1))
-    raise source.error(
-        where, f"must be a count, a list of channels or a range '1-20' (got {raw!r})"
+        specs,
     )
 
 
