@@ -5,8 +5,8 @@ each with the tray channels wired to it.
     tray: {channels: 1-20}
 
     instruments:                       # several SMUs, tested in parallel (sequencer.parallel)
-      - {name: smu-a, resource: "TCPIP0::192.0.2.17::5025::SOCKET", channels: 1-10}
-      - {name: smu-b, resource: "TCPIP0::192.0.2.18::5025::SOCKET", channels: 11-20}
+      - {name: bay-1, resource: "TCPIP0::192.0.2.17::5025::SOCKET", channels: 1-10}
+      - {name: bay-2, resource: "TCPIP0::192.0.2.18::5025::SOCKET", channels: 11-20}
 
 Either form may give `write_time` and `query_time`, what one SCPI write and one query round
 trip cost on that instrument, for the run's time estimate (sequencer.estimate). Every entry of

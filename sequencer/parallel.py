@@ -8,11 +8,11 @@ single-writer: only the calling thread touches it, device by device in plan orde
 first (a device that finishes early waits in memory for the ones before it; after a crash it
 is measured again on resume, like any device not yet stored).
 
-What stops one lane stops them all, as it stops a run on one SMU: a run trip, an instrument
-error, a signal, or a device trip under `on_trip: stop`. The others end the device they are
-measuring at their next level (their guard raises `Halted`, the runner ramps down and switches
-off), those devices are stored as aborted, and the first error is raised once every lane has
-finished. A device trip under `on_trip: skip` only ends that device.
+What stops one lane stops them all, as it would stop a one-instrument run (a run trip, an
+instrument error, a signal, or a device trip under `on_trip: stop`). The others end the device
+they are measuring at their next level (their guard raises `Halted`, the runner ramps down and
+switches off), those devices are stored as aborted, and the first error is raised once every
+lane has finished. A device trip under `on_trip: skip` only ends that device.
 """
 
 from __future__ import annotations

@@ -25,10 +25,10 @@ def station_text(instruments: str, *, virtual: bool = False) -> str:
 
 
 FOUR = """instruments:
-  - {name: smu-a, resource: sim, channels: 1-5}
-  - {name: smu-b, resource: sim, channels: 6-10, query_time: 0.4 ms}
-  - {name: smu-c, resource: sim, channels: [11, 12, 13, 14, 15]}
-  - {name: smu-d, resource: sim, channels: 16-20}
+  - {name: bay-1, resource: sim, channels: 1-5}
+  - {name: bay-2, resource: sim, channels: 6-10, query_time: 0.4 ms}
+  - {name: bay-3, resource: sim, channels: [11, 12, 13, 14, 15]}
+  - {name: bay-4, resource: sim, channels: 16-20}
 """
 
 
@@ -47,7 +47,7 @@ def test_the_single_form_is_one_instrument_with_the_tray():
 
 def test_several_instruments_each_with_its_channels(tmp_path):
     station = load_station(write(tmp_path, station_text(FOUR)))
-    assert [s.name for s in station.instruments] == ["smu-a", "smu-b", "smu-c", "smu-d"]
+    assert [s.name for s in station.instruments] == ["bay-1", "bay-2", "bay-3", "bay-4"]
     assert station.instruments[2].channels == (11, 12, 13, 14, 15)
     assert station.instruments[1].query_time_s == pytest.approx(0.4e-3)
     assert station.channels == tuple(range(1, 21))
@@ -101,11 +101,11 @@ def test_ccbench_run_on_four_instruments_gives_what_one_gives(tmp_path):
     screen, out, four = _run(tmp_path, station_text(FOUR, virtual=True), "demo-production", "four")
     assert [r["device"] for r in four] == [f"FK2611-07-{c:03d}" for c in range(1, 21)]
     assert four == one  # the same devices, the same noise: the same readings and results
-    assert sorted(p.name for p in out.glob("scpi-*.log")) == [f"scpi-smu-{x}.log" for x in "abcd"]
-    assert "(4 instruments at once)" in screen and "instrument smu-c:" in screen
+    assert sorted(p.name for p in out.glob("scpi-*.log")) == [f"scpi-bay-{x}.log" for x in "1234"]
+    assert "(4 instruments at once)" in screen and "instrument bay-3:" in screen
     assert re.search(r"time: took .* predicted", screen)
     assert screen.strip().splitlines()[-1].startswith("output off on all 4 instruments")
-    closed = (out / "scpi-smu-c.log").read_text()
+    closed = (out / "scpi-bay-3.log").read_text()
     assert "ROUT:CLOS (@11)" in closed and "ROUT:CLOS (@1)\n" not in closed
 
 
