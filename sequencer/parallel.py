@@ -35,7 +35,18 @@ _DONE = "done"
 
 
 class Halted(Exception):
-    """Another lane stopped the run; this lane's device ends at its next level."""
+    """Another lane, or a signal, stopped the run; this lane's device ends at its next level."""
+
+
+class StopFlag(threading.Event):
+    """Set once for the whole run, with the reason the devices it cuts short are stored with."""
+
+    reason = "another instrument of the station ended the run"
+
+    def stop(self, reason: str) -> None:
+        if not self.is_set():
+            self.reason = reason
+            self.set()
 
 
 @dataclass
@@ -43,12 +54,22 @@ class LaneGuard(Guard):
     """A lane's guard: the run's limits and this SMU's interlock, plus the shared stop flag,
     looked at before every level this lane sends."""
 
-    stop: threading.Event = field(default_factory=threading.Event, repr=False)
+    stop: StopFlag = field(default_factory=StopFlag, repr=False)
 
     def check_level(self, volts: float, compliance_a: float) -> None:
         if self.stop.is_set():
-            raise Halted("stopped: another instrument of the station ended the run")
+            raise Halted(self.stop.reason)
         super().check_level(volts, compliance_a)
+
+
+def why_stopped(exc: BaseException, lane: str | None = None) -> str:
+    """The reason other lanes' devices are stored with when `exc` stops the run."""
+    if isinstance(exc, KeyboardInterrupt):
+        return "interrupted by the operator"
+    if type(exc).__name__ == "Terminated":  # benchrun.Terminated (SIGTERM)
+        return "stopped by SIGTERM"
+    where = f"instrument {lane}" if lane else "the run"
+    return f"stopped with {where}: {exc or type(exc).__name__}"
 
 
 @dataclass(frozen=True)
@@ -98,8 +119,8 @@ def run_parallel(
         thread.start()
     try:
         collector.collect(results, len(threads), stop)
-    except BaseException:
-        stop.set()  # a signal or a store error here: every lane ends its device and stops
+    except BaseException as exc:
+        stop.stop(why_stopped(exc))  # a signal or a store error: every lane ends its device
         collector.drain(results)
         raise
     finally:
@@ -111,14 +132,14 @@ def run_parallel(
 
 def lane_guards(guards: Sequence[Guard]) -> list[LaneGuard]:
     """The guards of one parallel run, sharing one stop flag."""
-    stop = threading.Event()
+    stop = StopFlag()
     return [
         LaneGuard(g.limits, g.interlock_closed, g.no_clamp_steps, g.level_v, stop=stop)
         for g in guards
     ]
 
 
-def _stop_flag(lanes: Sequence[Lane]) -> threading.Event:
+def _stop_flag(lanes: Sequence[Lane]) -> StopFlag:
     flags = {id(lane.guard.stop) for lane in lanes if isinstance(lane.guard, LaneGuard)}
     if len(flags) != 1 or not all(isinstance(lane.guard, LaneGuard) for lane in lanes):
         raise ValueError("every lane needs a LaneGuard, all sharing one stop flag (lane_guards)")
@@ -140,7 +161,7 @@ def _lane(recipe, plan, lane: Lane, channels, results: queue.Queue, stop, clock)
                 error = exc
             results.put(_Result(channel, recorder, error, clock() - started))
             if error is not None and not skips(error, recipe):
-                stop.set()
+                stop.stop(why_stopped(error, lane.name))
                 break
     finally:
         results.put(_DONE)
@@ -166,7 +187,7 @@ class _Collector:
         self.start = self.clock()
         self.order = {channel: k for k, channel in enumerate(self.plan.channels)}
 
-    def collect(self, results: queue.Queue, lanes: int, stop: threading.Event) -> None:
+    def collect(self, results: queue.Queue, lanes: int, stop: StopFlag) -> None:
         self.lanes_left = lanes
         while self.lanes_left:
             self._take(results.get(), stop)
@@ -188,14 +209,14 @@ class _Collector:
             raise self.first_error
         self.summary.status = "completed"
 
-    def _take(self, item: _Result | str, stop: threading.Event) -> None:
+    def _take(self, item: _Result | str, stop: StopFlag) -> None:
         if item == _DONE:
             self.lanes_left -= 1
             return
         assert isinstance(item, _Result)
         error = item.error
         if error is not None and not skips(error, self.recipe):
-            stop.set()
+            stop.stop(why_stopped(error))
             if self.first_error is None and not isinstance(error, Halted):
                 self.first_error = error
         self.waiting[self.order[item.channel]] = item

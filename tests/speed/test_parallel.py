@@ -117,6 +117,7 @@ def test_a_lid_opened_on_one_instrument_stops_every_lane():
     assert len(channels) < 8  # the first lane stopped early
     reasons = [j.reasons[0] for _, j in store.added if j.verdict == "aborted"]
     assert any("interlock reads open" in r for r in reasons)
+    assert any(r.startswith("aborted: stopped with instrument smu1: refused") for r in reasons)
     assert all(j.verdict == "aborted" for c, j in store.added if c.channel >= 5)
     assert not any(s.output_is_on() for s in smus)
 
@@ -149,7 +150,7 @@ def test_an_interrupt_stops_every_lane_and_keeps_what_was_measured():
     channels = [c.channel for c, _ in store.added]
     assert channels[:2] == [1, 2] and channels == sorted(channels) and len(channels) < DEVICES
     stopped = [j for _, j in store.added if j.verdict == "aborted"]
-    assert stopped and all("another instrument" in j.reasons[0] for j in stopped)
+    assert stopped and all(j.reasons[0] == "aborted: interrupted by the operator" for j in stopped)
     assert not any(smu.output_is_on() for smu in smus)
 
 
