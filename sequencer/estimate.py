@@ -112,11 +112,16 @@ def _last_level(plan: Plan) -> float:
 
 def predict(recipe, plan: Plan, lanes: Sequence[int] | None = None) -> Estimate:
     """The estimate for a recipe's run on its station (reads the instrument's dialect file)."""
-    from instruments import load_dialect
+    from instruments import DialectError, load_dialect
+
+    from .errors import RecipeError
 
     station = recipe.station
     specs = station.instruments
-    dialect = load_dialect(station.dialect)
+    try:
+        dialect = load_dialect(station.dialect)
+    except DialectError as exc:  # found by `check` already, not first by `run`
+        raise RecipeError(station.file, None, "instrument.dialect", f"is unusable: {exc}") from None
     guard = Guard(recipe.effective_limits, lambda: True, no_clamp_steps(recipe.steps))
     if lanes is None:
         wanted = set(plan.channels)

@@ -65,3 +65,16 @@ def test_after_a_run_the_prediction_and_the_time_taken_stand_side_by_side():
     text = after_run(e, 20, 10, 2.0)
     assert text.startswith("time: took 2.0 s for 10 devices (200.0 ms a device); predicted")
     assert after_run(e, 20, 0, 0.0) == "time: took 0.0 s; no device was measured"
+
+
+def test_a_station_whose_dialect_cannot_be_read_is_refused_by_the_estimate(tmp_path):
+    from sequencer.errors import RecipeError
+    from sequencer.recipe import load_recipe
+    from tests.speed.helpers import ROOT
+
+    text = (ROOT / "recipes" / "demo-station.yaml").read_text()
+    station = tmp_path / "station.yaml"
+    station.write_text(text.replace("dialect: scpi1999", "dialect: missing.yaml"))
+    recipe = load_recipe(ROOT / "recipes" / "demo.yaml", station_path=station)
+    with pytest.raises(RecipeError, match=r"instrument.dialect is unusable: .*missing.yaml"):
+        predict(recipe, make_plan(recipe))
