@@ -172,8 +172,18 @@ class ScpiSmu:
         current = self._parse("measure", values["current"], parse_number)
         return Reading(voltage, current, self._in_compliance(values, current))
 
+    def can_run_list(self, settle_s: float) -> bool:
+        """Whether `list_sweep` runs on the instrument (else it goes point by point)."""
+        return self.dialect.has_lists and not (settle_s and self.dialect.set_settle is None)
+
     def list_sweep(
-        self, levels_v: Sequence[float], *, limit_a: float, nplc: float, settle_s: float
+        self,
+        levels_v: Sequence[float],
+        *,
+        limit_a: float,
+        nplc: float,
+        settle_s: float,
+        configure: bool = True,
     ) -> Sweep:
         """Apply `levels_v` in order, each settled `settle_s` and measured over `nplc`, and
         return (voltage, current, in_compliance) arrays, one entry per level.
@@ -182,12 +192,14 @@ class ScpiSmu:
         a list-capable dialect the instrument runs the whole list and the readings come back
         in one fetch (one binary block where the dialect offers it, else ASCII), in chunks of
         `list_max_points`; otherwise, and when the dialect cannot settle, point by point.
+        `configure=False` skips the configuration when the caller has just sent the same one.
         """
         levels = np.asarray(levels_v, dtype=float)
         if levels.ndim != 1 or not levels.size or not np.all(np.isfinite(levels)):
             raise ValueError(f"levels_v must be a non-empty list of finite volts ({levels_v!r})")
-        self.configure(limit_a=limit_a, nplc=nplc, settle_s=settle_s)
-        if not self.dialect.has_lists or (settle_s and self.dialect.set_settle is None):
+        if configure:
+            self.configure(limit_a=limit_a, nplc=nplc, settle_s=settle_s)
+        if not self.can_run_list(settle_s):
             return self._point_by_point(levels)
         size = self.dialect.list_max_points or levels.size
         chunks = [levels[k : k + size] for k in range(0, levels.size, size)]

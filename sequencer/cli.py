@@ -16,9 +16,10 @@ from pathlib import Path
 
 from rich.console import Console
 
-from . import __version__, judgecmd, operator, reportcmd, results, runsession, shipper
+from . import __version__, judgecmd, multibench, operator, reportcmd, results, runsession, shipper
 from .benchrun import GATE, Bench, Terminated, on_bench
 from .errors import CcbenchError, RunError
+from .estimate import after_run, predict
 from .lotrun import run_lot
 from .plan import make_plan
 from .recipe import Recipe, load_recipe
@@ -99,20 +100,21 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     _preflight(recipe, plan, args)
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))
-    console.print(plan_summary(recipe, plan), soft_wrap=True)
+    console.print(plan_summary(recipe, plan, predict(recipe, plan)), soft_wrap=True)
     console.print(f"{recipe.file}: valid; within the limits of station {recipe.station.name}")
     return 0
 
 
 def cmd_run(args: argparse.Namespace, console: Console) -> int:
-    from instruments import InstrumentError, connect
+    from instruments import InstrumentError
 
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
-    resource = "sim" if args.sim else recipe.station.resource
+    resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
     _cautions(console, recipe, plan)
-    console.print(plan_summary(recipe, plan), soft_wrap=True)
+    prediction = predict(recipe, plan)
+    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
     repeat = runsession.repeat_for(recipe, args)
     manifest = _manifest(recipe, args, resource)
@@ -122,34 +124,20 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     store = runsession.open_store(out, manifest, args, console)
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
         return 0
-    status, bench = "failed", Bench()
+    several = len(recipe.station.instruments) > 1
+    status, bench = "failed", (multibench.Benches() if several else Bench())
     uploads = shipper.start_for(recipe.station.results_database, store, console)
     try:
-        with open(out / "scpi.log", "a", encoding="utf-8") as log, GATE.held():
-            conn = connect(
-                resource,
-                dialect=recipe.station.dialect,
-                timeout_s=recipe.station.timeout_s,
-                spy_log=log,
-                sim_options=recipe.station.simulator_options if resource == "sim" else None,
+        if several:  # one worker per instrument; sequencer/multibench.py
+            summary = multibench.measure_on_benches(
+                recipe, plan, args.sim, out, store,
+                lambda one: runsession.measure_passes(console, store, plan, repeat, one),
+                console, bench, GATE,
+            )  # fmt: skip
+        else:
+            summary = _on_one_bench(
+                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part
             )
-
-            def measure(guard):
-                store.set_identity(conn.resource, conn.identity)
-                if args.part_by_part:
-                    tester = operator.PartBench(recipe, plan, conn.smu, store, guard)
-                    write, sim = conn.smu.transport.write, resource == "sim"
-                    return operator.from_command_line(console, tester, sim, write)
-
-                def one_pass(part):
-                    return _measure(console, recipe, part, conn.smu, store, guard)
-
-                return runsession.measure_passes(console, store, plan, repeat, one_pass)
-
-            def announce(text):
-                console.print(text, soft_wrap=True)
-
-            summary = on_bench(conn, recipe, plan, measure, bench, GATE, announce)
         status = summary.status
     except InstrumentError as exc:
         raise RunError(f"instrument: {exc}; {bench.ending()}") from None
@@ -170,9 +158,42 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
         shipper.finish(uploads, console)
     console.print(summary_table(summary))
+    took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
+    console.print(took, soft_wrap=True)
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
     return 0
+
+
+def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
+    """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
+    from instruments import connect
+
+    with open(out / "scpi.log", "a", encoding="utf-8") as log, GATE.held():
+        conn = connect(
+            resource,
+            dialect=recipe.station.dialect,
+            timeout_s=recipe.station.timeout_s,
+            spy_log=log,
+            sim_options=recipe.station.simulator_options if resource == "sim" else None,
+        )
+
+        def measure(guard):
+            store.set_identity(conn.resource, conn.identity)
+            if part_by_part:
+                tester = operator.PartBench(recipe, plan, conn.smu, store, guard)
+                write, sim = conn.smu.transport.write, resource == "sim"
+                return operator.from_command_line(console, tester, sim, write)
+
+            def one_pass(part):
+                return _measure(console, recipe, part, conn.smu, store, guard)
+
+            return runsession.measure_passes(console, store, plan, repeat, one_pass)
+
+        def announce(text):
+            console.print(text, soft_wrap=True)
+
+        return on_bench(conn, recipe, plan, measure, bench, GATE, announce)
 
 
 def _measure(console, recipe, plan, smu, store, guard):

@@ -51,6 +51,9 @@ def manifest_extras(recipe: Recipe, args: argparse.Namespace, repeat: Repeat | N
     if repeat is not None:
         option = "--every/--for/--passes" if args.every or args.passes else "the recipe's repeat"
         raise RecipeError("command line", None, "--part-by-part", f"cannot be used with {option}")
+    if len(recipe.station.instruments) > 1:
+        problem = f"needs a station with one instrument ({recipe.station.file} names several)"
+        raise RecipeError("command line", None, "--part-by-part", problem)
     return {"schedule": recipe.part_by_part.describe()}
 
 

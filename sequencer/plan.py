@@ -1,4 +1,9 @@
-"""Expand a recipe's steps into the concrete levels each device will see. Pure: no I/O."""
+"""Expand a recipe's steps into the concrete levels each device will see. Pure: no I/O.
+
+A `figures:` step (sequencer.production) becomes fixed levels plus a search whose levels are
+chosen at run time within a range (`Segment.search`); its estimate counts the readings such a
+search usually takes.
+"""
 
 from __future__ import annotations
 
@@ -6,7 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .recipe import Recipe, SpotStep, SweepStep
+from .kneesearch import KneeSearch
+from .recipe import FiguresStep, Recipe, SpotStep, SweepStep
 
 # Instrument-independent cost of one reading beyond aperture and settling: a command and a
 # query round trip through the driver (measured on loopback: well under a millisecond).
@@ -17,13 +23,20 @@ PER_DEVICE_OVERHEAD_S = 0.01
 
 @dataclass(frozen=True)
 class Segment:
-    """One recipe step as levels to apply with one compliance and settling time."""
+    """One recipe step as levels to apply with one compliance and settling time. A search
+    segment (`search` set) reads levels chosen at run time within `levels_v` = (low, high)."""
 
     step: str
     kind: str
     levels_v: tuple[float, ...]
     compliance_a: float
     settle_s: float
+    search: KneeSearch | None = None
+
+    @property
+    def expected_points(self) -> int:
+        """Readings per device: every level, or what a search usually takes."""
+        return self.search.expected_points if self.search else len(self.levels_v)
 
     @property
     def peak_voltage_v(self) -> float:
@@ -41,10 +54,11 @@ class Plan:
     channels: tuple[int, ...]
     nplc: float
     line_frequency_hz: float
+    lists: bool = False  # the recipe allows instrument-side lists (where the dialect has them)
 
     @property
     def points_per_device(self) -> int:
-        return sum(len(s.levels_v) for s in self.segments)
+        return sum(s.expected_points for s in self.segments)
 
     @property
     def peak_voltage_v(self) -> float:
@@ -61,7 +75,7 @@ class Plan:
     def seconds_per_device(self) -> float:
         """Instrument time per device: every point's settling plus aperture, plus fixed costs."""
         per_point = self.aperture_s + PER_POINT_OVERHEAD_S
-        total = sum(len(s.levels_v) * (s.settle_s + per_point) for s in self.segments)
+        total = sum(s.expected_points * (s.settle_s + per_point) for s in self.segments)
         return total + PER_DEVICE_OVERHEAD_S
 
     def estimated_seconds(self) -> float:
@@ -82,5 +96,11 @@ def make_plan(recipe: Recipe) -> Plan:
         elif isinstance(step, SpotStep):
             levels = (step.voltage_v,) * step.repeats
             segments.append(Segment(step.name, "spot", levels, step.compliance_a, step.settle_s))
+        elif isinstance(step, FiguresStep):
+            from .production import production_segments
+
+            segments += production_segments(step, recipe.judge)
     station = recipe.station
-    return Plan(tuple(segments), station.channels, recipe.nplc, station.line_frequency_hz)
+    return Plan(
+        tuple(segments), station.channels, recipe.nplc, station.line_frequency_hz, recipe.lists
+    )

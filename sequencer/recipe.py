@@ -15,6 +15,8 @@ from typing import Any
 from .fields import Fields as _Fields
 from .fields import positive as _positive
 from .fields import show as _show
+from .figuresstep import FiguresStep, check_against_judge, parse_figures
+from .instrumentspec import InstrumentSpec, instrument_specs
 from .judgeconfig import parse_accuracy, parse_judge
 from .judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
 from .limits import (
@@ -72,6 +74,8 @@ class Station:
     text: str = ""
     accuracy: Accuracy = DEFAULT_ACCURACY
     results_database: SharedDatabase | None = None  # a shared store besides the run folder
+    # Every SMU with its channels (sequencer.instrumentspec); the fields above name the first.
+    instruments: tuple[InstrumentSpec, ...] = ()
 
     @property
     def simulator_options(self) -> dict[str, object]:
@@ -107,7 +111,7 @@ class SpotStep:
             raise ValueError("a spot needs at least 1 repeat")
 
 
-Step = SweepStep | SpotStep
+Step = SweepStep | SpotStep | FiguresStep  # figures: the production step (figuresstep.py)
 
 
 @dataclass(frozen=True)
@@ -127,6 +131,7 @@ class Recipe:
     hazardous_voltage_acknowledged: bool = False
     repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
     part_by_part: RetestPolicy = field(default_factory=RetestPolicy)  # --part-by-part
+    lists: bool = False  # run steps as instrument-side lists where safe (sequencer.segmentrun)
 
     @property
     def effective_limits(self) -> EffectiveLimits:
@@ -146,18 +151,11 @@ def load_station(path: Path) -> Station:
     source = load_yaml(path)
     top = _Fields.at(source, "", source.data)
     name = top.text("station")
-    inst = _Fields.at(source, "instrument", top.raw("instrument"))
-    resource = inst.text("resource")
-    dialect = inst.text("dialect", "scpi1999")
-    if dialect != "scpi1999" and not Path(dialect).is_absolute():
-        dialect = str((path.parent / dialect).resolve())
-    timeout_s = inst.quantity("timeout", "time", "2 s")
-    inst.check(0.05 <= timeout_s <= 60, "timeout", f"must be 50 ms to 60 s (got {timeout_s} s)")
-    line_hz = inst.quantity("line_frequency", "frequency", "50 Hz")
-    inst.check(line_hz in (50.0, 60.0), "line_frequency", f"must be 50 Hz or 60 Hz (got {line_hz})")
-    inst.finish()
-    channels = _channels(source, top.raw("tray"))
-    top.used.add("tray")
+    specs = instrument_specs(source, top, path.parent)  # `instrument:` + `tray:`, or several
+    first = specs[0]
+    resource, dialect, timeout_s = first.resource, first.dialect, first.timeout_s
+    line_hz = first.line_frequency_hz
+    channels = tuple(c for spec in specs for c in spec.channels)
     lim = _Fields.at(source, "limits", top.raw("limits"))
     limits = Limits(
         max_voltage_v=_positive(lim, "max_voltage", "voltage"),
@@ -189,26 +187,7 @@ def load_station(path: Path) -> Station:
         text,
         accuracy,
         shared,
-    )
-
-
-def _channels(source: Source, value: Any) -> tuple[int, ...]:
-    tray = _Fields.at(source, "tray", value)
-    raw = tray.raw("channels")
-    tray.finish()
-    where = "tray.channels"
-    if isinstance(raw, int) and not isinstance(raw, bool) and raw > 0:
-        return tuple(range(1, raw + 1))
-    if isinstance(raw, list) and raw and all(isinstance(c, int) and c > 0 for c in raw):
-        if len(set(raw)) != len(raw):
-            raise source.error(where, "lists a channel twice")
-        return tuple(raw)
-    if isinstance(raw, str) and "-" in raw:
-        first, _, last = raw.partition("-")
-        if first.strip().isdigit() and last.strip().isdigit() and 0 < int(first) <= int(last):
-            return tuple(range(int(first), int(last) + 1))
-    raise source.error(
-        where, f"must be a count, a list of channels or a range '1-20' (got {raw!r})"
+        specs,
     )
 
 
@@ -285,9 +264,12 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     top.check(0.01 <= nplc <= 10, "nplc", f"must be 0.01 to 10 power-line cycles (got {nplc})")
     steps = _steps(source, top.raw("steps"))
     judge = parse_judge(source, top.raw("judge", {}), station.accuracy)
+    check_against_judge(source, steps, judge)
     safety = _safety_settings(source, top, station)
     repeat = parse_repeat(source, top.raw("repeat", None))
     parts = parse_part_by_part(source, top.raw("part_by_part", None))
+    lists = top.raw("lists", False)
+    top.check(isinstance(lists, bool), "lists", f"must be true or false (got {lists!r})")
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Recipe(
@@ -302,6 +284,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
         text,
         repeat=repeat,
         part_by_part=parts,
+        lists=lists,
         **safety,
     )
 
@@ -320,20 +303,22 @@ def _safety_settings(source: Source, top: _Fields, station: Station) -> dict[str
 
 def _steps(source: Source, value: Any) -> tuple[Step, ...]:
     if not isinstance(value, list) or not value:
-        raise source.error("steps", "must be a list of one or more steps (sweep or spot)")
+        raise source.error("steps", "must be a list of one or more steps (sweep, spot, figures)")
     steps: list[Step] = []
     for index, item in enumerate(value):
         where = f"steps[{index}]"
         if not isinstance(item, dict) or len(item) != 1:
-            raise source.error(where, "must be one 'sweep:' or 'spot:' mapping")
+            raise source.error(where, "must be one 'sweep:', 'spot:' or 'figures:' mapping")
         ((kind, body),) = item.items()
         path = f"{where}.{kind}"
         if kind == "sweep":
             steps.append(_sweep(_Fields.at(source, path, body), index))
         elif kind == "spot":
             steps.append(_spot(_Fields.at(source, path, body), index))
+        elif kind == "figures":
+            steps.append(parse_figures(_Fields.at(source, path, body), index))
         else:
-            raise source.error(path, "is not a step kind (expected 'sweep' or 'spot')")
+            raise source.error(path, "is not a step kind (expected 'sweep', 'spot' or 'figures')")
     names = [s.name for s in steps]
     for index, name in enumerate(names):
         if names.index(name) != index:

@@ -15,6 +15,7 @@ import numpy as np
 from .curve import Curve
 from .plan import Plan
 from .safety import Guard
+from .segmentrun import SegmentRun
 
 log = logging.getLogger(__name__)
 
@@ -94,7 +95,8 @@ def measure_device(
     recorder: Recorder,
     clock: Callable[[], float] = time.monotonic,
 ) -> None:
-    """Run every segment of the plan on one tray channel, filling `recorder`.
+    """Run every segment of the plan on one tray channel, filling `recorder` (point by point,
+    as instrument-side lists, or as a search: sequencer.segmentrun).
 
     A clamped reading is recorded with its flag (the judge leaves it out of the figures); the
     guard trips on it only in a step that must not clamp. The instrument's error queue is read
@@ -104,21 +106,9 @@ def measure_device(
     start = clock()
     guard.applied(0.0)
     try:
-        output_on = False
+        run = SegmentRun(smu, plan, guard, recorder, lambda: clock() - start)
         for index, seg in enumerate(plan.segments):
-            guard.check_level(0.0, seg.compliance_a)
-            smu.configure(limit_a=seg.compliance_a, nplc=plan.nplc, settle_s=seg.settle_s)
-            for volts in seg.levels_v:
-                guard.check_level(volts, seg.compliance_a)
-                smu.set_voltage(volts)
-                guard.applied(volts)
-                if not output_on:
-                    smu.output(True)
-                    output_on = True
-                reading = smu.measure()
-                recorder.add(index, volts, reading, clock() - start)
-                guard.check_reading(seg.step, seg.compliance_a, reading)
-            smu.check_errors()
+            run.run(index, seg)
     except BaseException:
         _switch_off_after(smu, guard)
         raise

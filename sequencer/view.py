@@ -9,6 +9,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from rich.table import Table
 from rich.text import Text
 
+from .estimate import Estimate, describe
 from .judge import Figure, Judgement
 from .lotrun import DeviceDone, RunSummary
 from .plan import Plan
@@ -58,10 +59,11 @@ def plan_table(recipe: Recipe, plan: Plan) -> Table:
             if seg.kind == "sweep"
             else (f"{seg.levels_v[0]:g} V")
         )
+        searched = seg.search is not None  # levels chosen at run time, within the range shown
         table.add_row(
             seg.step,
-            seg.kind,
-            str(len(seg.levels_v)),
+            "search" if searched else seg.kind,
+            f"~{seg.expected_points}" if searched else str(len(seg.levels_v)),
             levels,
             format_si(seg.compliance_a, "A"),
             format_si(seg.settle_s, "s"),
@@ -70,12 +72,14 @@ def plan_table(recipe: Recipe, plan: Plan) -> Table:
     return table
 
 
-def plan_summary(recipe: Recipe, plan: Plan) -> str:
+def plan_summary(recipe: Recipe, plan: Plan, estimate: Estimate | None = None) -> str:
+    count = len(recipe.station.instruments)
+    on = f"station {recipe.station.name}" + (f" ({count} instruments at once)" if count > 1 else "")
+    timed = describe(estimate) if estimate else f"estimated {plan.estimated_seconds():.1f} s"
     return (
         f"{len(plan.channels)} devices x {plan.points_per_device} points, aperture "
         f"{format_si(plan.aperture_s, 's')}; peak {plan.peak_voltage_v:g} V, peak power "
-        f"{format_si(plan.peak_power_w, 'W')}; estimated {plan.estimated_seconds():.1f} s "
-        f"on station {recipe.station.name}"
+        f"{format_si(plan.peak_power_w, 'W')}; {timed} on {on}"
     )
 
 

@@ -1,0 +1,88 @@
+"""Shared pieces of the speed tests: recipes written from the demo's, the simulated lot reached
+in process through the real driver, and a smooth regulator-like curve for the pure search."""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+
+import numpy as np
+
+from instruments.dialect import load_dialect
+from instruments.smu import ScpiSmu
+from instruments.transport import CallableTransport
+from sequencer.judge import Judgement, judge_curve
+from sequencer.lotrun import device_name, make_guard
+from sequencer.plan import make_plan
+from sequencer.recipe import Recipe, load_recipe
+from sequencer.runner import Recorder, measure_device
+from simulator import smu_model
+from simulator.options import SimOptions, build_instrument
+from simulator.session import Session
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "recipes" / "demo.yaml"
+PRODUCTION = ROOT / "recipes" / "demo-production.yaml"
+
+
+def recipes() -> tuple[Recipe, Recipe]:
+    return load_recipe(DEMO), load_recipe(PRODUCTION)
+
+
+def lot_smu(
+    recipe: Recipe, devices: int, *, sent: list[str] | None = None, defect_rate: float | None = None
+):
+    """(instrument, driver) for the demo station's simulated lot, on the virtual clock."""
+    options = dict(recipe.station.simulator_options)
+    if defect_rate is not None:
+        options["defect_rate"] = defect_rate
+    inst = build_instrument(
+        SimOptions(seed=int(options["seed"]), devices=devices, preset=str(options["preset"]),
+                   spread=float(options["spread"]), defect_rate=float(options["defect_rate"]),
+                   clock="virtual")
+    )  # fmt: skip
+    session = Session(inst)
+
+    def handle(message: str) -> str | None:
+        if sent is not None:
+            sent.append(message)
+        return session.handle(message)
+
+    return inst, ScpiSmu(CallableTransport(handle, "sim-in-process"), load_dialect("scpi1999"))
+
+
+def measure_lot(
+    recipe: Recipe, devices: int, defect_rate: float | None = None
+) -> tuple[list[Judgement], list]:
+    """Every device of a fresh simulated lot measured and judged; (judgements, curves)."""
+    _, smu = lot_smu(recipe, devices, defect_rate=defect_rate)
+    plan = dataclasses.replace(make_plan(recipe), channels=tuple(range(1, devices + 1)))
+    guard = make_guard(recipe, smu)
+    judgements, curves = [], []
+    for channel in plan.channels:
+        recorder = Recorder()
+        measure_device(smu, plan, channel, guard, recorder)
+        curve = recorder.curve(device_name(recipe.lot, channel), channel, plan)
+        curves.append(curve)
+        judgements.append(judge_curve(curve, recipe.judge))
+    return judgements, curves
+
+
+def regulator_current(volts, ip: float = 1.8e-3, knee_v: float = 1.1) -> np.ndarray:
+    """A smooth rising-then-flat curve (no physics: the judge's accuracy is checked in
+    tests/reference), strictly increasing, 0 at 0 V."""
+    v = np.asarray(volts, float)
+    return ip * np.tanh(v / knee_v) ** 2 * (1 + v / 400.0)
+
+
+@contextmanager
+def noiseless() -> Iterator[None]:
+    """The simulator's reading noise off, in this process (readings are still rounded)."""
+    saved = smu_model.CURRENT_NOISE_OF_RANGE, smu_model.VOLTAGE_NOISE_V
+    smu_model.CURRENT_NOISE_OF_RANGE = smu_model.VOLTAGE_NOISE_V = 0.0
+    try:
+        yield
+    finally:
+        smu_model.CURRENT_NOISE_OF_RANGE, smu_model.VOLTAGE_NOISE_V = saved
