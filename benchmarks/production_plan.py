@@ -31,8 +31,6 @@ import argparse
 import dataclasses
 import sys
 import time
-from collections.abc import Iterator
-from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -112,17 +110,6 @@ class Bench:
             segments.append(curve.segment)
             judgements.append(judge_curve(curve, recipe.judge))
         return Measured(plan, judgements, np.array(busy), segments)
-
-
-@contextmanager
-def noiseless() -> Iterator[None]:
-    """The simulator's reading noise off (readings are still rounded to its resolution)."""
-    saved = smu_model.CURRENT_NOISE_OF_RANGE, smu_model.VOLTAGE_NOISE_V
-    smu_model.CURRENT_NOISE_OF_RANGE = smu_model.VOLTAGE_NOISE_V = 0.0
-    try:
-        yield
-    finally:
-        smu_model.CURRENT_NOISE_OF_RANGE, smu_model.VOLTAGE_NOISE_V = saved
 
 
 def differences(a: list[Judgement], b: list[Judgement], figure: str) -> np.ndarray:
@@ -226,7 +213,7 @@ def main() -> int:
     prod_recipe = load_recipe(ROOT / "recipes" / "demo-production.yaml")
     print(f"lot: {args.devices} simulated FLC-1.8 devices (seed {args.seed}), virtual clock\n")
     t0 = time.perf_counter()
-    with noiseless():
+    with smu_model.noiseless():
         bench = Bench(full_recipe, args.devices, args.seed)
         quiet = bench.measure(full_recipe), bench.measure(prod_recipe)
     bench = Bench(full_recipe, args.devices, args.seed)

@@ -16,6 +16,8 @@ Measurement model (documented here because a driver's tests depend on it):
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -144,3 +146,16 @@ class Smu:
 
 def _round(value: float, step: float) -> float:
     return float(np.round(value / step) * step)
+
+
+@contextmanager
+def noiseless() -> Iterator[None]:
+    """Reading noise off in this process (readings are still rounded to the resolution): for
+    comparisons whose only difference should be the plan, in tests and benchmarks."""
+    global CURRENT_NOISE_OF_RANGE, VOLTAGE_NOISE_V
+    saved = CURRENT_NOISE_OF_RANGE, VOLTAGE_NOISE_V
+    CURRENT_NOISE_OF_RANGE = VOLTAGE_NOISE_V = 0.0
+    try:
+        yield
+    finally:
+        CURRENT_NOISE_OF_RANGE, VOLTAGE_NOISE_V = saved

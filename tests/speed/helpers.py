@@ -4,8 +4,6 @@ in process through the real driver, and a smooth regulator-like curve for the pu
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Iterator
-from contextlib import contextmanager
 from pathlib import Path
 
 import numpy as np
@@ -18,9 +16,9 @@ from sequencer.lotrun import device_name, make_guard
 from sequencer.plan import make_plan
 from sequencer.recipe import Recipe, load_recipe
 from sequencer.runner import Recorder, measure_device
-from simulator import smu_model
 from simulator.options import SimOptions, build_instrument
 from simulator.session import Session
+from simulator.smu_model import noiseless  # noqa: F401 - the speed tests import it from here
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "recipes" / "demo.yaml"
@@ -75,14 +73,3 @@ def regulator_current(volts, ip: float = 1.8e-3, knee_v: float = 1.1) -> np.ndar
     tests/reference), strictly increasing, 0 at 0 V."""
     v = np.asarray(volts, float)
     return ip * np.tanh(v / knee_v) ** 2 * (1 + v / 400.0)
-
-
-@contextmanager
-def noiseless() -> Iterator[None]:
-    """The simulator's reading noise off, in this process (readings are still rounded)."""
-    saved = smu_model.CURRENT_NOISE_OF_RANGE, smu_model.VOLTAGE_NOISE_V
-    smu_model.CURRENT_NOISE_OF_RANGE = smu_model.VOLTAGE_NOISE_V = 0.0
-    try:
-        yield
-    finally:
-        smu_model.CURRENT_NOISE_OF_RANGE, smu_model.VOLTAGE_NOISE_V = saved

@@ -17,13 +17,12 @@ from pathlib import Path
 
 import pytest
 
-from .conftest import write_recipe
+from .conftest import stored, write_recipe
 
 ROOT = Path(__file__).resolve().parents[2]
 KILLS = 10  # SIGKILLs per test run; each resumed run is killed again until this many
 SEED = 20260504
 CHANNELS = 20  # the simulated tray holds 20
-SKIP = ("measured", "session", "seq", "pass_started")
 
 pytestmark = [pytest.mark.sim, pytest.mark.robustness]
 
@@ -62,18 +61,6 @@ def kill_at_random(proc: subprocess.Popen[str], out: Path, rng: random.Random) -
         return None
     os.kill(proc.pid, signal.SIGKILL)
     return aim
-
-
-def stored(out: Path) -> tuple[list[dict], list[tuple]]:
-    db = sqlite3.connect(out / "results.sqlite")
-    db.row_factory = sqlite3.Row
-    rows = [dict(r) for r in db.execute("SELECT * FROM device ORDER BY pass, device")]
-    points = db.execute(
-        "SELECT pass, device, idx, step, level_V, voltage_V, current_A, in_compliance "
-        "FROM point ORDER BY pass, device, idx"
-    ).fetchall()
-    db.close()
-    return [{k: v for k, v in r.items() if k not in SKIP} for r in rows], [tuple(p) for p in points]
 
 
 def csv_devices(out: Path) -> list[str]:

@@ -16,8 +16,7 @@ from sequencer.plan import make_plan
 from sequencer.store import RunStore
 
 from .conftest import load, manifest_of, measure_into, sim_smu
-
-SKIP = ("measured", "session", "seq", "pass_started")
+from .conftest import stored as devices
 
 
 class StopAt:
@@ -40,18 +39,6 @@ def die(store: RunStore) -> None:
     """What a SIGKILL leaves: files closed by the kernel, nothing recorded, the lock gone."""
     for close in (store.db.close, store.journal.close, store.csv_file.close, store.lock.release):
         close()
-
-
-def devices(folder):
-    db = sqlite3.connect(folder / "results.sqlite")
-    db.row_factory = sqlite3.Row
-    rows = [dict(r) for r in db.execute("SELECT * FROM device ORDER BY pass, device")]
-    points = db.execute(
-        "SELECT pass, device, idx, step, level_V, voltage_V, current_A, in_compliance "
-        "FROM point ORDER BY pass, device, idx"
-    ).fetchall()
-    db.close()
-    return [{k: v for k, v in r.items() if k not in SKIP} for r in rows], [tuple(p) for p in points]
 
 
 def csv_devices(folder):
