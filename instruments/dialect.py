@@ -41,7 +41,7 @@ FETCH_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
 # before them may leave them out (they are then null: the driver sweeps point by point).
 OPTIONAL_KEYS = frozenset(
     {"list_voltage", "initiate", "fetch", "fetch_fields", "binary_format", "binary_big_endian"}
-    | {"ascii_format", "fixed_mode", "list_max_points"}
+    | {"ascii_format", "fixed_mode", "list_max_points", "max_message_bytes"}
 )
 _LIST_KEYS = ("list_voltage", "initiate", "fetch", "fetch_fields")  # all given, or none
 
@@ -83,6 +83,9 @@ class Dialect:
     ascii_format: str | None = None
     fixed_mode: str | None = None
     list_max_points: int | None = None
+    # Several commands may share one message (IEEE 488.2 program message units joined by ";"),
+    # up to this many bytes; None: every command is a message of its own.
+    max_message_bytes: int | None = None
     source: str = "<built in>"
 
     @property
@@ -112,7 +115,7 @@ class Dialect:
 _ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name != "source")
 _NON_TEXT = frozenset(
     {"name", "description", "measure_fields", "compliance_bit", "fetch_fields"}
-    | {"binary_big_endian", "list_max_points"}
+    | {"binary_big_endian", "list_max_points", "max_message_bytes"}
 )
 _TEXT_KEYS = frozenset(_ALL_KEYS) - _NON_TEXT
 
@@ -200,7 +203,7 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
         if not isinstance(value, bool):
             raise DialectError(source, key, line, f"must be true or false (got {value!r})")
         return value
-    if key == "list_max_points":
+    if key in ("list_max_points", "max_message_bytes"):
         if isinstance(value, bool) or not isinstance(value, int) or value < 1:
             raise DialectError(source, key, line, f"must be a whole number >= 1 (got {value!r})")
         return value

@@ -119,6 +119,25 @@ def split_reply(text: str) -> list[list[str]]:
     return units
 
 
+def message_units(message: str) -> list[str]:
+    """The commands of a compound program message, each from the root: 'SOUR:VOLT 1;:READ?' ->
+    ['SOUR:VOLT 1', 'READ?'] (";" inside quoted strings kept). For reading a SCPI log by
+    command; the relative-path form ('SOUR:VOLT 1;CURR 2') is not expanded."""
+    units, unit, quote = [], [], ""
+    for char in message.strip():
+        if quote:
+            quote = "" if char == quote else quote
+        elif char in "\"'":
+            quote = char
+        elif char == ";":
+            units.append("".join(unit).strip().removeprefix(":"))
+            unit = []
+            continue
+        unit.append(char)
+    units.append("".join(unit).strip().removeprefix(":"))
+    return [u for u in units if u]
+
+
 def flat_fields(text: str) -> list[str]:
     """All fields of a compound reply in order, units flattened ('1,2;3' -> ['1', '2', '3'])."""
     return [field for unit in split_reply(text) for field in unit]

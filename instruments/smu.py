@@ -73,6 +73,8 @@ class ScpiSmu:
         self._limit_a: float | None = None
         self._settle_s = 0.0  # waited by the driver itself only when the dialect has no settle
         self._recent: deque[str] = deque(maxlen=_RECENT)
+        self._pending: list[str] = []  # commands held for the next message (see `batch`)
+        self._batching = False
 
     @property
     def resource(self) -> str:
@@ -130,12 +132,37 @@ class ScpiSmu:
             _check_positive(current_range_a=current_range_a)
         if not (math.isfinite(settle_s) and settle_s >= 0):
             raise ValueError(f"settle_s must be >= 0 s (got {settle_s!r})")
-        self._write_if_known("source_voltage_mode")
-        self.set_current_limit(limit_a)
-        self._configure_timing(nplc, settle_s)
-        self._configure_range(current_range_a)
-        self._write_if_known("sense_functions")
-        self.check_errors()
+        with self.batch():  # the whole setup and its error check: one exchange
+            self._write_if_known("source_voltage_mode")
+            self.set_current_limit(limit_a)
+            self._configure_timing(nplc, settle_s)
+            self._configure_range(current_range_a)
+            self._write_if_known("sense_functions")
+            self.check_errors()
+
+    @contextmanager
+    def batch(self) -> Iterator[None]:
+        """Inside, commands are held and go out with the next query as one message (the setup
+        of a device with its error check, a level with its reading), or together at the end.
+
+        Only where the dialect allows compound messages (`max_message_bytes`); otherwise, and
+        when nested, it changes nothing. The order of commands is kept, and so is their effect:
+        on an exception the held commands are still sent (each had passed every check before
+        it was held, exactly as if it had gone out at once), and switching the output off
+        never waits (`output`).
+        """
+        if self._batching or self.dialect.max_message_bytes is None:
+            yield
+            return
+        self._batching = True
+        try:
+            yield
+        except BaseException:
+            self._flush_quietly()
+            raise
+        finally:
+            self._batching = False
+        self._flush()
 
     def set_voltage(self, volts: float) -> None:
         self._write("set_voltage", volts=float(volts))
@@ -145,7 +172,14 @@ class ScpiSmu:
         self._limit_a = float(amps)
 
     def output(self, on: bool) -> None:
-        self._write("output", state="ON" if on else "OFF")
+        if on:
+            self._write("output", state="ON")
+            return
+        # Off goes out now, as a message of its own, after whatever was held before it.
+        self._flush_quietly()
+        message = self.dialect.render("output", state="OFF")
+        self._recent.append(message)
+        self.transport.write(message)
 
     def output_is_on(self) -> bool:
         return self._parse("output_query", self._query("output_query"), parse_bool)
@@ -158,6 +192,7 @@ class ScpiSmu:
         instrument refused, or an event such as an interlock trip, is caught at the next point.
         """
         if self._settle_s:
+            self._flush()  # the wait starts once the level has gone out
             self._sleep(self._settle_s)
         reply = self._query("measure")
         fields = flat_fields(reply)
@@ -212,8 +247,9 @@ class ScpiSmu:
         a refused switch would otherwise measure the wrong device."""
         if isinstance(channel, bool) or not isinstance(channel, numbers.Integral) or channel < 1:
             raise ValueError(f"channel must be an integer >= 1 (got {channel!r})")
-        self._write("select_channel", channel=int(channel))
-        self.check_errors()
+        with self.batch():
+            self._write("select_channel", channel=int(channel))
+            self.check_errors()
 
     def open_all_channels(self) -> None:
         """Disconnect every tray channel (nothing to do when the dialect has no switch matrix)."""
@@ -260,22 +296,23 @@ class ScpiSmu:
     def _run_list(self, levels: np.ndarray, nplc: float, settle_s: float) -> Sweep:
         values = ",".join(format_number(float(v)) for v in levels)
         binary = self.dialect.binary_format is not None
-        try:
-            self._write("list_voltage", values=values, count=int(levels.size))
-            if binary:
-                self._write("binary_format")
-            self._write("initiate")
-            run_s = levels.size * (settle_s + nplc / _SLOWEST_LINE_HZ + _LIST_MARGIN_S)
-            with self._patience(2 * run_s):
-                self.check_errors()  # answered once the run is over; a refused list stops here
-            data = self._fetch(binary)
-        finally:
-            for key in ("ascii_format", "fixed_mode"):
-                self._write_if_known(key)
+        with self.batch():  # the list, its start and the error check: one message
+            try:
+                self._write("list_voltage", values=values, count=int(levels.size))
+                if binary:
+                    self._write("binary_format")
+                self._write("initiate")
+                run_s = levels.size * (settle_s + nplc / _SLOWEST_LINE_HZ + _LIST_MARGIN_S)
+                with self._patience(2 * run_s):
+                    self.check_errors()  # answered once the run is over; a refused list stops
+                data = self._fetch(binary)
+            finally:
+                for key in ("ascii_format", "fixed_mode"):
+                    self._write_if_known(key)
         return self._split(data, levels.size)
 
     def _fetch(self, binary: bool) -> np.ndarray:
-        fetch = self.dialect.render("fetch")
+        fetch = self._with_pending(self.dialect.render("fetch"))
         if binary:
             big = bool(self.dialect.binary_big_endian)
             return self.transport.query_block(fetch, datatype="f", big_endian=big)
@@ -310,7 +347,39 @@ class ScpiSmu:
     def _write(self, key: str, **values: object) -> None:
         message = self.dialect.render(key, **values)
         self._recent.append(message)
-        self.transport.write(message)
+        if not self._batching:
+            self.transport.write(message)
+            return
+        limit = self.dialect.max_message_bytes or 0
+        if self._pending and len(_joined([*self._pending, message])) > limit:
+            self._flush()
+        self._pending.append(message)
+
+    def _flush(self) -> None:
+        """Send the held commands as one message."""
+        if self._pending:
+            message = _joined(self._pending)
+            self._pending.clear()
+            self.transport.write(message)
+
+    def _flush_quietly(self) -> None:
+        """`_flush` on a way out: a failure is logged, not raised over the error at hand."""
+        try:
+            self._flush()
+        except Exception as exc:
+            self._pending.clear()
+            log.warning("held commands not sent to %s: %s", self.resource, exc)
+
+    def _with_pending(self, query: str) -> str:
+        """`query` with the held commands in front, as one message (if it stays in the limit)."""
+        if not self._pending:
+            return query
+        if len(_joined([*self._pending, query])) > (self.dialect.max_message_bytes or 0):
+            self._flush()
+            return query
+        message = _joined([*self._pending, query])
+        self._pending.clear()
+        return message
 
     def _write_if_known(self, key: str) -> None:
         if getattr(self.dialect, key) is None:
@@ -319,7 +388,7 @@ class ScpiSmu:
         self._write(key)
 
     def _query(self, key: str) -> str:
-        return self.transport.query(self.dialect.render(key))
+        return self.transport.query(self._with_pending(self.dialect.render(key)))
 
     def _parse(self, key: str, text: str, parser: Callable[[str], T]) -> T:
         try:
@@ -348,6 +417,16 @@ class ScpiSmu:
         if self._limit_a is None or math.isnan(current_a):
             return False
         return abs(current_a) >= _LIMIT_FRACTION * self._limit_a
+
+
+def _joined(commands: list[str]) -> str:
+    """Commands as one compound message: each after the first starts again from the root
+    (";:"), unless it already does (":") or is a common command ("*"): IEEE 488.2 chapter 7,
+    SCPI-1999 volume 1 chapter 6."""
+    out = commands[0]
+    for command in commands[1:]:
+        out += ";" + (command if command.startswith((":", "*")) else ":" + command)
+    return out
 
 
 def _check_positive(**values: float) -> None:

@@ -20,6 +20,7 @@ settling (a list or a search after a list of the same step sends no new configur
 from __future__ import annotations
 
 from collections.abc import Callable
+from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -70,15 +71,19 @@ class SegmentRun:
 
     def run(self, index: int, seg: Segment) -> None:
         self.guard.check_level(0.0, seg.compliance_a)
-        self._configure(seg)
-        if seg.search is not None:
-            self._search(index, seg)
-        elif self._as_list(seg):
-            self._list(index, seg)
-        else:
-            for volts in seg.levels_v:
-                self.point(index, seg, volts)
-        self.smu.check_errors()
+        # Commands go out with the next query (the setup with its error check, each level with
+        # its reading, a list's restore with the step's error check): fewer exchanges, the same
+        # commands in the same order (instruments.smu.ScpiSmu.batch).
+        with batch(self.smu):
+            self._configure(seg)
+            if seg.search is not None:
+                self._search(index, seg)
+            elif self._as_list(seg):
+                self._list(index, seg)
+            else:
+                for volts in seg.levels_v:
+                    self.point(index, seg, volts)
+            self.smu.check_errors()
 
     def point(self, index: int, seg: Segment, volts: float) -> None:
         self.guard.check_level(volts, seg.compliance_a)
@@ -167,6 +172,12 @@ class SegmentRun:
             "clamped": np.asarray(r.in_compliance, bool),
             "spot": np.asarray([k == "spot" for k in kinds], bool),
         }
+
+
+def batch(smu: Smu) -> AbstractContextManager[object]:
+    """The instrument's `batch()` where it has one (a test double may not)."""
+    held = getattr(smu, "batch", None)
+    return held() if held is not None else nullcontext()
 
 
 def _spread(start: float, end: float, count: int) -> list[float]:

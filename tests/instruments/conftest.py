@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import socket
 import threading
 import time
@@ -40,7 +41,9 @@ class ScriptedInstrument:
 
 @pytest.fixture
 def dialect() -> Dialect:
-    return load_dialect("scpi1999")
+    """The default dialect with one command per message, so that a test can script each
+    command's text; test_compound_messages.py covers the joined messages."""
+    return dataclasses.replace(load_dialect("scpi1999"), max_message_bytes=None)
 
 
 @pytest.fixture

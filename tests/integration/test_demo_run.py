@@ -11,6 +11,8 @@ from pathlib import Path
 
 import pytest
 
+from instruments.scpi import message_units
+
 ROOT = Path(__file__).resolve().parents[2]
 
 
@@ -68,9 +70,12 @@ def test_store_holds_run_devices_and_raw_points(demo_run):
 def test_scpi_log_traces_every_exchange(demo_run):
     _, out = demo_run
     lines = (out / "scpi.log").read_text().splitlines()
-    sent = [ln.split("\t")[3] for ln in lines if ln.split("\t")[2] == ">>"]
+    messages = [ln.split("\t")[3] for ln in lines if ln.split("\t")[2] == ">>"]
+    sent = [unit for m in messages for unit in message_units(m)]  # command by command
     assert sent[0] == "*IDN?"
-    assert sent.count("READ?;:STAT:QUES:COND?;:SYST:ERR:COUN?") == 20 * 86
+    assert sent.count("READ?") == sent.count("STAT:QUES:COND?") == 20 * 86
+    # each level goes out with its reading: one exchange a point
+    assert sum(m.startswith("SOUR:VOLT ") and ";:READ?" in m for m in messages) == 20 * 86
     # the output is switched off after every device and the channel is chosen before it
     assert sent.count("OUTP OFF") >= 20
     assert "ROUT:CLOS (@20)" in sent

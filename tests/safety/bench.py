@@ -15,6 +15,7 @@ from typing import Any
 import yaml
 
 from instruments import Connection, ScpiSmu, load_dialect
+from instruments.scpi import message_units
 from instruments.transport import CallableTransport, open_visa
 from simulator import Session, SimOptions, build_instrument
 from simulator.instrument import Instrument
@@ -58,13 +59,14 @@ def write_bench(
 
 @dataclass
 class LoopBench:
-    """A simulated instrument reached in process; `sent` is every message the driver sent."""
+    """A simulated instrument reached in process; `sent` is every command the driver sent, in
+    order, compound messages split into their commands (instruments.scpi.message_units)."""
 
     instrument: Instrument
     sent: list[str] = field(default_factory=list)
 
     def handler(self, message: str) -> str | None:
-        self.sent.append(message)
+        self.sent.extend(message_units(message))
         return self.session.handle(message)
 
     def __post_init__(self) -> None:

@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from instruments.dialect import load_dialect
+from instruments.scpi import message_units
 from instruments.smu import ScpiSmu
 from instruments.transport import CallableTransport
 from sequencer.judge import Judgement, judge_curve
@@ -45,7 +46,7 @@ def lot_smu(
 
     def handle(message: str) -> str | None:
         if sent is not None:
-            sent.append(message)
+            sent.extend(message_units(message))  # command by command
         return session.handle(message)
 
     return inst, ScpiSmu(CallableTransport(handle, "sim-in-process"), load_dialect("scpi1999"))

@@ -17,6 +17,7 @@ from pathlib import Path
 import pytest
 from rich.console import Console
 
+from instruments.scpi import message_units
 from sequencer import database
 from sequencer.cli import main
 
@@ -44,8 +45,8 @@ def stored(folder: Path) -> tuple[list[str], list[str], list[str]]:
 
 def output_left_off(folder: Path) -> bool:
     """The last output command sent was OUTP OFF, and it came after the last reading."""
-    sent = [line.split("\t")[3] for line in (folder / "scpi.log").read_text().splitlines()
-            if line.split("\t")[2] == ">>"]  # fmt: skip
+    fields = [line.split("\t") for line in (folder / "scpi.log").read_text().splitlines()]
+    sent = [unit for f in fields if f[2] == ">>" for unit in message_units(f[3])]
     last_off = max(i for i, m in enumerate(sent) if m == "OUTP OFF")
     last_read = max(i for i, m in enumerate(sent) if m.startswith("READ?"))
     return last_off > last_read and "OUTP ON" not in sent[last_off:]
