@@ -10,7 +10,10 @@ Per device, on one instrument:
   here, pyvisa-py to the simulator on loopback). A point costs a level write and a reading
   query; a list a fixed handful whatever its length; every step its error check, and its
   configuration when it differs from the step before; every device its channel switch, the
-  output on, the ramp down and the output off (sequencer.runner);
+  output on, the ramp down and the output off (sequencer.runner). Where the dialect joins
+  commands into one message (`max_message_bytes`), a command goes out with the query after
+  it: a point is one query, a configuration one, a list two (its start with the error check,
+  the fetch), a device's channel switch one, and only the ramp and the output off are writes;
 - `DEVICE_S` on the computer: judging, the journal (fsync), SQLite, the CSV and the screen.
 Several instruments work at once, so a run lasts as long as its busiest instrument, but no
 less than the computer's own work for every device (the store is one writer).
@@ -21,6 +24,8 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+
+from instruments.scpi import format_number
 
 from .plan import Plan, Segment
 from .runner import ramp_levels
@@ -34,6 +39,10 @@ CONFIGURE = (6, 1)  # (writes, queries): mode, limit, aperture, settle, range, s
 LIST = (5, 2)  # list + count + fields, format, INIT, restore format, restore mode; SYST:ERR?, FETC?
 POINT = (1, 1)  # the level, the reading
 DEVICE = (2, 2)  # ROUT:CLOS and OUTP ON; the channel's SYST:ERR?, ... (+ the ramp and OUTP OFF)
+# The same with commands joined to the next query (instruments.smu.ScpiSmu.batch).
+JOINED = {"configure": (0, 1), "list": (0, 2), "point": (0, 1), "device": (0, 2)}
+LIST_HEADER_BYTES = 80  # the list command's text around its levels (dialects/scpi1999.yaml)
+SEPARATE = {"configure": CONFIGURE, "list": LIST, "point": POINT, "device": DEVICE}
 
 
 @dataclass(frozen=True)
@@ -77,23 +86,31 @@ def estimate(
     *,
     lists: bool = False,
     settles: bool = True,
+    joined: int | None = None,
 ) -> Estimate:
     """The run's duration. `lanes`: devices per instrument; `lists`, `settles`: whether the
-    dialect has source lists and a settling command."""
+    dialect has source lists and a settling command; `joined`: its `max_message_bytes` (None:
+    one command per message)."""
+    cost = JOINED if joined else SEPARATE
     instrument = writes = queries = 0.0
     configured = None
     for seg in plan.segments:
         points = seg.expected_points
         instrument += points * (seg.settle_s + plan.aperture_s)
         if (seg.compliance_a, seg.settle_s) != configured:
-            writes, queries = writes + CONFIGURE[0], queries + CONFIGURE[1]
+            writes, queries = writes + cost["configure"][0], queries + cost["configure"][1]
             configured = (seg.compliance_a, seg.settle_s)
         listed = as_list(seg, plan, guard, lists, settles)
-        each = LIST if listed else (POINT[0] * points, POINT[1] * points)
+        if listed and seg is plan.segments[0] and not joined:
+            writes += 1  # the list's first level, sent before the output goes on
+        point = cost["point"]
+        each = cost["list"] if listed else (point[0] * points, point[1] * points)
+        if listed and joined and _list_bytes(seg) > joined:
+            each = (each[0] + 2, each[1])  # a list too long to share: it and what came before
         writes, queries = writes + each[0], queries + each[1] + 1  # + the step's error check
     last = _last_level(plan)
-    writes += DEVICE[0] + len(ramp_levels(last)) + 1
-    queries += DEVICE[1] - 1
+    writes += cost["device"][0] + len(ramp_levels(last)) + 1
+    queries += cost["device"][1] - 1
     exchanges = timing.exchanges(writes, queries)
     if len(lanes) <= 1:  # one instrument: measuring and storing take turns
         seconds = sum(lanes) * (instrument + exchanges + timing.device_s)
@@ -101,6 +118,11 @@ def estimate(
         busiest = max(lanes) * (instrument + exchanges)
         seconds = max(busiest + timing.device_s, sum(lanes) * timing.device_s)
     return Estimate(instrument, exchanges, timing.device_s, seconds)
+
+
+def _list_bytes(seg: Segment) -> int:
+    """About how long a segment's source-list command is: its levels in NR3 and a header."""
+    return sum(len(format_number(v)) + 1 for v in seg.levels_v) + LIST_HEADER_BYTES
 
 
 def _last_level(plan: Plan) -> float:
@@ -131,7 +153,10 @@ def predict(recipe, plan: Plan, lanes: Sequence[int] | None = None) -> Estimate:
     query = first.query_time_s if first and first.query_time_s else QUERY_S
     timing = Timing(write, query)
     settles = dialect.set_settle is not None
-    return estimate(plan, guard, lanes, timing, lists=dialect.has_lists, settles=settles)
+    joined = dialect.max_message_bytes
+    return estimate(
+        plan, guard, lanes, timing, lists=dialect.has_lists, settles=settles, joined=joined
+    )
 
 
 def describe(e: Estimate) -> str:

@@ -67,7 +67,7 @@ def test_joined_messages_carry_the_same_commands_and_give_the_same_readings(whic
     np.testing.assert_array_equal(curve_joined.voltage_v, curve_separate.voltage_v)
     assert len(joined) < 0.6 * len(separate)  # the point of it: fewer exchanges
     # nothing joined beyond the limit, except a single command that is longer on its own
-    assert all(len(m) <= 1024 or len(message_units(m)) == 1 or "LIST:VOLT" in m for m in joined)
+    assert all(len(m) <= 4096 or len(message_units(m)) == 1 or "LIST:VOLT" in m for m in joined)
     # switching off is a message of its own
     assert "OUTP OFF" in joined
 
@@ -142,6 +142,6 @@ def test_without_a_settle_command_the_wait_starts_after_the_level_is_sent() -> N
 
 @pytest.mark.parametrize("bad", ["0", "-5", "true", "lots"])
 def test_a_bad_message_limit_in_a_dialect_file_is_one_clear_error(tmp_path, bad) -> None:
-    path = _write_variant(tmp_path, "max_message_bytes: 1024", f"max_message_bytes: {bad}")
+    path = _write_variant(tmp_path, "max_message_bytes: 4096", f"max_message_bytes: {bad}")
     with pytest.raises(DialectError, match="max_message_bytes"):
         load_dialect(path)

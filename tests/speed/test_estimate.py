@@ -78,3 +78,33 @@ def test_a_station_whose_dialect_cannot_be_read_is_refused_by_the_estimate(tmp_p
     recipe = load_recipe(ROOT / "recipes" / "demo.yaml", station_path=station)
     with pytest.raises(RecipeError, match=r"instrument.dialect is unusable: .*missing.yaml"):
         predict(recipe, make_plan(recipe))
+
+
+@pytest.mark.parametrize("lists", [False, True])
+@pytest.mark.parametrize("joined", [None, 4096, 400])
+def test_the_estimate_counts_the_messages_a_device_really_sends(lists, joined):
+    from instruments.dialect import load_dialect
+    from instruments.smu import ScpiSmu
+    from instruments.transport import CallableTransport
+
+    recipe = dataclasses.replace(recipes()[0], lists=lists)  # no search: a fixed count
+    _, base = lot_smu(recipe, 2)
+    writes, queries = [], []
+
+    class Counting(CallableTransport):
+        def write(self, message):
+            writes.append(message)
+            super().write(message)
+
+        def query(self, message):
+            queries.append(message)
+            return super().query(message)
+
+    dialect = dataclasses.replace(load_dialect("scpi1999"), max_message_bytes=joined)
+    smu = ScpiSmu(Counting(base.transport.handler, "counted"), dialect)
+    plan = make_plan(recipe)
+    measure_device(smu, plan, 1, make_guard(recipe, smu), Recorder())
+    # one write costs 1 s and one query 1000 s, so the total spells out both counts
+    limit = dialect.max_message_bytes
+    e = estimate(plan, _guard(recipe), [1], Timing(1.0, 1000.0), lists=lists, joined=limit)
+    assert divmod(round(e.exchanges_s), 1000) == (len(queries), len(writes))
