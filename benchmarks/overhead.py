@@ -15,6 +15,13 @@ the store add. The column before it keeps it in, for the reader who prefers the 
 The raw round trip is a 6-byte message and its echo through a plain Python socket to a plain
 Python echo server in another process, TCP_NODELAY on both sides: what one exchange costs with
 no VISA, no SCPI and no instrument at all. Target: at most 1.5x that per measured point.
+
+A device also has a fixed cost whatever its number of points: its exchanges (channel switch,
+configuration, error checks, the list's start and fetch, the output off), judging it, and
+storing it (journal fsynced, SQLite, CSV). So the script also measures the same sweep with
+four times the points: the difference between the two runs, divided by the extra points, is
+what one more point costs (the fixed cost drops out), and the rest is the device's fixed cost,
+printed beside the number of exchanges it makes and what they would take as raw round trips.
 """
 
 from __future__ import annotations
@@ -36,11 +43,12 @@ sys.path.insert(0, str(ROOT))
 from instruments import connect  # noqa: E402
 from sequencer.lotrun import make_guard, run_lot  # noqa: E402
 from sequencer.plan import make_plan  # noqa: E402
-from sequencer.recipe import load_recipe  # noqa: E402
+from sequencer.recipe import SweepStep, load_recipe  # noqa: E402
 from sequencer.shutdown import make_safe, start_safe  # noqa: E402
 from sequencer.store import RunStore  # noqa: E402
 
 TARGET = 1.5
+DENSER = 4  # the second run's sweeps: this many times the points
 ECHO = """
 import socket, sys
 s = socket.socket(); s.bind(("127.0.0.1", 0)); s.listen(1)
@@ -110,6 +118,32 @@ def one_run(recipe, devices: int, folder: Path) -> tuple[float, float, float, in
     return wall, busy, cpu, points
 
 
+def denser(recipe, factor: int):
+    """The recipe with its sweep steps `factor` times as dense (same span, same everything else)."""
+    steps = tuple(
+        dataclasses.replace(st, points=(st.points - 1) * factor + 1) if isinstance(st, SweepStep)
+        else st
+        for st in recipe.steps
+    )  # fmt: skip
+    return dataclasses.replace(recipe, steps=steps)
+
+
+def marginal(label: str, recipe, devices: int, rtt: float, tmp: Path) -> float:
+    """Print and return what one more point costs (overhead, simulator computing left out)."""
+    runs = []
+    for k, r in enumerate((recipe, denser(recipe, DENSER))):
+        wall, _, cpu, points = one_run(r, devices, tmp / f"{label.replace(' ', '-').replace(',', '')}-{k}")
+        runs.append((wall - cpu, points))
+    (over_a, points_a), (over_b, points_b) = runs
+    per_point = (over_b - over_a) / (points_b - points_a)
+    fixed = over_a / devices - per_point * points_a / devices
+    print(
+        f"{label:<28}{points_a // devices:>5} /{points_b // devices:>5}{1e6 * per_point:>12.0f} us"
+        f"{per_point / rtt:>7.2f}x{1e3 * fixed:>12.2f} ms"
+    )
+    return per_point / rtt
+
+
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--devices", type=int, default=40)
@@ -139,10 +173,21 @@ def main() -> int:
                 f"{1e6 * wall / points:>7.0f} us{1e6 * per_point:>10.0f} us"
                 f"{ratios[label]:>7.2f}x"
             )
+        print(
+            f"\none more point, and a device's fixed cost ({args.devices // 2} devices; each sweep "
+            f"{DENSER}x as dense the second time)"
+        )
+        print(f"{'run':<28}{'points/device':>13}{'a point':>11}{'x rtt':>8}{'a device':>14}")
+        extra = {}
+        for label, recipe in runs[:2]:
+            extra[label] = marginal(label, recipe, args.devices // 2, rtt, Path(tmp))
     print()
     for label, ratio in ratios.items():
         verdict = "met" if ratio <= TARGET else "NOT met"
         print(f"{label}: {ratio:.2f}x a raw round trip per point (target <= {TARGET}x: {verdict})")
+    for label, ratio in extra.items():
+        verdict = "met" if ratio <= TARGET else "NOT met"
+        print(f"{label}, one more point: {ratio:.2f}x a raw round trip (<= {TARGET}x: {verdict})")
     return 0
 
 
