@@ -132,7 +132,8 @@ def marginal(label: str, recipe, devices: int, rtt: float, tmp: Path) -> float:
     """Print and return what one more point costs (overhead, simulator computing left out)."""
     runs = []
     for k, r in enumerate((recipe, denser(recipe, DENSER))):
-        wall, _, cpu, points = one_run(r, devices, tmp / f"{label.replace(' ', '-').replace(',', '')}-{k}")
+        folder = tmp / f"{label.replace(' ', '-').replace(',', '')}-{k}"
+        wall, _, cpu, points = one_run(r, devices, folder)
         runs.append((wall - cpu, points))
     (over_a, points_a), (over_b, points_b) = runs
     per_point = (over_b - over_a) / (points_b - points_a)

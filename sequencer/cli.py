@@ -248,7 +248,20 @@ def _manifest(recipe: Recipe, args: argparse.Namespace, resource: str) -> dict[s
         "station_text": recipe.station.text,
         "resource": resource,
         "simulator": json.dumps(recipe.station.simulator_options) if resource == "sim" else None,
+        "hazardous_voltage": _acknowledgement(recipe, args),
     }
+
+
+def _acknowledgement(recipe: Recipe, args: argparse.Namespace) -> str | None:
+    """Who allowed levels above the touch-safe voltage, for the run record (None: no such
+    level is planned, or nobody needed to)."""
+    if not is_hazardous(make_plan(recipe), recipe.effective_limits):
+        return None
+    if recipe.hazardous_voltage_acknowledged:
+        return f"acknowledged in the recipe ({recipe.file})"
+    if getattr(args, "allow_hazardous_voltage", False):
+        return "acknowledged on the command line (--allow-hazardous-voltage)"
+    return None
 
 
 def _now() -> str:

@@ -176,3 +176,25 @@ def test_an_interlock_the_dialect_cannot_read_never_counts_as_closed(tmp_path, m
     assert code == 3
     assert "interlock cannot be read" in text
     assert bench.instrument.smu.max_applied_v() == 0.0
+
+
+@pytest.mark.parametrize("where", ["recipe", "command line", "nowhere needed"])
+def test_the_run_record_says_who_allowed_hazardous_levels(tmp_path, monkeypatch, where):
+    import json
+
+    steps = HAZARD["steps"] if where != "nowhere needed" else STEPS_NO_CLAMP[:1]
+    recipe = {"steps": steps}
+    args: tuple[str, ...] = ()
+    if where == "recipe":
+        recipe["hazardous_voltage"] = "acknowledged"
+    elif where == "command line":
+        args = ("--allow-hazardous-voltage",)
+    code, text, _ = run_loop(tmp_path, monkeypatch, loop_bench(), *args, recipe=recipe)
+    assert code == 0, text
+    recorded = json.loads((tmp_path / "run" / "manifest.json").read_text())["hazardous_voltage"]
+    expected = {
+        "recipe": f"acknowledged in the recipe ({tmp_path / 'recipe.yaml'})",
+        "command line": "acknowledged on the command line (--allow-hazardous-voltage)",
+        "nowhere needed": None,
+    }
+    assert recorded == expected[where]
