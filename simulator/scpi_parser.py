@@ -7,6 +7,10 @@ Header rules (SCPI-1999 Vol 1 ch 6, IEEE 488.2 ch 7):
 - `;` separates message units; a following header is relative to the node before the last
   mnemonic of the previous header, a leading `:` returns to the root, and common `*` commands
   neither use nor change that path.
+
+A driver sends the same few message texts again and again, so splitting, parsing and looking
+up are remembered per text (parsed units are immutable; texts longer than CACHED_TEXT_CHARS,
+e.g. long source lists, and texts that fail are worked out every time).
 """
 
 from __future__ import annotations
@@ -15,6 +19,7 @@ import itertools
 import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Any
 
 from simulator.errors import ScpiError
@@ -32,6 +37,8 @@ _MNEMONIC = re.compile(r"([A-Za-z][A-Za-z_]*?)(\d*)")
 _COMMON = re.compile(r"\*[A-Za-z]+")
 _UNIT = re.compile(r"\s*(\S*)\s*(.*)", re.DOTALL)
 _PATTERN_NODE = re.compile(r"\[:?([*A-Za-z]+):?\]|:?([*A-Za-z]+)")
+CACHED_TEXT_CHARS = 2048  # an 81-level source list is about 1,100 characters
+CACHED_TEXTS = 512  # per cache: at most about 1 MB of text each
 
 
 @dataclass(frozen=True)
@@ -68,12 +75,30 @@ class Unit:
 
 def split_units(message: str) -> list[str]:
     """The non-empty message units of one program message."""
-    return [unit for unit in split_outside(message, ";") if unit.strip()]
+    if len(message) > CACHED_TEXT_CHARS:
+        return list(_split_units(message))
+    return list(_split_units_cached(message))
+
+
+def _split_units(message: str) -> tuple[str, ...]:
+    return tuple(unit for unit in split_outside(message, ";") if unit.strip())
+
+
+_split_units_cached = lru_cache(maxsize=CACHED_TEXTS)(_split_units)
 
 
 def parse_unit(text: str) -> Unit:
+    if len(text) > CACHED_TEXT_CHARS:
+        return _parse_unit(text)
+    return _parse_unit_cached(text)
+
+
+def _parse_unit(text: str) -> Unit:
     head, rest = _UNIT.fullmatch(text).groups()
     return Unit(parse_header(head), parse_params(rest))
+
+
+_parse_unit_cached = lru_cache(maxsize=CACHED_TEXTS)(_parse_unit)
 
 
 def parse_header(text: str) -> Header:
@@ -101,6 +126,7 @@ class CommandTree:
 
     def __init__(self, commands: Iterable[Command]) -> None:
         self._lookup: dict[tuple[str, ...], Command] = {}
+        self._resolved: dict[tuple[Header, tuple], tuple[Command, tuple]] = {}
         for command in commands:
             for key in _spellings(command.pattern):
                 if key in self._lookup:
@@ -109,6 +135,17 @@ class CommandTree:
 
     def resolve(self, header: Header, prefix: tuple[tuple[str, int | None], ...]):
         """(command, full typed path) for a header, given the current path prefix."""
+        key = (header, prefix)
+        known = self._resolved.get(key)
+        if known is not None:
+            return known
+        found = self._resolve(header, prefix)
+        if len(self._resolved) >= CACHED_TEXTS:
+            self._resolved.clear()
+        self._resolved[key] = found
+        return found
+
+    def _resolve(self, header: Header, prefix: tuple[tuple[str, int | None], ...]):
         path = header.path if header.absolute else prefix + header.path
         command = self._lookup.get(tuple(name for name, _ in path))
         if command is None:
