@@ -16,6 +16,7 @@ Measurement model (documented here because a driver's tests depend on it):
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -111,15 +112,16 @@ class Smu:
         volts, amps, limited = truth if truth is not None else self.true_output(device, temp_k)
         if self.range_auto:
             self.range_a = range_for(amps)
-        scale = 1.0 / np.sqrt(self.nplc)
-        v_noise, i_noise = self.rng.normal(0.0, 1.0, 2) * scale
+        range_a = self.range_a
+        scale = 1.0 / math.sqrt(self.nplc)
+        v_noise, i_noise = (self.rng.normal(0.0, 1.0, 2) * scale).tolist()
         v = _round(volts + v_noise * VOLTAGE_NOISE_V, VOLTAGE_RESOLUTION_V)
-        i = amps + i_noise * CURRENT_NOISE_OF_RANGE * self.range_a
-        i = _round(i, CURRENT_RESOLUTION_OF_RANGE * self.range_a)
-        overflow = abs(i) > OVERRANGE * self.range_a
+        i = amps + i_noise * CURRENT_NOISE_OF_RANGE * range_a
+        i = _round(i, CURRENT_RESOLUTION_OF_RANGE * range_a)
+        overflow = abs(i) > OVERRANGE * range_a
         if overflow:
-            i = float(np.copysign(OVERFLOW_READING, i))
-        return Reading(v, i, limited, overflow, self.range_a)
+            i = math.copysign(OVERFLOW_READING, i)
+        return Reading(v, i, limited, overflow, range_a)
 
     def true_outputs(self, device: Device, levels: np.ndarray, temp_k: float) -> list[Truth]:
         """true_output at many levels in one vectorised solve (output on, same limit)."""
@@ -137,15 +139,16 @@ class Smu:
         if not self.output_on or device is None:
             return 0.0, 0.0, False
         volts = self.level_v
-        amps = float(device.current(volts, temp_k))
+        amps = device.point_current(volts, temp_k)
         if abs(amps) <= self.limit_a:
             return volts, amps, False
-        clamp = float(np.copysign(self.limit_a, amps))
-        return float(device.voltage_at(clamp, volts, temp_k)), clamp, True
+        clamp = math.copysign(self.limit_a, amps)
+        return device.point_voltage_at(clamp, volts, temp_k), clamp, True
 
 
 def _round(value: float, step: float) -> float:
-    return float(np.round(value / step) * step)
+    # round(x, 0) rounds half to even, exactly, as np.round does, without numpy's scalar cost
+    return round(value / step, 0) * step
 
 
 @contextmanager
