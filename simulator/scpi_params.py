@@ -169,12 +169,12 @@ class Numeric:
 
     def convert(self, params: tuple[Param, ...]) -> float:
         param = _one(params)
-        value = self.special(param)
-        if value is not None:
-            return value
-        if isinstance(param, Word):
-            raise ScpiError(-141, param.text)
-        if not isinstance(param, Number):
+        if not isinstance(param, Number):  # a number is never MIN, MAX or DEF
+            value = self.special(param)
+            if value is not None:
+                return value
+            if isinstance(param, Word):
+                raise ScpiError(-141, param.text)
             raise ScpiError(-104, "a number was expected")
         value = param.value * unit_scale(param.suffix, self.unit)
         value = float(round(value)) if self.integer else value
