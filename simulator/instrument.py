@@ -31,7 +31,7 @@ from simulator.devices import TNOM_K, Device, open_circuit, short_circuit
 from simulator.errors import ESR_OPC, ErrorQueue, ScpiError, esr_bit
 from simulator.faults import FaultSchedule, Firing
 from simulator.lot import Lot
-from simulator.smu_model import Reading, Smu, Truth, TruthArrays
+from simulator.smu_model import Reading, Smu, TruthArrays
 from simulator.thermal import Thermal
 from simulator.tray import Tray
 
@@ -258,7 +258,7 @@ class Instrument:
         device = self.device_at(closed)
         return self.smu.true_list(device, steps, self.junction_k())
 
-    def _acquire(self, truth: Truth | None = None) -> Reading:
+    def _acquire(self) -> Reading:
         closed = self.tray.closed
         for firing in self.faults.on_point(closed):
             try:
@@ -266,7 +266,7 @@ class Instrument:
             except ScpiError as error:  # on a point, an error is queued; the reading goes on
                 self.report(error)
         device = None if closed is None else self.device_at(closed)
-        reading = self.smu.measure(device, self.junction_k(), truth)
+        reading = self.smu.measure(device, self.junction_k())
         self.status.set_condition(QUES_CURRENT if reading.limited else 0)
         self._refresh_power()
         return reading

@@ -34,7 +34,7 @@ VOLTAGE_NOISE_V = 50e-6
 CURRENT_RESOLUTION_OF_RANGE = 1e-6
 VOLTAGE_RESOLUTION_V = 1e-5
 DEFAULT_LIMIT_A = 1e-3
-POINTWISE_LEVELS = 32  # lists up to this long are solved level by level (see true_outputs)
+POINTWISE_LEVELS = 32  # lists up to this long are solved level by level (see true_list)
 Truth = tuple[float, float, bool]  # noiseless volts, amps, current limit active
 TruthArrays = tuple[np.ndarray, np.ndarray, np.ndarray]  # the same for a list of levels
 
