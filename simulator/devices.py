@@ -14,19 +14,24 @@ as ngspice's diode and JFET (with XTI given) models do.
 
 Each device offers `current(v)`, `current_slope(v)` -> (I, dI/dV) and `voltage_at(i, v_bound)`:
 the voltage between 0 and v_bound at which it draws `i` (the SMU's compliance clamp needs it).
-All accept and return numpy arrays.
+All accept and return numpy arrays. `point_current`, `point_current_slope` and
+`point_voltage_at` are the same on one operating point in Python floats, for the SMU's
+readings one at a time: the same formulas in the same order and the same solver steps
+(solve.solve_point), so they agree with the array forms to rounding, at a small fraction of
+numpy's per-call cost on a 0-d array.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, field
 from typing import Protocol
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from simulator.errors import ModelError
-from simulator.solve import solve_increasing
+from simulator.solve import solve_increasing, solve_point
 
 BOLTZMANN = 1.380649e-23  # J/K, exact (SI 2019)
 ELEMENTARY_CHARGE = 1.602176634e-19  # C, exact (SI 2019)
@@ -36,6 +41,7 @@ OPEN_OHM = 1e12  # an open device still leaks a little, which keeps every model 
 SHORT_OHM = 0.5
 
 Pair = tuple[np.ndarray, np.ndarray]
+PointPair = tuple[float, float]
 
 
 def thermal_voltage(temp_k: float) -> float:
@@ -61,6 +67,13 @@ def junction(v: np.ndarray, is_a: float, n_vt: float) -> Pair:
     return is_a * (e * (1.0 + np.maximum(x - EXP_LIMIT, 0.0)) - 1.0), is_a * e / n_vt
 
 
+def junction_point(v: float, is_a: float, n_vt: float) -> PointPair:
+    """`junction` on one voltage."""
+    x = v / n_vt
+    e = math.exp(min(max(x, -EXP_LIMIT), EXP_LIMIT))
+    return is_a * (e * (1.0 + max(x - EXP_LIMIT, 0.0)) - 1.0), is_a * e / n_vt
+
+
 class Device(Protocol):
     def current_slope(self, v: ArrayLike, temp_k: float = TNOM_K) -> Pair: ...
 
@@ -70,14 +83,27 @@ class Device(Protocol):
         self, i: ArrayLike, v_bound: ArrayLike, temp_k: float = TNOM_K
     ) -> np.ndarray: ...
 
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair: ...
+
+    def point_current(self, v: float, temp_k: float = TNOM_K) -> float: ...
+
+    def point_voltage_at(self, i: float, v_bound: float, temp_k: float = TNOM_K) -> float: ...
+
 
 def _bracket(v_bound: ArrayLike, shape: tuple[int, ...]) -> Pair:
     vb = np.broadcast_to(np.asarray(v_bound, dtype=float), shape)
     return np.minimum(vb, 0.0), np.maximum(vb, 0.0)
 
 
+def _clip_point(v: float, v_bound: float) -> float:
+    return min(max(v, min(v_bound, 0.0)), max(v_bound, 0.0))
+
+
 class _Base:
-    """Shared derived operations: current from current_slope, voltage_at by a bracketed solve."""
+    """Shared derived operations: current from current_slope, voltage_at by a bracketed solve.
+
+    The point forms fall back on the array forms, so a model without its own point path is
+    still right, only slower."""
 
     def current_slope(self, v: ArrayLike, temp_k: float = TNOM_K) -> Pair:
         raise NotImplementedError
@@ -99,6 +125,27 @@ class _Base:
     def _voltage_guess(self, i: np.ndarray, temp_k: float) -> np.ndarray | None:
         return None  # start from the middle of the bracket
 
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair:
+        current, slope = self.current_slope(v, temp_k)
+        return float(current), float(slope)
+
+    def point_current(self, v: float, temp_k: float = TNOM_K) -> float:
+        return self.point_current_slope(v, temp_k)[0]
+
+    def point_voltage_at(self, i: float, v_bound: float, temp_k: float = TNOM_K) -> float:
+        """`voltage_at` on one current: the same solve, step for step."""
+
+        def excess(v: float) -> PointPair:
+            current, slope = self.point_current_slope(v, temp_k)
+            return current - i, slope
+
+        guess = self._point_voltage_guess(i, temp_k)
+        return solve_point(excess, min(v_bound, 0.0), max(v_bound, 0.0), guess, xtol=1e-12)
+
+    def _point_voltage_guess(self, i: float, temp_k: float) -> float | None:
+        guess = self._voltage_guess(np.asarray(i, dtype=float), temp_k)
+        return None if guess is None else float(guess)
+
 
 @dataclass(frozen=True)
 class Resistor(_Base):
@@ -112,6 +159,12 @@ class Resistor(_Base):
         v = np.asarray(i, dtype=float) * self.ohms
         lo, hi = _bracket(v_bound, np.broadcast_shapes(v.shape, np.shape(v_bound)))
         return np.clip(v, lo, hi)
+
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair:
+        return v / self.ohms, 1.0 / self.ohms
+
+    def point_voltage_at(self, i: float, v_bound: float, temp_k: float = TNOM_K) -> float:
+        return _clip_point(i * self.ohms, v_bound)
 
 
 @dataclass(frozen=True)
@@ -136,6 +189,14 @@ class Diode(_Base):
         log = np.log(np.where(ratio > 0, ratio, 1.0))
         v = np.where(ratio > 0, self.n * thermal_voltage(temp_k) * log, -np.inf)
         return np.clip(v, lo, hi)
+
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair:
+        return junction_point(v, self.is_at(temp_k), self.n * thermal_voltage(temp_k))
+
+    def point_voltage_at(self, i: float, v_bound: float, temp_k: float = TNOM_K) -> float:
+        ratio = i / self.is_at(temp_k) + 1.0
+        v = self.n * thermal_voltage(temp_k) * math.log(ratio) if ratio > 0 else -math.inf
+        return _clip_point(v, v_bound)
 
 
 @dataclass(frozen=True)
@@ -174,6 +235,26 @@ class JfetParams:
         return saturation_current(self.is_a, temp_k, self.tnom_k, self.eg_ev, self.xti)
 
 
+@dataclass(frozen=True)
+class JfetAt:
+    """A JFET's constants at one temperature, worked out once rather than at every solve step."""
+
+    vto: float
+    beta: float
+    lam: float
+    rs: float
+    is_t: float  # gate-junction saturation current IS(T)
+    vt: float  # kT/q
+    i_sat: float  # self_bias_current: where the source-node solve starts
+
+    @classmethod
+    def of(cls, p: JfetParams, temp_k: float) -> JfetAt:
+        vto, beta = p.at(temp_k)
+        i_sat = float(self_bias_current(p, temp_k))
+        vt = thermal_voltage(temp_k)
+        return cls(vto, beta, p.lambda_per_v, p.rs_ohm, p.is_at(temp_k), vt, i_sat)
+
+
 def channel(vgs: np.ndarray, vgd: np.ndarray, p: JfetParams, temp_k: float):
     """Level-1 drain-to-source channel current and its partials d/dVGS, d/dVGD.
 
@@ -181,22 +262,62 @@ def channel(vgs: np.ndarray, vgd: np.ndarray, p: JfetParams, temp_k: float):
     F(overdrive, |VDS|) is the same square law either way.
     """
     vto, beta = p.at(temp_k)
-    lam = p.lambda_per_v
+    return _channel(vgs, vgd, vto, beta, p.lambda_per_v)
+
+
+def _channel(vgs: np.ndarray, vgd: np.ndarray, vto: float, beta: float, lam: float):
+    # Each branch is computed only where some element takes it: the same values as selecting
+    # among all of them, for a fraction of the array operations when (as in a sweep) every
+    # element is in one region.
     vds = vgs - vgd
     normal = vds >= 0
+    all_normal = bool(normal.all())
     ov = np.where(normal, vgs, vgd) - vto
     x = np.abs(vds)
     gain = beta * (1.0 + lam * x)
     sat = x >= ov
-    f = np.where(sat, gain * ov * ov, gain * x * (2.0 * ov - x))
-    f_ov = np.where(sat, 2.0 * gain * ov, 2.0 * gain * x)
-    f_x = np.where(sat, beta * lam * ov * ov, beta * lam * x * (2 * ov - x) + 2 * gain * (ov - x))
+    if sat.all():
+        f, f_ov, f_x = gain * ov * ov, 2.0 * gain * ov, beta * lam * ov * ov
+    elif not sat.any():
+        f, f_ov = gain * x * (2.0 * ov - x), 2.0 * gain * x
+        f_x = beta * lam * x * (2 * ov - x) + 2 * gain * (ov - x)
+    else:
+        f = np.where(sat, gain * ov * ov, gain * x * (2.0 * ov - x))
+        f_ov = np.where(sat, 2.0 * gain * ov, 2.0 * gain * x)
+        f_x = np.where(
+            sat, beta * lam * ov * ov, beta * lam * x * (2 * ov - x) + 2 * gain * (ov - x)
+        )
     on = ov > 0
-    f, f_ov, f_x = np.where(on, f, 0.0), np.where(on, f_ov, 0.0), np.where(on, f_x, 0.0)
+    if not on.all():
+        f, f_ov, f_x = np.where(on, f, 0.0), np.where(on, f_ov, 0.0), np.where(on, f_x, 0.0)
+    if all_normal:
+        return f, f_ov + f_x, -f_x
     current = np.where(normal, f, -f)
     d_vgs = np.where(normal, f_ov + f_x, f_x)
     d_vgd = np.where(normal, -f_x, -(f_ov + f_x))
     return current, d_vgs, d_vgd
+
+
+def channel_point(
+    vgs: float, vgd: float, vto: float, beta: float, lam: float
+) -> tuple[float, float, float]:
+    """`channel` on one operating point, given the constants at its temperature."""
+    vds = vgs - vgd
+    normal = vds >= 0
+    ov = (vgs if normal else vgd) - vto
+    if ov > 0:
+        x = abs(vds)
+        gain = beta * (1.0 + lam * x)
+        if x >= ov:
+            f, f_ov, f_x = gain * ov * ov, 2.0 * gain * ov, beta * lam * ov * ov
+        else:
+            f, f_ov = gain * x * (2.0 * ov - x), 2.0 * gain * x
+            f_x = beta * lam * x * (2 * ov - x) + 2 * gain * (ov - x)
+    else:
+        f = f_ov = f_x = 0.0
+    if normal:
+        return f, f_ov + f_x, -f_x
+    return -f, f_x, -(f_ov + f_x)
 
 
 @dataclass(frozen=True)
@@ -204,48 +325,137 @@ class JfetRegulator(_Base):
     """A JFET with gate to cathode and source through RS to cathode: a two-terminal regulator."""
 
     params: JfetParams
+    _at: dict[float, JfetAt] = field(
+        default_factory=dict, init=False, repr=False, compare=False, hash=False
+    )
+
+    def constants(self, temp_k: float) -> JfetAt:
+        """The parameters at `temp_k` (kept for the few temperatures a run uses)."""
+        known = self._at.get(temp_k)
+        if known is None:
+            if len(self._at) >= 16:  # self-heating moves the temperature at every reading
+                self._at.clear()
+            known = self._at[temp_k] = JfetAt.of(self.params, temp_k)
+        return known
 
     def current_slope(self, v: ArrayLike, temp_k: float = TNOM_K) -> Pair:
         v = np.asarray(v, dtype=float)
-        p = self.params
-        vs = self.source_voltage(v, temp_k)
-        i_ch, d_vgs, d_vgd = channel(-vs, -v, p, temp_k)
-        is_t = p.is_at(temp_k)
-        i_gd, g_gd = junction(-v, is_t, thermal_voltage(temp_k))
-        if p.rs_ohm == 0:
+        k = self.constants(temp_k)
+        vs = self._source_voltage(v, k)
+        i_ch, d_vgs, d_vgd = _channel(-vs, -v, k.vto, k.beta, k.lam)
+        i_gd, g_gd = junction(-v, k.is_t, k.vt)
+        if k.rs == 0:
             return i_ch - i_gd, g_gd - d_vgd
-        g_gs = junction(-vs, is_t, thermal_voltage(temp_k))[1]
-        loop = 1.0 / p.rs_ohm + d_vgs + g_gs  # d(KCL residual)/d(vs), always > 0
+        g_gs = junction(-vs, k.is_t, k.vt)[1]
+        loop = 1.0 / k.rs + d_vgs + g_gs  # d(KCL residual)/d(vs), always > 0
         # the source node follows V: dvs/dV = -d_vgd / loop (implicit differentiation)
+        return i_ch - i_gd, g_gd - d_vgd * (1.0 - d_vgs / loop)
+
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair:
+        k = self.constants(temp_k)
+        vs = self._point_source_voltage(v, k) if k.rs != 0 else 0.0
+        i_ch, d_vgs, d_vgd = channel_point(-vs, -v, k.vto, k.beta, k.lam)
+        i_gd, g_gd = junction_point(-v, k.is_t, k.vt)
+        if k.rs == 0:
+            return i_ch - i_gd, g_gd - d_vgd
+        g_gs = junction_point(-vs, k.is_t, k.vt)[1]
+        loop = 1.0 / k.rs + d_vgs + g_gs
         return i_ch - i_gd, g_gd - d_vgd * (1.0 - d_vgs / loop)
 
     def source_voltage(self, v: np.ndarray, temp_k: float = TNOM_K) -> np.ndarray:
         """Voltage of the internal source node: the one unknown of the self-bias loop."""
-        p = self.params
-        if p.rs_ohm == 0:
+        return self._source_voltage(v, self.constants(temp_k))
+
+    def _source_voltage(self, v: np.ndarray, k: JfetAt) -> np.ndarray:
+        if k.rs == 0:
             return np.zeros_like(v)
-        n_vt, is_t = thermal_voltage(temp_k), p.is_at(temp_k)
+        vgd = -v
 
         def excess_into_rs(vs: np.ndarray) -> Pair:
             # current through RS minus what the channel and the gate-source junction deliver to
             # the source node: increasing in vs, zero where Kirchhoff's current law holds
-            i_ch, d_vgs, _ = channel(-vs, -v, p, temp_k)
-            i_gs, g_gs = junction(-vs, is_t, n_vt)
-            return vs / p.rs_ohm - i_ch - i_gs, 1.0 / p.rs_ohm + d_vgs + g_gs
+            i_ch, d_vgs, _ = _channel(-vs, vgd, k.vto, k.beta, k.lam)
+            i_gs, g_gs = junction(-vs, k.is_t, k.vt)
+            return vs / k.rs - i_ch - i_gs, 1.0 / k.rs + d_vgs + g_gs
 
-        guess = self_bias_current(p, temp_k) * p.rs_ohm
+        guess = _source_guess(v, k)
         return solve_increasing(excess_into_rs, np.minimum(v, 0.0), np.maximum(v, 0.0), guess)
+
+    def _point_source_voltage(self, v: float, k: JfetAt) -> float:
+        vgd, vto, beta, lam, rs, is_t, vt = -v, k.vto, k.beta, k.lam, k.rs, k.is_t, k.vt
+
+        def excess_into_rs(vs: float) -> PointPair:
+            i_ch, d_vgs, _ = channel_point(-vs, vgd, vto, beta, lam)
+            i_gs, g_gs = junction_point(-vs, is_t, vt)
+            return vs / rs - i_ch - i_gs, 1.0 / rs + d_vgs + g_gs
+
+        return solve_point(excess_into_rs, min(v, 0.0), max(v, 0.0), _point_source_guess(v, k))
 
     def _voltage_guess(self, i: np.ndarray, temp_k: float) -> np.ndarray:
         # forward: the lambda = 0 limiting-voltage closed form (REFERENCES.md s2); reverse: the
         # gate-drain junction alone. Either is close, so the solve needs only a few steps.
-        p = self.params
-        vto, beta = p.at(temp_k)
-        i_fwd = np.clip(i, 0.0, 0.999 * self_bias_current(p, temp_k))
-        g = -vto - i_fwd * p.rs_ohm
-        v_fwd = i_fwd * p.rs_ohm + g - np.sqrt(np.maximum(g * g - i_fwd / beta, 0.0))
-        v_rev = -thermal_voltage(temp_k) * np.log1p(np.maximum(-i, 0.0) / p.is_at(temp_k))
+        k = self.constants(temp_k)
+        i_fwd = np.clip(i, 0.0, 0.999 * k.i_sat)
+        g = -k.vto - i_fwd * k.rs
+        v_fwd = i_fwd * k.rs + g - np.sqrt(np.maximum(g * g - i_fwd / k.beta, 0.0))
+        v_rev = -k.vt * np.log1p(np.maximum(-i, 0.0) / k.is_t)
         return np.where(i >= 0, v_fwd, v_rev)
+
+    def _point_voltage_guess(self, i: float, temp_k: float) -> float:
+        k = self.constants(temp_k)
+        if i < 0:
+            return -k.vt * math.log1p(-i / k.is_t)
+        i_fwd = min(i, 0.999 * k.i_sat)
+        g = -k.vto - i_fwd * k.rs
+        return i_fwd * k.rs + g - math.sqrt(max(g * g - i_fwd / k.beta, 0.0))
+
+
+GUESS_PASSES = 2  # each pass cuts the guess's error about 300-fold (lambda 0.01 at 40 V)
+
+
+def _point_source_guess(v: float, k: JfetAt) -> float:
+    """Where the source-node solve starts: close enough that Newton's first step lands within
+    about 1e-12 V, so the solve takes two steps instead of four or five.
+
+    Forward (v > 0), without the gate junctions, KCL at the source node is a quadratic in vs
+    once the channel-length factor 1 + lambda VDS is held fixed: with a = |VTO|, m = min(v, a)
+    (the drain end pinches off at v = a) and b = BETA (1 + lambda (v - vs)),
+        b vs^2 - (2 a b + 1/RS) vs + b m (2a - m) = 0,
+    the linear-region law below a and the square law above it (at lambda = 0 and v >= a its
+    smaller root is self_bias_current x RS, REFERENCES.md s2). Solving it, then again with
+    lambda's factor at the new vs, leaves about 1e-6 of vs; the solver's own steps do the
+    rest, so its answer does not depend on this guess beyond rounding. Reverse: as before.
+    """
+    plain = k.i_sat * k.rs
+    if not v > 0:
+        return plain
+    a = -k.vto
+    m = min(v, a)
+    vs = min(plain, v)
+    for _ in range(GUESS_PASSES):
+        b = k.beta * (1.0 + k.lam * (v - vs))
+        big = 2.0 * a * b + 1.0 / k.rs
+        c = b * m * (2.0 * a - m)
+        vs = 2.0 * c / (big + math.sqrt(big * big - 4.0 * b * c))
+    return vs
+
+
+def _source_guess(v: np.ndarray, k: JfetAt) -> np.ndarray | float:
+    """`_point_source_guess` elementwise."""
+    plain = k.i_sat * k.rs
+    forward = v > 0
+    if not forward.any():
+        return plain
+    a = -k.vto
+    vf = np.maximum(v, 0.0)  # reverse elements are worked as 0 V, then replaced
+    m = np.minimum(vf, a)
+    vs = np.minimum(plain, vf)
+    for _ in range(GUESS_PASSES):
+        b = k.beta * (1.0 + k.lam * (vf - vs))
+        big = 2.0 * a * b + 1.0 / k.rs
+        c = b * m * (2.0 * a - m)
+        vs = 2.0 * c / (big + np.sqrt(big * big - 4.0 * b * c))
+    return np.where(forward, vs, plain)
 
 
 def self_bias_current(p: JfetParams, temp_k: float = TNOM_K) -> float:
@@ -280,10 +490,30 @@ class Series(_Base):
         total = g1 + g2
         return i2, np.where(total > 0, g1 * g2 / np.where(total > 0, total, 1.0), 0.0)
 
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair:
+        first, second = self.first, self.second
+
+        def imbalance(v2: float) -> PointPair:
+            i2, g2 = second.point_current_slope(v2, temp_k)
+            i1, g1 = first.point_current_slope(v - v2, temp_k)
+            return i2 - i1, g2 + g1
+
+        guess = v - first.point_voltage_at(second.point_current(v, temp_k), v, temp_k)
+        v2 = solve_point(imbalance, min(v, 0.0), max(v, 0.0), guess)
+        i2, g2 = second.point_current_slope(v2, temp_k)
+        g1 = first.point_current_slope(v - v2, temp_k)[1]
+        total = g1 + g2
+        return i2, (g1 * g2 / total if total > 0 else 0.0)
+
     def voltage_at(self, i: ArrayLike, v_bound: ArrayLike, temp_k: float = TNOM_K) -> np.ndarray:
         v = self.first.voltage_at(i, v_bound, temp_k) + self.second.voltage_at(i, v_bound, temp_k)
         lo, hi = _bracket(v_bound, v.shape)
         return np.clip(v, lo, hi)
+
+    def point_voltage_at(self, i: float, v_bound: float, temp_k: float = TNOM_K) -> float:
+        first, second = self.first, self.second
+        v = first.point_voltage_at(i, v_bound, temp_k) + second.point_voltage_at(i, v_bound, temp_k)
+        return _clip_point(v, v_bound)
 
 
 @dataclass(frozen=True)
@@ -296,6 +526,11 @@ class Parallel(_Base):
     def current_slope(self, v: ArrayLike, temp_k: float = TNOM_K) -> Pair:
         i1, g1 = self.first.current_slope(v, temp_k)
         i2, g2 = self.second.current_slope(v, temp_k)
+        return i1 + i2, g1 + g2
+
+    def point_current_slope(self, v: float, temp_k: float = TNOM_K) -> PointPair:
+        i1, g1 = self.first.point_current_slope(v, temp_k)
+        i2, g2 = self.second.point_current_slope(v, temp_k)
         return i1 + i2, g1 + g2
 
 

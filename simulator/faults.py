@@ -287,6 +287,8 @@ class FaultSchedule:
 
     def on_unit(self, command: Command, query: bool, channel: int | None, header: str):
         """Faults that fire on this message unit, in arming order."""
+        if not self._armed:
+            return []
         if command.pattern.upper().startswith("SIMULATION"):
             return []
         due = [a for a in self._armed if not a.spec.on_point and _targets(a, command, query)]

@@ -31,7 +31,7 @@ from simulator.devices import TNOM_K, Device, open_circuit, short_circuit
 from simulator.errors import ESR_OPC, ErrorQueue, ScpiError, esr_bit
 from simulator.faults import FaultSchedule, Firing
 from simulator.lot import Lot
-from simulator.smu_model import Reading, Smu, Truth
+from simulator.smu_model import Reading, Smu, TruthArrays
 from simulator.thermal import Thermal
 from simulator.tray import Tray
 
@@ -217,12 +217,18 @@ class Instrument:
         if smu.mode == "LIST" and hazardous and not self.lid_closed:
             raise ScpiError(-221, "interlock open")
         steps = [levels[k % len(levels)] for k in range(smu.trigger_count)]
-        truths = self._solved_ahead(steps) if smu.mode == "LIST" else None
+        solved = self._solved_ahead(steps) if smu.mode == "LIST" else None
+        if solved is not None:
+            readings = smu.measure_list(steps, solved)
+            for reading in readings:
+                self.status.set_condition(QUES_CURRENT if reading.limited else 0)
+            self.buffer = readings
+            return readings
         readings = []  # collected apart: a fault mid-list must not lose the points before it
-        for k, volts in enumerate(steps):
+        for volts in steps:
             if smu.mode == "LIST":
                 self._step_to(volts)
-            readings.append(self._acquire(truths[k] if truths else None))
+            readings.append(self._acquire())
         self.buffer = readings
         return readings
 
@@ -240,18 +246,19 @@ class Instrument:
         self.smu.set_level(volts)
         self._refresh_power()
 
-    def _solved_ahead(self, steps: list[float]) -> list[Truth] | None:
-        """The whole list in one vectorised solve, when nothing can change during the run
-        (no self-heating, no fault waiting for a point); else None: point by point."""
+    def _solved_ahead(self, steps: list[float]) -> TruthArrays | None:
+        """The whole list solved at once, when nothing can change during the run (no
+        self-heating, no fault waiting for a point, and so no power or lid to follow from
+        point to point); else None: point by point."""
         closed = self.tray.closed
         if closed is None or not self.smu.output_on or self.thermal.heating:
             return None
         if self.faults.waits_for_points:
             return None
         device = self.device_at(closed)
-        return self.smu.true_outputs(device, np.array(steps), self.junction_k())
+        return self.smu.true_list(device, steps, self.junction_k())
 
-    def _acquire(self, truth: Truth | None = None) -> Reading:
+    def _acquire(self) -> Reading:
         closed = self.tray.closed
         for firing in self.faults.on_point(closed):
             try:
@@ -259,7 +266,7 @@ class Instrument:
             except ScpiError as error:  # on a point, an error is queued; the reading goes on
                 self.report(error)
         device = None if closed is None else self.device_at(closed)
-        reading = self.smu.measure(device, self.junction_k(), truth)
+        reading = self.smu.measure(device, self.junction_k())
         self.status.set_condition(QUES_CURRENT if reading.limited else 0)
         self._refresh_power()
         return reading

@@ -7,6 +7,11 @@ Header rules (SCPI-1999 Vol 1 ch 6, IEEE 488.2 ch 7):
 - `;` separates message units; a following header is relative to the node before the last
   mnemonic of the previous header, a leading `:` returns to the root, and common `*` commands
   neither use nor change that path.
+
+A driver sends the same few message texts again and again, so a message's units are parsed
+and looked up once per text (`prepare`) and a command's converted parameters kept after their
+first use (`Prepared`): parsing and conversion depend on the text alone. Texts longer than
+CACHED_TEXT_CHARS (long source lists) and texts that fail to split are worked out every time.
 """
 
 from __future__ import annotations
@@ -15,6 +20,7 @@ import itertools
 import re
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Any
 
 from simulator.errors import ScpiError
@@ -32,6 +38,8 @@ _MNEMONIC = re.compile(r"([A-Za-z][A-Za-z_]*?)(\d*)")
 _COMMON = re.compile(r"\*[A-Za-z]+")
 _UNIT = re.compile(r"\s*(\S*)\s*(.*)", re.DOTALL)
 _PATTERN_NODE = re.compile(r"\[:?([*A-Za-z]+):?\]|:?([*A-Za-z]+)")
+CACHED_TEXT_CHARS = 2048  # an 81-level source list is about 1,100 characters
+CACHED_TEXTS = 512  # per cache: at most about 1 MB of text each
 
 
 @dataclass(frozen=True)
@@ -72,8 +80,17 @@ def split_units(message: str) -> list[str]:
 
 
 def parse_unit(text: str) -> Unit:
+    if len(text) > CACHED_TEXT_CHARS:
+        return _parse_unit(text)
+    return _parse_unit_cached(text)
+
+
+def _parse_unit(text: str) -> Unit:
     head, rest = _UNIT.fullmatch(text).groups()
     return Unit(parse_header(head), parse_params(rest))
+
+
+_parse_unit_cached = lru_cache(maxsize=CACHED_TEXTS)(_parse_unit)
 
 
 def parse_header(text: str) -> Header:
@@ -132,19 +149,76 @@ def _spellings(pattern: str) -> Iterable[tuple[str, ...]]:
             yield key
 
 
+_UNCONVERTED = object()
+
+
+class Prepared:
+    """One message unit, parsed and resolved, ready to run; the command form's converted
+    parameters are kept once they converted (a failed conversion is tried again next time)."""
+
+    __slots__ = ("_value", "command", "unit")
+
+    def __init__(self, unit: Unit, command: Command) -> None:
+        self.unit = unit
+        self.command = command
+        self._value: Any = _UNCONVERTED
+
+    def run(self, instrument: Any) -> str | None:
+        """Execute the unit; the reply text for a query, None for a command."""
+        unit, command = self.unit, self.command
+        if unit.header.query:
+            return _run_query(command, unit, instrument)
+        if command.set is None:
+            raise ScpiError(-113, f"{unit.header.text} has only a query form")
+        if command.spec is None:
+            if unit.params:
+                raise ScpiError(-108, unit.header.text)
+            command.set(instrument)
+            return None
+        value = self._value
+        if value is _UNCONVERTED:
+            value = self._value = command.spec.convert(unit.params)
+        command.set(instrument, value)
+        return None
+
+
 def run_unit(command: Command, unit: Unit, instrument: Any) -> str | None:
     """Execute one message unit; the reply text for a query, None for a command."""
-    if unit.header.query:
-        return _run_query(command, unit, instrument)
-    if command.set is None:
-        raise ScpiError(-113, f"{unit.header.text} has only a query form")
-    if command.spec is None:
-        if unit.params:
-            raise ScpiError(-108, unit.header.text)
-        command.set(instrument)
-    else:
-        command.set(instrument, command.spec.convert(unit.params))
-    return None
+    return Prepared(unit, command).run(instrument)
+
+
+def is_command_error(error: ScpiError) -> bool:
+    """-1xx: the rest of the program message is discarded (IEEE 488.2)."""
+    return -199 <= error.code <= -100
+
+
+def prepare(message: str, tree: CommandTree) -> tuple[Prepared | ScpiError, ...]:
+    """A program message's units, parsed and resolved in order; a unit that fails is its
+    ScpiError, and after a command error nothing more is parsed, as nothing more would run.
+    ScpiError (-151) if the message cannot be split into units."""
+    if len(message) > CACHED_TEXT_CHARS:
+        return _prepare(message, tree)
+    return _prepare_cached(message, tree)
+
+
+def _prepare(message: str, tree: CommandTree) -> tuple[Prepared | ScpiError, ...]:
+    steps: list[Prepared | ScpiError] = []
+    prefix: tuple[tuple[str, int | None], ...] = ()
+    for text in split_units(message):
+        try:
+            unit = parse_unit(text)
+            command, path = tree.resolve(unit.header, prefix)
+        except ScpiError as error:
+            steps.append(error.with_traceback(None))  # kept: hold no frames
+            if is_command_error(error):
+                break
+            continue
+        prefix = prefix if unit.header.common else path[:-1]
+        steps.append(Prepared(unit, command))
+    return tuple(steps)
+
+
+_prepare_cached = lru_cache(maxsize=CACHED_TEXTS)(_prepare)
 
 
 def _run_query(command: Command, unit: Unit, instrument: Any) -> str:

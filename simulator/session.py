@@ -9,7 +9,7 @@ from simulator.commands import COMMAND_COST_S, COMMANDS
 from simulator.errors import ScpiError
 from simulator.faults import Firing
 from simulator.instrument import Instrument
-from simulator.scpi_parser import Command, CommandTree, Unit, parse_unit, run_unit, split_units
+from simulator.scpi_parser import Command, CommandTree, Unit, is_command_error, prepare
 
 
 @cache
@@ -70,27 +70,30 @@ class Session:
     def _run(self, message: str) -> Response:
         replies: list[str] = []
         wire: Firing | None = None
+        inst = self.instrument
         try:
-            units = split_units(message.rstrip("\r"))
+            steps = prepare(message.rstrip("\r"), self.tree)
         except ScpiError as error:
-            self.instrument.report(error)
+            inst.report(error)
             return Response(None)
-        prefix: tuple[tuple[str, int | None], ...] = ()
-        for text in units:
-            self.instrument.clock.spend(COMMAND_COST_S)
+        for step in steps:
+            inst.clock.spend(COMMAND_COST_S)
+            if isinstance(step, ScpiError):  # the unit did not parse or names no command
+                inst.report(step)
+                if is_command_error(step):
+                    break
+                continue
             try:
-                unit = parse_unit(text)
-                command, path = self.tree.resolve(unit.header, prefix)
-                prefix = prefix if unit.header.common else path[:-1]
-                firings = self._firings(command, unit)
-                wire = wire or next((f for f in firings if f.on_wire), None)
-                if wire is not None and wire.kind == "close":
-                    return Response(None, wire)  # the connection drops before anything runs
-                self._apply(firings)  # an injected `error` raises here: the unit is not run
-                reply = run_unit(command, unit, self.instrument)
+                firings = self._firings(step.command, step.unit)
+                if firings:
+                    wire = wire or next((f for f in firings if f.on_wire), None)
+                    if wire is not None and wire.kind == "close":
+                        return Response(None, wire)  # the connection drops before anything runs
+                    self._apply(firings)  # an injected `error` raises here: the unit is not run
+                reply = step.run(inst)
             except ScpiError as error:
-                self.instrument.report(error)
-                if -199 <= error.code <= -100:
+                inst.report(error)
+                if is_command_error(error):
                     break  # a command error discards the rest of the message
                 continue
             if reply is not None:

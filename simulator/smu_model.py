@@ -16,6 +16,7 @@ Measurement model (documented here because a driver's tests depend on it):
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -33,7 +34,9 @@ VOLTAGE_NOISE_V = 50e-6
 CURRENT_RESOLUTION_OF_RANGE = 1e-6
 VOLTAGE_RESOLUTION_V = 1e-5
 DEFAULT_LIMIT_A = 1e-3
+POINTWISE_LEVELS = 32  # lists up to this long are solved level by level (see true_list)
 Truth = tuple[float, float, bool]  # noiseless volts, amps, current limit active
+TruthArrays = tuple[np.ndarray, np.ndarray, np.ndarray]  # the same for a list of levels
 
 
 @dataclass(frozen=True)
@@ -111,41 +114,80 @@ class Smu:
         volts, amps, limited = truth if truth is not None else self.true_output(device, temp_k)
         if self.range_auto:
             self.range_a = range_for(amps)
-        scale = 1.0 / np.sqrt(self.nplc)
-        v_noise, i_noise = self.rng.normal(0.0, 1.0, 2) * scale
+        range_a = self.range_a
+        scale = 1.0 / math.sqrt(self.nplc)
+        v_noise, i_noise = (self.rng.normal(0.0, 1.0, 2) * scale).tolist()
         v = _round(volts + v_noise * VOLTAGE_NOISE_V, VOLTAGE_RESOLUTION_V)
-        i = amps + i_noise * CURRENT_NOISE_OF_RANGE * self.range_a
-        i = _round(i, CURRENT_RESOLUTION_OF_RANGE * self.range_a)
-        overflow = abs(i) > OVERRANGE * self.range_a
+        i = amps + i_noise * CURRENT_NOISE_OF_RANGE * range_a
+        i = _round(i, CURRENT_RESOLUTION_OF_RANGE * range_a)
+        overflow = abs(i) > OVERRANGE * range_a
         if overflow:
-            i = float(np.copysign(OVERFLOW_READING, i))
-        return Reading(v, i, limited, overflow, self.range_a)
+            i = math.copysign(OVERFLOW_READING, i)
+        return Reading(v, i, limited, overflow, range_a)
 
-    def true_outputs(self, device: Device, levels: np.ndarray, temp_k: float) -> list[Truth]:
-        """true_output at many levels in one vectorised solve (output on, same limit)."""
-        amps = np.asarray(device.current(levels, temp_k), dtype=float)
+    def true_list(self, device: Device, levels: list[float], temp_k: float) -> TruthArrays:
+        """true_output at each level (output on, same limit) as arrays (volts, amps, limited):
+        one vectorised solve, or for a short list one solve a level, which costs less than
+        numpy's per-call overhead there."""
+        if len(levels) <= POINTWISE_LEVELS:
+            truths = [self._truth(device, v, temp_k) for v in levels]
+            volts, amps, limited = zip(*truths, strict=True)
+            return np.array(volts), np.array(amps), np.array(limited, dtype=bool)
+        volts = np.array(levels, dtype=float)
+        amps = np.asarray(device.current(volts, temp_k), dtype=float)
         limited = np.abs(amps) > self.limit_a
         clamp = np.copysign(self.limit_a, amps)
-        volts = np.array(levels, dtype=float)
         if limited.any():
             volts[limited] = device.voltage_at(clamp[limited], volts[limited], temp_k)
-        amps = np.where(limited, clamp, amps)
-        return [(float(v), float(i), bool(k)) for v, i, k in zip(volts, amps, limited, strict=True)]
+        return volts, np.where(limited, clamp, amps), limited
+
+    def measure_list(self, levels: list[float], truth: TruthArrays) -> list[Reading]:
+        """Step through `levels`, one acquisition at each, given their noiseless terminal values
+        (true_list): what `set_level` then `measure` at each level in turn gives, the same
+        noise draws in the same order, the same time spent and the same last range, with the
+        noise and rounding done on arrays."""
+        volts, amps, limited = truth
+        per_reading = self.trigger_delay_s + self.aperture_s
+        for level in levels:
+            self.set_level(level)
+            self.clock.spend(per_reading)
+        if self.range_auto:
+            ranges = np.array([range_for(a) for a in amps.tolist()])
+            self.range_a = float(ranges[-1])
+        else:
+            ranges = np.full(len(levels), self.range_a)
+        scale = 1.0 / math.sqrt(self.nplc)
+        noise = self.rng.normal(0.0, 1.0, 2 * len(levels)) * scale  # (v, i) pairs, in turn
+        v = _rounded(volts + noise[0::2] * VOLTAGE_NOISE_V, VOLTAGE_RESOLUTION_V)
+        i = amps + noise[1::2] * CURRENT_NOISE_OF_RANGE * ranges
+        i = _rounded(i, CURRENT_RESOLUTION_OF_RANGE * ranges)
+        overflow = np.abs(i) > OVERRANGE * ranges
+        i = np.where(overflow, np.copysign(OVERFLOW_READING, i), i)
+        columns = (v, i, limited, overflow, ranges)
+        return [Reading(*row) for row in zip(*(c.tolist() for c in columns), strict=True)]
 
     def true_output(self, device: Device | None, temp_k: float = TNOM_K) -> Truth:
         """(V, I, limited) at the terminals without noise: what the device really sees."""
         if not self.output_on or device is None:
             return 0.0, 0.0, False
-        volts = self.level_v
-        amps = float(device.current(volts, temp_k))
+        return self._truth(device, self.level_v, temp_k)
+
+    def _truth(self, device: Device, volts: float, temp_k: float) -> Truth:
+        amps = device.point_current(volts, temp_k)
         if abs(amps) <= self.limit_a:
             return volts, amps, False
-        clamp = float(np.copysign(self.limit_a, amps))
-        return float(device.voltage_at(clamp, volts, temp_k)), clamp, True
+        clamp = math.copysign(self.limit_a, amps)
+        return device.point_voltage_at(clamp, volts, temp_k), clamp, True
 
 
 def _round(value: float, step: float) -> float:
-    return float(np.round(value / step) * step)
+    # round(x, 0) rounds half to even, exactly, as np.round does, without numpy's scalar cost
+    return round(value / step, 0) * step
+
+
+def _rounded(values: np.ndarray, step: np.ndarray | float) -> np.ndarray:
+    """`_round` elementwise."""
+    return np.round(values / step) * step
 
 
 @contextmanager

@@ -100,10 +100,12 @@ def test_a_lid_opened_on_one_instrument_stops_every_lane():
     instruments = []
     groups = ([1, 2, 3, 4], [5, 6, 7, 8])
     smus = []
-    for _ in groups:
+    # The second lane trips at its 10th level (45 V); the first, three times slower a reading,
+    # is then mid-device whatever the simulator's own computing costs.
+    for delay_s in (0.006, 0.002):
         inst, smu = lot_smu(recipe, DEVICES)
         instruments.append(inst)
-        smus.append(Slow(smu, 0.002))
+        smus.append(Slow(smu, delay_s))
     instruments[1].set_lid(False)  # the second fixture's lid: open from the start
     guards = lane_guards([make_guard(recipe, smu) for smu in smus])
     parts = zip(smus, guards, groups, strict=True)
