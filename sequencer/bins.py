@@ -7,6 +7,8 @@ fail bin still says why. Pure numpy over many devices at once.
 
 from __future__ import annotations
 
+from functools import cache
+
 import numpy as np
 
 from .judgesettings import CLASSIFICATIONS, VERDICTS, BinRule, FigureRange
@@ -21,6 +23,15 @@ def _in_range(value: np.ndarray, at_least: np.ndarray, rng: FigureRange) -> np.n
     return ok
 
 
+@cache
+def _members(names: tuple[str, ...], of: tuple[str, ...]) -> np.ndarray:
+    """Code -> is it one of `names`: indexing this table gives np.isin's answer for codes of
+    `of`, without its fixed cost, which dominates for the one row of a device judged alone."""
+    table = np.isin(np.arange(len(of)), [of.index(x) for x in names])
+    table.flags.writeable = False  # shared by every call
+    return table
+
+
 def assign(
     rules: tuple[BinRule, ...],
     verdict: np.ndarray,
@@ -33,10 +44,9 @@ def assign(
     for index, rule in enumerate(rules):
         match = chosen < 0
         if rule.verdicts:
-            match &= np.isin(verdict, [VERDICTS.index(v) for v in rule.verdicts])
+            match &= _members(rule.verdicts, VERDICTS)[verdict]
         if rule.classifications:
-            codes = [CLASSIFICATIONS.index(c) for c in rule.classifications]
-            match &= np.isin(classification, codes)
+            match &= _members(rule.classifications, CLASSIFICATIONS)[classification]
         for rng in rule.ranges:
             match &= _in_range(values[rng.figure], at_least[rng.figure], rng)
         chosen[match] = index

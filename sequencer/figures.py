@@ -50,9 +50,23 @@ class Layout:
     def key(self) -> tuple:
         return (self.kinds, self.segment.tobytes(), self.level_v.tobytes())
 
+    @cached_property
+    def _memo(self) -> dict[tuple, np.ndarray]:
+        # Columns asked for more than once while a group is judged (the test voltage's spots,
+        # the windows), kept: for one device their cost is the judge's cost.
+        return {}
+
     def _is_kind(self, kind: str) -> np.ndarray:
-        wanted = [i for i, k in enumerate(self.kinds) if k == kind]
-        return np.isin(self.segment, wanted)
+        key = ("kind", kind)
+        if key not in self._memo:
+            # A plan has a few segments: a comparison with each is np.isin's answer at a
+            # fraction of its fixed cost.
+            hit = np.zeros(self.segment.shape, bool)
+            for index, k in enumerate(self.kinds):
+                if k == kind:
+                    hit |= self.segment == index
+            self._memo[key] = hit
+        return self._memo[key]
 
     @cached_property
     def sweep(self) -> np.ndarray:
@@ -66,23 +80,33 @@ class Layout:
         return np.nonzero(self.level_v >= 0)[0]
 
     def sweep_levels(self) -> np.ndarray:
+        return self._sweep_levels
+
+    @cached_property
+    def _sweep_levels(self) -> np.ndarray:
         return self.level_v[self.sweep]
 
     def covers(self, volts: float) -> bool:
-        levels = self.sweep_levels()
+        levels = self._sweep_levels
         return bool(levels.size) and levels[0] - SPOT_MATCH_V <= volts <= levels[-1] + SPOT_MATCH_V
 
     def window(self, centre_v: float, width_v: float) -> np.ndarray:
         """Forward sweep columns programmed within width/2 of the centre."""
-        inside = np.abs(self.sweep_levels() - centre_v) <= width_v / 2 + WINDOW_EDGE_V
-        return self.sweep[inside]
+        key = ("window", centre_v, width_v)
+        if key not in self._memo:
+            inside = np.abs(self._sweep_levels - centre_v) <= width_v / 2 + WINDOW_EDGE_V
+            self._memo[key] = self.sweep[inside]
+        return self._memo[key]
 
     def at(self, volts: float, kind: str | None = None) -> np.ndarray:
         """Columns programmed at this level (of one kind, or any)."""
-        hit = np.abs(self.level_v - volts) <= SPOT_MATCH_V
-        if kind is not None:
-            hit &= self._is_kind(kind)
-        return np.nonzero(hit)[0]
+        key = ("at", volts, kind)
+        if key not in self._memo:
+            hit = np.abs(self.level_v - volts) <= SPOT_MATCH_V
+            if kind is not None:
+                hit &= self._is_kind(kind)
+            self._memo[key] = np.nonzero(hit)[0]
+        return self._memo[key]
 
 
 @dataclass(frozen=True, eq=False)
@@ -111,8 +135,10 @@ class Readings:
 
 
 def _as_slice(cols: np.ndarray) -> slice | np.ndarray:
-    if cols.size and np.array_equal(cols, np.arange(cols[0], cols[0] + cols.size)):
-        return slice(int(cols[0]), int(cols[0]) + cols.size)
+    # Compared as Python lists: a few columns, and np.array_equal's overhead is most of it.
+    first = cols[0] if cols.size else 0
+    if cols.size and cols.tolist() == list(range(first, first + cols.size)):
+        return slice(int(first), int(first) + cols.size)
     return cols
 
 
@@ -130,12 +156,13 @@ class FigureArrays:
 
     @classmethod
     def empty(cls, n: int) -> FigureArrays:
-        nan = {f: np.full(n, np.nan) for f in FIGURES}
+        # One block of each kind with a row per figure: four allocations, not 28.
+        rows = len(FIGURES), n
         return cls(
-            nan,
-            {f: np.full(n, np.nan) for f in FIGURES},
-            {f: np.zeros(n, bool) for f in FIGURES},
-            {f: np.zeros(n, np.int8) for f in FIGURES},
+            dict(zip(FIGURES, np.full(rows, np.nan), strict=True)),
+            dict(zip(FIGURES, np.full(rows, np.nan), strict=True)),
+            dict(zip(FIGURES, np.zeros(rows, bool), strict=True)),
+            dict(zip(FIGURES, np.zeros(rows, np.int8), strict=True)),
             np.zeros(n, np.int8),
             np.full(n, np.nan),
             np.full(n, np.nan),
@@ -172,7 +199,7 @@ def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
 
 def _blank_dead(out: FigureArrays) -> None:
     """An open or a short has no figures at all; its shape is the whole story."""
-    dead = np.isin(out.shape, [SHAPES.index("open"), SHAPES.index("short")])
+    dead = (out.shape == SHAPES.index("open")) | (out.shape == SHAPES.index("short"))
     if dead.any():
         for name in FIGURES:
             out.value[name][dead] = np.nan
@@ -188,7 +215,7 @@ def _fit_at(r: Readings, centre_v: float, width_v: float) -> tuple[Fit, np.ndarr
     fit = window_fit(v, i, good)
     miss = np.zeros(n, np.int8)
     miss[fit.points < 3] = MISS_FEW
-    miss[clamped.any(axis=1)] = MISS_COMPLIANCE
+    miss[_any(clamped)] = MISS_COMPLIANCE
     if not r.layout.covers(centre_v):
         miss[:] = MISS_UNCOVERED
     return fit, miss
@@ -213,7 +240,7 @@ def _regulated_current(out, r: Readings, s: JudgeSettings, fit: Fit, fit_miss: n
     slope = np.where(out.missing["dynamic_impedance"] == 0, np.maximum(fit.slope, 0.0), 0.0)
     u_from_v = slope * s.accuracy.voltage.u(vt)  # a voltage error moves the current by dI/dV
     if spots.size:
-        mean, type_a, miss, _ = _mean_at(r, spots)
+        mean, type_a, miss, _ = _mean_of(*r.take(spots))
     else:
         mean = np.where(fit_miss > 0, np.nan, fit.at(vt))
         type_a, miss = fit.u_at(vt), fit_miss
@@ -221,14 +248,19 @@ def _regulated_current(out, r: Readings, s: JudgeSettings, fit: Fit, fit_miss: n
     out.put("regulated_current", mean, np.where(miss > 0, np.nan, u), missing=miss)
 
 
-def _mean_at(r: Readings, cols: np.ndarray):
-    """Mean of the good readings in these columns; Type A u = s/sqrt(n) (0 for one reading)."""
-    v, i, good, clamped = r.take(cols)
+def _any(mask: np.ndarray) -> np.ndarray:
+    """Per row: does the mask hold anywhere (ndarray.any without its Python wrapper)."""
+    return np.logical_or.reduce(mask, axis=1)
+
+
+def _mean_of(v, i, good, clamped, power: bool = False):
+    """Mean of the good readings given; Type A u = s/sqrt(n) (0 for one reading); and, when
+    asked for, the mean power (None otherwise)."""
     count, mean, sd = masked_mean(i, good)
     type_a = np.where(count >= 2, sd / np.sqrt(count), 0.0)
-    miss = np.where(count > 0, 0, np.where(clamped.any(axis=1), MISS_COMPLIANCE, MISS_NONFINITE))
-    power = np.where(good, v * i, 0.0).sum(axis=1) / count
-    return np.where(count > 0, mean, np.nan), type_a, miss.astype(np.int8), power
+    miss = np.where(count > 0, 0, np.where(_any(clamped), MISS_COMPLIANCE, MISS_NONFINITE))
+    watts = np.add.reduce(np.where(good, v * i, 0.0), axis=1) / count if power else None
+    return np.where(count > 0, mean, np.nan), type_a, miss.astype(np.int8), watts
 
 
 def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: np.ndarray):
@@ -249,7 +281,7 @@ def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: n
     miss[~knee.found] = MISS_NEVER
     miss[np.isnan(ref)] = MISS_NO_IP
     # The current's uncertainty at the crossing moves the voltage by dV/dI there.
-    u_i = combine(s.accuracy.current.u(ref), np.nan_to_num(noise), np.nan_to_num(u_ref))
+    u_i = combine(s.accuracy.current.u(ref), _known(noise), _known(u_ref))
     vl = knee.volts
     u = combine(s.accuracy.voltage.u(vl), u_i / knee.slope, knee.u_interpolation)
     bad = miss > 0
@@ -257,11 +289,15 @@ def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: n
     out.knee_reference_a = ref
 
 
-def _clamped_bound(r: Readings, cols: np.ndarray, power: bool = False):
+def _known(u: np.ndarray) -> np.ndarray:
+    """An uncertainty with NaN (not known) as 0, as nan_to_num gives it: u is never negative,
+    so fmax, which drops a NaN, does it in one operation."""
+    return np.fmax(u, 0.0)
+
+
+def _clamped_bound(magnitude: np.ndarray, clamped: np.ndarray) -> np.ndarray:
     """The largest magnitude read while clamped: the true value is at least this."""
-    v, i, _, clamped = r.take(cols)
-    magnitude = np.abs(v * i) if power else np.abs(i)
-    return clamped.any(axis=1), np.where(clamped, magnitude, -np.inf).max(axis=1, initial=-np.inf)
+    return np.maximum.reduce(np.where(clamped, magnitude, -np.inf), axis=1, initial=-np.inf)
 
 
 def _at_level(out: FigureArrays, r: Readings, s: JudgeSettings, name: str, volts: float) -> None:
@@ -274,15 +310,17 @@ def _at_level(out: FigureArrays, r: Readings, s: JudgeSettings, name: str, volts
         if name == "peak_current":
             out.put("peak_dissipation", np.full(n, np.nan), np.full(n, np.nan), None, miss)
         return
-    mean, type_a, miss, power = _mean_at(r, cols)
-    clamped, bound = _clamped_bound(r, cols)
+    peak = name == "peak_current"
+    v, i, good, clamped_at = r.take(cols)
+    mean, type_a, miss, power = _mean_of(v, i, good, clamped_at, power=peak)
+    clamped, bound = _any(clamped_at), _clamped_bound(np.abs(i), clamped_at)
     value = np.where(clamped, bound, np.abs(mean))
     u = combine(type_a, s.accuracy.current.u(mean))
     ok = ~clamped & (miss == 0)
     miss = np.where(clamped, 0, miss)
     out.put(name, value, np.where(ok, u, np.nan), clamped, miss)
-    if name == "peak_current":
-        _, p_bound = _clamped_bound(r, cols, power=True)
+    if peak:
+        p_bound = _clamped_bound(np.abs(v * i), clamped_at)
         u_p = combine(mean * s.accuracy.voltage.u(volts), volts * u)
         p = np.where(clamped, p_bound, np.abs(power))
         out.put("peak_dissipation", p, np.where(ok, u_p, np.nan), clamped, miss)

@@ -16,6 +16,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+OFFSETS = np.arange(-2, 2)  # the columns read around the first one at or above the reference
+
 
 @dataclass(frozen=True, eq=False)
 class Knee:
@@ -30,14 +32,19 @@ class Knee:
 def crossing(v: np.ndarray, i: np.ndarray, good: np.ndarray, ref: np.ndarray) -> Knee:
     n, m = v.shape
     hit = good & (i >= ref[:, None])
-    found = hit.any(axis=1)
+    found = np.logical_or.reduce(hit, axis=1)
     k = hit.argmax(axis=1)
-    rows = np.arange(n)
+    # The four points around the crossing, k-2 ... k+1, gathered at once: one fancy index per
+    # array is most of the cost when a device is judged alone.
+    j = k[:, None] + OFFSETS
+    inside = (j >= 0) & (j < m)
+    j = np.minimum(np.maximum(j, 0), m - 1)
+    rows = np.arange(n)[:, None]
+    vs, i_s, gs = v[rows, j], i[rows, j], good[rows, j] & inside
 
     def col(offset: int):
-        j = np.clip(k + offset, 0, m - 1)
-        inside = (k + offset >= 0) & (k + offset < m)
-        return v[rows, j], i[rows, j], good[rows, j] & inside
+        c = offset - OFFSETS[0]
+        return vs[:, c], i_s[:, c], gs[:, c]
 
     (v0, i0, g0), (v1, i1, _) = col(-1), col(0)
     h1 = v1 - v0
@@ -46,11 +53,10 @@ def crossing(v: np.ndarray, i: np.ndarray, good: np.ndarray, ref: np.ndarray) ->
     lin = v0 - c / chord
     right = _parabola(v0, chord, h1, c, col(1), v1, i1, after=True)
     left = _parabola(v0, chord, h1, c, col(-2), v0, i0, after=False)
-    volts = np.where(~np.isnan(right), right, np.where(~np.isnan(left), left, lin))
-    spread = np.where(
-        ~np.isnan(right) & ~np.isnan(left), np.abs(right - left), np.abs(volts - lin) * 2
-    )
-    u_interp = np.where(np.isnan(right) & np.isnan(left), np.nan, spread / 2)
+    right_ok, left_ok = ~np.isnan(right), ~np.isnan(left)
+    volts = np.where(right_ok, right, np.where(left_ok, left, lin))
+    spread = np.where(right_ok & left_ok, np.abs(right - left), np.abs(volts - lin) * 2)
+    u_interp = np.where(right_ok | left_ok, spread / 2, np.nan)
     ok = found & (k > 0) & g0
     return Knee(np.where(ok, volts, np.nan), chord, u_interp, found, found & (k == 0), g0)
 
