@@ -15,12 +15,15 @@ from .judgesettings import CLASSIFICATIONS, VERDICTS, BinRule, FigureRange
 
 
 def _in_range(value: np.ndarray, at_least: np.ndarray, rng: FigureRange) -> np.ndarray:
-    ok = ~np.isnan(value)
+    # Any comparison with NaN is false: a missing value is outside every range with a side.
+    parts = []
     if rng.min is not None:
-        ok &= value >= rng.min  # a lower bound above min is above min
+        parts.append(value >= rng.min)  # a lower bound above min is above min
     if rng.max is not None:
-        ok &= ~at_least & (value < rng.max)  # a lower bound says nothing about a maximum
-    return ok
+        parts.append(~at_least & (value < rng.max))  # a lower bound says nothing about a maximum
+    if not parts:
+        return ~np.isnan(value)
+    return parts[0] & parts[1] if len(parts) == 2 else parts[0]
 
 
 @cache
@@ -43,6 +46,8 @@ def assign(
     chosen = np.full(verdict.shape, -1, np.int16)
     for index, rule in enumerate(rules):
         match = chosen < 0
+        if not match.any():
+            break  # every device has its bin (a passing device alone, mostly at the first)
         if rule.verdicts:
             match &= _members(rule.verdicts, VERDICTS)[verdict]
         if rule.classifications:

@@ -60,12 +60,17 @@ class AccuracyTable:
             np.array([r.offset for r in self.ranges]),
         )
 
+    @cached_property
+    def _edges(self) -> np.ndarray:
+        """Every full scale but the top one: a reading's range index is the number of these
+        below it, which is searchsorted on all of them capped at the top range, in one call."""
+        return self._arrays[0][:-1].copy()
+
     def range_index(self, reading: np.ndarray) -> np.ndarray:
         return self._index(np.abs(reading))
 
     def _index(self, magnitude: np.ndarray) -> np.ndarray:
-        full, _, _ = self._arrays
-        return np.minimum(np.searchsorted(full, magnitude, side="left"), len(full) - 1)
+        return self._edges.searchsorted(magnitude, side="left")
 
     def _parts(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(|x|, its range index), NaN taken as 0 for the range: fmax drops a NaN, which gives
