@@ -43,7 +43,7 @@ def assign(
     at_least: dict[str, np.ndarray],
 ) -> np.ndarray:
     """Index of the first matching rule per device (the last rule is a catch-all)."""
-    chosen = np.full(verdict.shape, -1, np.int16)
+    chosen = np.zeros(verdict.shape, np.int16) - 1  # (np.full costs more, for one device)
     for index, rule in enumerate(rules):
         match = chosen < 0
         if not match.any():

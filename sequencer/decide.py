@@ -107,9 +107,8 @@ def decide(f: FigureArrays, s: JudgeSettings) -> Decisions:
         guarded |= np.logical_or.reduce(IS_GUARDED[codes], axis=0)
         status = dict(zip(names, codes, strict=True))
         expanded = dict(zip(names, big_u, strict=True))
-    missing = np.zeros(n, bool)
-    for name in s.required():
-        missing |= f.missing[name] > 0
+    # Missing codes are never negative: any code at all is a missing figure.
+    missing = np.logical_or.reduce(np.array([f.missing[name] for name in s.required()]), axis=0)
     shape_class = SHAPE_CLASS[f.shape]
     classification = np.where((f.shape == 0) & missing, INCOMPLETE, shape_class)
     failing |= classification != 0

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Callable
-from dataclasses import dataclass, fields
+from dataclasses import dataclass
 from functools import cached_property
 from typing import Any, TypeVar
 
@@ -37,7 +37,9 @@ MISS_FIRST = 6  # already above the knee reference at the first point
 MISS_NEGATIVE = 7  # the slope is negative beyond its noise
 MISS_NONFINITE = 8  # only non-finite readings there
 
-FIT_FIELDS = tuple(item.name for item in fields(Fit))
+DEAD = np.array([kind in ("open", "short") for kind in SHAPES])  # shape code -> no figures
+DEAD.flags.writeable = False
+IMPEDANCE_FIELDS = ("slope", "stderr", "x_mean", "y_mean", "x_min", "x_max")  # of a Fit
 
 
 SHARED_LAYOUTS = 64
@@ -159,15 +161,14 @@ class Readings:
         finite = np.isfinite(self.voltage) & np.isfinite(self.current)
         return finite & ~self.clamped
 
-    def take(self, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """voltage, current, good, clamped of these columns (views when they are a slice)."""
+    def take(self, cols: np.ndarray, *arrays: str) -> tuple[np.ndarray, ...]:
+        """voltage, current, good, clamped of these columns (views when they are a slice), or
+        only the arrays named: for one device every copy is a call of its own."""
         pick = _as_slice(cols)
-        return (
-            self.voltage[:, pick],
-            self.current[:, pick],
-            self.good[:, pick],
-            self.clamped[:, pick],
-        )
+        return tuple(getattr(self, name)[:, pick] for name in arrays or READINGS)
+
+
+READINGS = ("voltage", "current", "good", "clamped")
 
 
 def _as_slice(cols: np.ndarray) -> slice | np.ndarray:
@@ -235,7 +236,7 @@ def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
 
 def _blank_dead(out: FigureArrays) -> None:
     """An open or a short has no figures at all; its shape is the whole story."""
-    dead = (out.shape == SHAPES.index("open")) | (out.shape == SHAPES.index("short"))
+    dead = DEAD[out.shape]
     if dead.any():
         for name in FIGURES:
             out.value[name][dead] = np.nan
@@ -249,18 +250,19 @@ def _fit_at(r: Readings, centre_v: float, width_v: float) -> tuple[Fit, np.ndarr
     cols = r.layout.window(centre_v, width_v)
     v, i, good, clamped = r.take(cols)
     fit = window_fit(v, i, good)
-    miss = np.zeros(n, np.int8)
-    miss[fit.points < 3] = MISS_FEW
-    miss[_any(clamped)] = MISS_COMPLIANCE
     if not r.layout.covers(centre_v):
-        miss[:] = MISS_UNCOVERED
+        return fit, np.full(n, MISS_UNCOVERED, np.int8)
+    miss = np.zeros(n, np.int8)
+    np.copyto(miss, MISS_FEW, where=fit.points < 3)
+    np.copyto(miss, MISS_COMPLIANCE, where=_any(clamped))
     return fit, miss
 
 
 def _impedances(out: FigureArrays, s: JudgeSettings, *both: tuple[str, Fit, np.ndarray]) -> None:
     """Both impedances from their fits at once, a row each: the same arithmetic on the same
     numbers, half the calls (what one device judged alone pays for)."""
-    fit = Fit(*(np.array([getattr(f, item) for _, f, _ in both]) for item in FIT_FIELDS))
+    rows = {item: np.array([getattr(f, item) for _, f, _ in both]) for item in IMPEDANCE_FIELDS}
+    fit = Fit(**rows, points=None, sxx=None, resid_sd=None)  # (what an impedance needs)
     miss = np.array([m for _, _, m in both])
     z = impedance(fit, s.coverage_factor)
     acc = s.accuracy
@@ -312,17 +314,17 @@ def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: n
     ip, u_ip = out.value["regulated_current"], out.u["regulated_current"]
     ref = np.full(n, fixed) if fixed is not None else s.knee_fraction * ip
     u_ref = np.zeros(n) if fixed is not None else s.knee_fraction * u_ip
-    v, i, good, _ = r.take(r.layout.sweep)
+    v, i, good = r.take(r.layout.sweep, "voltage", "current", "good")
     if v.shape[1] == 0:
         out.put("limiting_voltage", np.full(n, np.nan), np.full(n, np.nan), missing=[1] * n)
         out.knee_reference_a = ref
         return
     knee = crossing(v, i, good, ref)
-    miss = np.zeros(n, np.int8)
-    miss[~knee.prev_good] = MISS_COMPLIANCE
-    miss[knee.first] = MISS_FIRST
-    miss[~knee.found] = MISS_NEVER
-    miss[np.isnan(ref)] = MISS_NO_IP
+    miss = np.zeros(n, np.int8)  # each reason below overrides those above it
+    np.copyto(miss, MISS_COMPLIANCE, where=~knee.prev_good)
+    np.copyto(miss, MISS_FIRST, where=knee.first)
+    np.copyto(miss, MISS_NEVER, where=~knee.found)
+    np.copyto(miss, MISS_NO_IP, where=np.isnan(ref))
     # The current's uncertainty at the crossing moves the voltage by dV/dI there.
     u_i = combine(s.accuracy.current.u(ref), _known(noise), _known(u_ref))
     vl = knee.volts

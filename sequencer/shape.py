@@ -45,11 +45,11 @@ def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     collapse = drop > COLLAPSE_FRACTION * peak
     _mark(shape, quoted, collapse, NON_MONOTONIC, drop)
     v, i, good, clamped = r.take(r.layout.forward)
-    top = np.where(good, np.abs(i), 0.0).max(axis=1, initial=0.0)
-    any_clamped = clamped.any(axis=1)
-    readable = good.any(axis=1)  # no usable reading at all is no evidence of an open
+    top = np.maximum.reduce(np.where(good, np.abs(i), 0.0), axis=1, initial=0.0)
+    any_clamped = np.logical_or.reduce(clamped, axis=1)
+    readable = np.logical_or.reduce(good, axis=1)  # no usable reading: no evidence of an open
     _mark(shape, quoted, readable & (top < s.shape.open_below_a) & ~any_clamped, OPEN, top)
-    rows = np.flatnonzero(any_clamped)  # few rows clamp: look closer only at those
+    rows = any_clamped.nonzero()[0]  # few rows clamp: look closer only at those
     if rows.size:
         c, volts = clamped[rows], np.abs(v[rows])
         levels = r.layout.level_v[r.layout.forward]
@@ -69,8 +69,12 @@ def _spread(n: int, rows: np.ndarray, values: np.ndarray) -> np.ndarray:
 
 
 def _mark(shape, quoted, where: np.ndarray, code: int, number: np.ndarray) -> None:
-    shape[where] = code
-    quoted[where] = number[where]
+    if where.dtype == bool:  # copyto: the same marks with fewer calls than indexing
+        np.copyto(shape, code, where=where)
+        np.copyto(quoted, number, where=where)
+    else:
+        shape[where] = code
+        quoted[where] = number[where]
 
 
 def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
@@ -84,7 +88,7 @@ def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
     n = r.voltage.shape[0]
     if cols.size < 3:
         return np.full(n, np.nan), np.full(n, np.nan)
-    _, i, good, _ = r.take(cols)
+    i, good = r.take(cols, "current", "good")
     dist = i[:, 1:-1] - (1.0 - t) * i[:, :-2] - t * i[:, 2:]
     ok = good[:, :-2] & good[:, 1:-1] & good[:, 2:] & usable
     dist *= dist
@@ -114,7 +118,7 @@ def _spot_scatter(r, volts: float) -> tuple[np.ndarray, np.ndarray] | None:
     cols = r.layout.at(volts, "spot")
     if cols.size < 2:
         return None
-    _, i, good, _ = r.take(cols)
+    i, good = r.take(cols, "current", "good")
     count, mean, sd = masked_mean(i, good)
     return np.where(count >= 2, sd, np.nan), np.abs(mean)
 
@@ -124,11 +128,11 @@ def _drawdown(r) -> tuple[np.ndarray, np.ndarray]:
     n = r.voltage.shape[0]
     if r.layout.sweep.size == 0:
         return np.zeros(n), np.zeros(n)
-    _, i, good, _ = r.take(r.layout.sweep)
+    i, good = r.take(r.layout.sweep, "current", "good")
     masked = np.where(good, i, -np.inf)
     rising = np.maximum.accumulate(masked, axis=1)
     rising -= masked  # bad points: +inf, hidden below
     rising[~good] = 0.0
-    drop = rising.max(axis=1, initial=0.0)
-    peak = masked.max(axis=1, initial=-np.inf)
+    drop = np.maximum.reduce(rising, axis=1, initial=0.0)
+    peak = np.maximum.reduce(masked, axis=1, initial=-np.inf)
     return drop, np.where(np.isfinite(peak), peak, 0.0)

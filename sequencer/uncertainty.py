@@ -89,11 +89,14 @@ class AccuracyTable:
     def u_difference(self, low: np.ndarray, high: np.ndarray) -> np.ndarray:
         """Standard uncertainty of high - low for two readings of this quantity."""
         lo, hi = np.asarray(low, dtype=float), np.asarray(high, dtype=float)
+        if lo.shape != hi.shape:
+            lo, hi = np.broadcast_arrays(lo, hi)
         _, gain, _ = self._arrays
-        m_lo, k_lo = self._parts(lo)
-        m_hi, k_hi = self._parts(hi)
-        same = gain[k_hi] * np.abs(hi - lo) / RECTANGULAR
-        return np.where(k_lo == k_hi, same, np.hypot(self._u(m_lo, k_lo), self._u(m_hi, k_hi)))
+        both = np.array([lo, hi])  # one pass over the two readings' ranges, not two
+        magnitude, k = self._parts(both)
+        u_lo, u_hi = self._u(magnitude, k)
+        same = gain[k[1]] * np.abs(hi - lo) / RECTANGULAR
+        return np.where(k[0] == k[1], same, np.hypot(u_lo, u_hi))
 
 
 def _table(rows: list[tuple[float, float, float]]) -> AccuracyTable:
