@@ -80,7 +80,10 @@ class AccuracyTable:
 
     def u(self, reading: np.ndarray | float) -> np.ndarray:
         """Standard uncertainty of readings (NaN stays NaN)."""
-        return self._u(*self._parts(np.asarray(reading, dtype=float)))
+        # A NaN's range does not matter here (gain x NaN + offset is NaN on any range), so the
+        # NaN-to-0 step of _parts is left out.
+        magnitude = np.abs(np.asarray(reading, dtype=float))
+        return self._u(magnitude, self._index(magnitude))
 
     def _u(self, magnitude: np.ndarray, k: np.ndarray) -> np.ndarray:
         _, gain, offset = self._arrays
