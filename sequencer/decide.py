@@ -68,13 +68,14 @@ def _status(value, at_least, expanded, low, high) -> np.ndarray:
     is false, so it marks nothing. Later marks overwrite earlier ones."""
     status = np.zeros(np.shape(value), np.int8)  # WITHIN
     plain = ~at_least & ~np.isnan(value)
+    below, above = value < low, value > high
     status[plain & (value > high - expanded)] = GUARD_HIGH
     status[plain & (value < low + expanded)] = GUARD_LOW
-    status[plain & (value < low)] = BELOW
-    status[at_least & (value < low)] = UNPROVEN
-    status[plain & (value > high)] = ABOVE
+    status[plain & below] = BELOW
+    status[at_least & below] = UNPROVEN
+    status[plain & above] = ABOVE
     status[at_least & (value <= high)] = UNPROVEN
-    status[at_least & (value > high)] = ABOVE
+    status[at_least & above] = ABOVE
     return status
 
 

@@ -196,13 +196,13 @@ class FigureArrays:
         # One block of each kind with a row per figure: four allocations, not 28.
         rows = len(FIGURES), n
         return cls(
-            dict(zip(FIGURES, np.full(rows, np.nan), strict=True)),
-            dict(zip(FIGURES, np.full(rows, np.nan), strict=True)),
+            dict(zip(FIGURES, _nan(rows), strict=True)),
+            dict(zip(FIGURES, _nan(rows), strict=True)),
             dict(zip(FIGURES, np.zeros(rows, bool), strict=True)),
             dict(zip(FIGURES, np.zeros(rows, np.int8), strict=True)),
             np.zeros(n, np.int8),
-            np.full(n, np.nan),
-            np.full(n, np.nan),
+            _nan(n),
+            _nan(n),
         )
 
     def put(self, name: str, value, u, at_least=None, missing=None) -> None:
@@ -212,6 +212,13 @@ class FigureArrays:
             self.at_least[name] = np.asarray(at_least, bool)
         if missing is not None:
             self.missing[name] = np.asarray(missing, np.int8)
+
+
+def _nan(shape) -> np.ndarray:
+    """np.full(shape, NaN) in two calls that need no Python of numpy's own."""
+    out = np.empty(shape)
+    out.fill(np.nan)
+    return out
 
 
 def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
