@@ -191,7 +191,7 @@ def _concat(items: list):
 def judge_curve(curve: Curve, settings: JudgeSettings) -> Judgement:
     """All figures of one device, the verdict against the settings' limits, and its bin."""
     lot = judge_arrays(
-        Layout.of(curve),
+        Layout.shared(curve),
         curve.voltage_v[None, :],
         curve.current_a[None, :],
         curve.in_compliance[None, :],

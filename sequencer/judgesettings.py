@@ -8,9 +8,14 @@ in data sheets]).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import cached_property
+from typing import Any, TypeVar
 
 from .uncertainty import DEFAULT_ACCURACY, Accuracy
+
+T = TypeVar("T")
 
 # Figure name -> (kind of quantity, SI unit in column names, label for people).
 FIGURE_INFO: dict[str, tuple[str, str, str]] = {
@@ -166,9 +171,24 @@ class JudgeSettings:
 
     def required(self) -> tuple[str, ...]:
         """The figures this recipe asks for: missing one makes a device incomplete."""
+        return self.remember("required", self._required)
+
+    def _required(self) -> tuple[str, ...]:
         out = list(FIGURES[:4])
         if self.reverse_voltage_v is not None:
             out.append("reverse_current")
         if self.peak_voltage_v is not None:
             out += ["peak_current", "peak_dissipation"]
         return tuple(out)
+
+    def remember(self, key: str, make: Callable[[], T]) -> T:
+        """make(), worked out once for these settings: the judge's constants (a limit's bounds
+        as arrays, the accuracy at the test voltage) would otherwise be worked out again for
+        every device. The settings are frozen, so what is kept stays true."""
+        if key not in self._kept:
+            self._kept[key] = make()
+        return self._kept[key]
+
+    @cached_property
+    def _kept(self) -> dict[str, Any]:
+        return {}

@@ -34,19 +34,22 @@ def classify(r, s: JudgeSettings) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     # Scatter relative to a current that has fallen to the open threshold says nothing about
     # oscillation (a part gone open mid-sweep reads pA of noise around pA), so the floor.
     floor = s.shape.open_below_a
-    spot_sd, spot_mean = _spot_scatter(r, s.test_voltage_v)
-    scatter = np.fmax(sigma / np.fmax(level, floor), spot_sd / np.fmax(spot_mean, floor))
+    scatter = sigma / np.fmax(level, floor)
+    spots = _spot_scatter(r, s.test_voltage_v)
+    if spots is not None:  # (without, fmax with their NaN would change nothing)
+        spot_sd, spot_mean = spots
+        scatter = np.fmax(scatter, spot_sd / np.fmax(spot_mean, floor))
     _mark(shape, quoted, scatter > s.shape.scatter_limit, OSCILLATING, scatter)
     # A fall by most of the peak is one event (a part going open mid-sweep), not scatter; it
     # would also inflate the scatter estimate, so it keeps its own name.
     collapse = drop > COLLAPSE_FRACTION * peak
     _mark(shape, quoted, collapse, NON_MONOTONIC, drop)
     v, i, good, clamped = r.take(r.layout.forward)
-    top = np.where(good, np.abs(i), 0.0).max(axis=1, initial=0.0)
-    any_clamped = clamped.any(axis=1)
-    readable = good.any(axis=1)  # no usable reading at all is no evidence of an open
+    top = np.maximum.reduce(np.where(good, np.abs(i), 0.0), axis=1, initial=0.0)
+    any_clamped = np.logical_or.reduce(clamped, axis=1)
+    readable = np.logical_or.reduce(good, axis=1)  # no usable reading: no evidence of an open
     _mark(shape, quoted, readable & (top < s.shape.open_below_a) & ~any_clamped, OPEN, top)
-    rows = np.flatnonzero(any_clamped)  # few rows clamp: look closer only at those
+    rows = any_clamped.nonzero()[0]  # few rows clamp: look closer only at those
     if rows.size:
         c, volts = clamped[rows], np.abs(v[rows])
         levels = r.layout.level_v[r.layout.forward]
@@ -66,8 +69,12 @@ def _spread(n: int, rows: np.ndarray, values: np.ndarray) -> np.ndarray:
 
 
 def _mark(shape, quoted, where: np.ndarray, code: int, number: np.ndarray) -> None:
-    shape[where] = code
-    quoted[where] = number[where]
+    if where.dtype == bool:  # copyto: the same marks with fewer calls than indexing
+        np.copyto(shape, code, where=where)
+        np.copyto(quoted, number, where=where)
+    else:
+        shape[where] = code
+        quoted[where] = number[where]
 
 
 def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
@@ -76,32 +83,42 @@ def plateau_noise(r, from_v: float) -> tuple[np.ndarray, np.ndarray]:
     Each point's place between its neighbours comes from the programmed levels: the measured
     voltages differ from them by far less than would matter here, and one vector for the lot
     saves most of the work."""
-    cols = r.layout.sweep[r.layout.sweep_levels() >= from_v - 1e-9]
+    layout = r.layout
+    cols, t, usable, weight = layout.remember(("plateau", from_v), lambda: _plateau(layout, from_v))
     n = r.voltage.shape[0]
     if cols.size < 3:
         return np.full(n, np.nan), np.full(n, np.nan)
-    _, i, good, _ = r.take(cols)
-    x = r.layout.level_v[cols]
-    span = x[2:] - x[:-2]
-    usable = span != 0
-    t = np.where(usable, (x[1:-1] - x[:-2]) / np.where(usable, span, 1.0), 0.0)
+    i, good = r.take(cols, "current", "good")
     dist = i[:, 1:-1] - (1.0 - t) * i[:, :-2] - t * i[:, 2:]
     ok = good[:, :-2] & good[:, 1:-1] & good[:, 2:] & usable
     dist *= dist
     dist[~ok] = 0.0
-    weight = np.where(usable, 1.0 / (1.0 + t * t + (1.0 - t) ** 2), 0.0)
-    var = (dist @ weight) / np.count_nonzero(ok, axis=1)
-    level = np.where(good, i, 0.0).sum(axis=1) / np.count_nonzero(good, axis=1)
+    var = (dist @ weight) / np.add.reduce(ok, axis=1)
+    level = np.add.reduce(np.where(good, i, 0.0), axis=1) / np.add.reduce(good, axis=1)
     return np.sqrt(var), np.abs(level)
 
 
-def _spot_scatter(r, volts: float) -> tuple[np.ndarray, np.ndarray]:
-    """(standard deviation, |mean|) of repeated spot readings at the test voltage."""
+def _plateau(layout, from_v: float) -> tuple:
+    """What plateau_noise needs of the plan alone: the columns, each inner point's place t,
+    whether its neighbours are apart, and the weight of its squared distance."""
+    cols = layout.sweep[layout.sweep_levels() >= from_v - 1e-9]
+    if cols.size < 3:
+        return cols, None, None, None
+    x = layout.level_v[cols]
+    span = x[2:] - x[:-2]
+    usable = span != 0
+    t = np.where(usable, (x[1:-1] - x[:-2]) / np.where(usable, span, 1.0), 0.0)
+    weight = np.where(usable, 1.0 / (1.0 + t * t + (1.0 - t) ** 2), 0.0)
+    return cols, t, usable, weight
+
+
+def _spot_scatter(r, volts: float) -> tuple[np.ndarray, np.ndarray] | None:
+    """(standard deviation, |mean|) of repeated spot readings at the test voltage; None
+    without repeats."""
     cols = r.layout.at(volts, "spot")
-    n = r.voltage.shape[0]
     if cols.size < 2:
-        return np.full(n, np.nan), np.full(n, np.nan)
-    _, i, good, _ = r.take(cols)
+        return None
+    i, good = r.take(cols, "current", "good")
     count, mean, sd = masked_mean(i, good)
     return np.where(count >= 2, sd, np.nan), np.abs(mean)
 
@@ -111,11 +128,11 @@ def _drawdown(r) -> tuple[np.ndarray, np.ndarray]:
     n = r.voltage.shape[0]
     if r.layout.sweep.size == 0:
         return np.zeros(n), np.zeros(n)
-    _, i, good, _ = r.take(r.layout.sweep)
+    i, good = r.take(r.layout.sweep, "current", "good")
     masked = np.where(good, i, -np.inf)
     rising = np.maximum.accumulate(masked, axis=1)
     rising -= masked  # bad points: +inf, hidden below
     rising[~good] = 0.0
-    drop = rising.max(axis=1, initial=0.0)
-    peak = masked.max(axis=1, initial=-np.inf)
+    drop = np.maximum.reduce(rising, axis=1, initial=0.0)
+    peak = np.maximum.reduce(masked, axis=1, initial=-np.inf)
     return drop, np.where(np.isfinite(peak), peak, 0.0)

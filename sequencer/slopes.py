@@ -16,10 +16,10 @@ def masked_mean(x: np.ndarray, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray
     """(count, mean, sample standard deviation) of each row over its masked points; NaN where
     there are too few points."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        count = mask.sum(axis=1)
-        mean = np.where(mask, x, 0.0).sum(axis=1) / count
+        count = np.add.reduce(mask, axis=1)
+        mean = np.add.reduce(np.where(mask, x, 0.0), axis=1) / count
         dev = np.where(mask, x - mean[:, None], 0.0)
-        return count, mean, np.sqrt((dev * dev).sum(axis=1) / (count - 1))
+        return count, mean, np.sqrt(np.add.reduce(dev * dev, axis=1) / (count - 1))
 
 
 @dataclass(frozen=True, eq=False)
@@ -48,32 +48,22 @@ class Fit:
 def window_fit(x: np.ndarray, y: np.ndarray, mask: np.ndarray) -> Fit:
     """Fit every row of x, y (n, k) over its masked points; rows with < 3 points give NaN."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        count = mask.sum(axis=1)
-        x_mean = np.where(mask, x, 0.0).sum(axis=1) / count
-        y_mean = np.where(mask, y, 0.0).sum(axis=1) / count
+        count = np.add.reduce(mask, axis=1)
+        x_mean = np.add.reduce(np.where(mask, x, 0.0), axis=1) / count
+        y_mean = np.add.reduce(np.where(mask, y, 0.0), axis=1) / count
         dx = np.where(mask, x - x_mean[:, None], 0.0)
         dy = np.where(mask, y - y_mean[:, None], 0.0)
-        sxx = (dx * dx).sum(axis=1)
-        slope = (dx * dy).sum(axis=1) / sxx
+        sxx = np.add.reduce(dx * dx, axis=1)
+        slope = np.add.reduce(dx * dy, axis=1) / sxx
         resid = dy - slope[:, None] * dx
-        s2 = (resid * resid).sum(axis=1) / (count - 2)
+        s2 = np.add.reduce(resid * resid, axis=1) / (count - 2)
         few = (count < 3) | ~(sxx > 0)
-        nan = np.nan
-        s2 = np.where(few, nan, s2)
+        x_min = np.minimum.reduce(np.where(mask, x, np.inf), axis=1, initial=np.inf)
+        x_max = np.maximum.reduce(np.where(mask, x, -np.inf), axis=1, initial=-np.inf)
+        # NaN where too few: the four at once (for one device a call is most of the cost)
+        slope, s2, x_min, x_max = np.where(few, np.nan, np.array([slope, s2, x_min, x_max]))
         stderr = np.sqrt(s2 / sxx)
-        x_min = np.where(mask, x, np.inf).min(axis=1, initial=np.inf)
-        x_max = np.where(mask, x, -np.inf).max(axis=1, initial=-np.inf)
-    return Fit(
-        np.where(few, nan, slope),
-        stderr,
-        count,
-        x_mean,
-        y_mean,
-        sxx,
-        np.sqrt(s2),
-        np.where(few, nan, x_min),
-        np.where(few, nan, x_max),
-    )
+    return Fit(slope, stderr, count, x_mean, y_mean, sxx, np.sqrt(s2), x_min, x_max)
 
 
 @dataclass(frozen=True, eq=False)
