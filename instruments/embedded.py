@@ -73,6 +73,10 @@ class EmbeddedSimulator:
             stderr=self._stderr,
             text=True,
             env=_child_env(),
+            # Out of the terminal's process group: a Ctrl-C there is for ccbench, which must
+            # still reach the instrument to switch its output off and read it back. The child
+            # ends when ccbench closes its stdin, or exits in any way (--exit-with-stdin).
+            start_new_session=True,
         )
         try:
             self.resource = self._await_resource(command)

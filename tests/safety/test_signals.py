@@ -4,6 +4,7 @@ exit code is non-zero with one line saying why."""
 
 from __future__ import annotations
 
+import os
 import signal
 import sqlite3
 import subprocess
@@ -80,3 +81,29 @@ def test_a_signal_mid_sweep_leaves_the_output_off_and_keeps_the_data(tmp_path, s
     ).fetchone()[0]
     assert 0 < partial < 61  # the interrupted device keeps the points it had
     assert lines(out / "journal.jsonl") == len(verdicts)
+
+
+@pytest.mark.sim
+@pytest.mark.robustness
+def test_ctrl_c_at_the_terminal_does_not_stop_the_embedded_simulator_first(tmp_path):
+    # A terminal sends Ctrl-C's SIGINT to its whole foreground process group (POSIX job
+    # control, common practice, no source): ccbench and every child it started. The embedded
+    # simulator must outlive it long enough for the output-off and its read-back.
+    path = write_bench(tmp_path, recipe={"steps": SLOW_STEPS, "nplc": 1})
+    out = tmp_path / "run"
+    run = subprocess.Popen(
+        [sys.executable, "-m", "sequencer.cli", "run", str(path), "--sim", "--out", str(out)],
+        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+        env={"PATH": "/usr/bin:/bin", "COLUMNS": "300", "PYTHONPATH": str(ROOT)},
+        start_new_session=True,  # its own group, standing in for the terminal's foreground group
+    )  # fmt: skip
+    try:
+        assert wait_for(lambda: lines(out / "journal.jsonl") >= 1, 30), "no device finished"
+        time.sleep(0.3)
+        os.killpg(run.pid, signal.SIGINT)  # the whole group, as the terminal does
+        stdout, stderr = run.communicate(timeout=20)
+    finally:
+        run.kill()
+    assert run.returncode == 130, stdout + stderr
+    last = stdout.strip().splitlines()[-1]
+    assert last.startswith("ccbench: stopped by Ctrl-C; output off (read back from the instrument)")
