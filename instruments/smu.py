@@ -374,10 +374,10 @@ class ScpiSmu:
         """`query` with the held commands in front, as one message (if it stays in the limit)."""
         if not self._pending:
             return query
-        if len(_joined([*self._pending, query])) > (self.dialect.max_message_bytes or 0):
+        message = _joined([*self._pending, query])
+        if len(message) > (self.dialect.max_message_bytes or 0):
             self._flush()
             return query
-        message = _joined([*self._pending, query])
         self._pending.clear()
         return message
 

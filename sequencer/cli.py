@@ -117,7 +117,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
     repeat = runsession.repeat_for(recipe, args)
-    manifest = _manifest(recipe, args, resource)
+    manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
     manifest |= operator.manifest_extras(recipe, args, repeat)
     shipper.check_driver(recipe.station.results_database)
@@ -233,7 +233,7 @@ def _cautions(console: Console, recipe: Recipe, plan) -> None:
         )
 
 
-def _manifest(recipe: Recipe, args: argparse.Namespace, resource: str) -> dict[str, object]:
+def _manifest(recipe: Recipe, plan, args: argparse.Namespace, resource: str) -> dict[str, object]:
     return {
         "started": _now(),
         "product": recipe.product,
@@ -248,14 +248,14 @@ def _manifest(recipe: Recipe, args: argparse.Namespace, resource: str) -> dict[s
         "station_text": recipe.station.text,
         "resource": resource,
         "simulator": json.dumps(recipe.station.simulator_options) if resource == "sim" else None,
-        "hazardous_voltage": _acknowledgement(recipe, args),
+        "hazardous_voltage": _acknowledgement(recipe, plan, args),
     }
 
 
-def _acknowledgement(recipe: Recipe, args: argparse.Namespace) -> str | None:
+def _acknowledgement(recipe: Recipe, plan, args: argparse.Namespace) -> str | None:
     """Who allowed levels above the touch-safe voltage, for the run record (None: no such
     level is planned, or nobody needed to)."""
-    if not is_hazardous(make_plan(recipe), recipe.effective_limits):
+    if not is_hazardous(plan, recipe.effective_limits):
         return None
     if recipe.hazardous_voltage_acknowledged:
         return f"acknowledged in the recipe ({recipe.file})"
