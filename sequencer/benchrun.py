@@ -1,20 +1,23 @@
 """A run on an open instrument, from the safe start to the confirmed output-off, and the signals
 that may end it.
 
-`SignalGate` turns the first SIGINT or SIGTERM into an exception (so every `finally` on the way
-out switches the output off) and holds back any signal that arrives while the output is being
-switched off, so that a second Ctrl-C cannot cut the shutdown short. `on_bench` runs the lot
-between `start_safe` and `make_safe` and leaves the shutdown report in a `Bench` for the line the
-CLI prints.
+`SignalGate` turns the first SIGINT, SIGTERM, SIGHUP or SIGQUIT into an exception (so every
+`finally` on the way out switches the output off) and holds back any signal that arrives while
+the output is being switched off, so that a second Ctrl-C cannot cut the shutdown short.
+`on_bench` runs the lot between `start_safe` and `make_safe` and leaves the shutdown report in a
+`Bench` for the line the CLI prints.
 """
 
 from __future__ import annotations
 
+import contextlib
+import logging
 import signal
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING
+from pathlib import Path
+from typing import TYPE_CHECKING, TextIO
 
 from .lotrun import RunSummary, make_guard
 from .plan import Plan
@@ -26,18 +29,38 @@ if TYPE_CHECKING:
 
     from .shutdown import Shutdown
 
+log = logging.getLogger(__name__)
+
+# Ctrl-C; `kill`; the terminal closed or the SSH session dropped; Ctrl-\ (POSIX, signal(7))
+STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM, signal.SIGHUP, signal.SIGQUIT)
+
+# What ccbench says when it could not talk to the instrument at all: it sent nothing that
+# switches an output on, but someone else may have left it on.
+UNTOUCHED = (
+    "ccbench switched nothing on, but could not read the output's state: check it at the instrument"
+)
+NOTHING_SENT = "nothing was sent to the instrument"
+
 
 class Terminated(BaseException):
-    """SIGTERM, turned into an exception so that every `finally` switches the output off."""
+    """SIGTERM, SIGHUP or SIGQUIT, turned into an exception so that every `finally` switches
+    the output off; the message names the signal."""
+
+
+def stopped_by(signum: int) -> BaseException:
+    if signum == signal.SIGINT:
+        return KeyboardInterrupt("stopped by Ctrl-C")
+    return Terminated(f"stopped by {signal.Signals(signum).name}")
 
 
 @dataclass
 class SignalGate:
-    """Signal handler for SIGINT and SIGTERM; install with `install()` from the main thread."""
+    """Signal handler for STOP_SIGNALS; install with `installed()` from the main thread."""
 
     received: list[int] = field(default_factory=list)
     raised: bool = False
     holding: int = 0
+    settled: bool = False
 
     def handler(self, signum: int, frame: object) -> None:
         self.received.append(signum)
@@ -46,11 +69,14 @@ class SignalGate:
 
     def release(self) -> None:
         """Raise for the first signal received, once; later ones only stay recorded."""
-        if self.received and not self.raised:
+        if self.received and not self.raised and not self.settled:
             self.raised = True
-            if self.received[0] == signal.SIGTERM:
-                raise Terminated("stopped by SIGTERM")
-            raise KeyboardInterrupt("stopped by Ctrl-C")
+            raise stopped_by(self.received[0])
+
+    def settle(self) -> None:
+        """The measuring is over: from now on signals are only recorded, so that nothing can
+        cut short the run record, the last line or the exit code."""
+        self.settled = True
 
     @contextmanager
     def held(self) -> Iterator[None]:
@@ -76,18 +102,24 @@ class SignalGate:
             self.holding = saved
 
     @contextmanager
-    def installed(self) -> Iterator[SignalGate]:
-        """Handle SIGINT and SIGTERM for the block; the previous handlers come back after."""
+    def installed(self, *, ignore_after: bool = False) -> Iterator[SignalGate]:
+        """Handle STOP_SIGNALS for the block. A SIGHUP that the parent set to be ignored
+        (nohup) stays ignored: the user asked for the run to outlive the terminal. After the
+        block the previous handlers come back, or, with `ignore_after` (the program is about
+        to exit), the signals are ignored: a storm that goes on after the shutdown then changes
+        neither the last line nor the exit code (a Python handler would be reset to the default
+        action, which ends the process, while the interpreter shuts down)."""
         self.received.clear()
-        self.raised, self.holding = False, 0
-        previous = {signum: signal.getsignal(signum) for signum in (signal.SIGINT, signal.SIGTERM)}
-        for signum in previous:
-            signal.signal(signum, self.handler)
+        self.raised, self.holding, self.settled = False, 0, False
+        previous = {signum: signal.getsignal(signum) for signum in STOP_SIGNALS}
+        for signum, before in previous.items():
+            if not (signum == signal.SIGHUP and before == signal.SIG_IGN):
+                signal.signal(signum, self.handler)
         try:
             yield self
         finally:
-            for signum, handler in previous.items():
-                signal.signal(signum, handler)
+            for signum, before in previous.items():
+                signal.signal(signum, signal.SIG_IGN if ignore_after else before)
 
 
 GATE = SignalGate()  # the process's one gate; `ccbench` installs it for the whole command
@@ -99,12 +131,34 @@ class Bench:
 
     shutdown: Shutdown | None = None
     guard: Guard | None = None
+    connecting: bool = False  # a connection was tried: something may have reached it
 
     def ending(self) -> str:
         """How the output was left, for the last line on screen."""
         if self.shutdown is None:
-            return "the output was never switched on"
+            return UNTOUCHED if self.connecting else NOTHING_SENT
         return self.shutdown.describe()
+
+    def may_be_on(self) -> bool:
+        """True when ccbench drove the instrument and could not read its output back off."""
+        return self.shutdown is not None and not self.shutdown.off
+
+
+@contextmanager
+def exchange_log(path: Path) -> Iterator[TextIO]:
+    """scpi.log, opened for the run. Closing it never raises: on a full disk its last buffered
+    lines are lost (the driver's spy has said so already), and the error that matters is the
+    one that ended the run, not this one."""
+    file = open(path, "a", encoding="utf-8")  # noqa: SIM115 - closed below, never raising
+    try:
+        yield file
+    finally:
+        try:
+            file.close()
+        except OSError as exc:
+            log.warning("%s: its last lines could not be written (%s)", path, exc.strerror)
+            with contextlib.suppress(OSError):
+                file.close()  # the buffer is dropped now: the file is closed for good
 
 
 def on_bench(

@@ -17,7 +17,7 @@ from pathlib import Path
 from rich.console import Console
 
 from . import __version__, judgecmd, multibench, operator, reportcmd, results, runsession, shipper
-from .benchrun import GATE, Bench, Terminated, on_bench
+from .benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from .errors import CcbenchError, RunError
 from .estimate import after_run, predict
 from .lotrun import run_lot
@@ -25,13 +25,16 @@ from .plan import make_plan
 from .recipe import Recipe, load_recipe
 from .safety import CAUTION, check_hazard, is_hazardous, preflight
 from .safetyview import limits_table
+from .screen import Screen
 from .view import device_line, plan_summary, plan_table, progress_bar, summary_table
 
 EXIT_INTERRUPTED = 130
+EXIT_OUTPUT_MAY_BE_ON = 6  # wins over every other code: the one a supervising script must see
 
 
 class Stopped(CcbenchError):
-    """Ctrl-C or SIGTERM ended a run; the message says how the output was left."""
+    """A signal (Ctrl-C, SIGTERM, SIGHUP, SIGQUIT) ended a run; the message says how the
+    output was left."""
 
     exit_code = EXIT_INTERRUPTED
 
@@ -79,19 +82,35 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def main(argv: Sequence[str] | None = None, console: Console | None = None) -> int:
-    console = console or Console(highlight=False)
+def main(
+    argv: Sequence[str] | None = None,
+    console: Console | None = None,
+    *,
+    exiting: bool = False,
+) -> int:
+    """Run one command; returns its exit code. `exiting`: the process ends after this (the
+    `ccbench` program itself), so stop signals stay ignored once the command is over."""
+    console = console or Console(file=Screen(sys.stdout), highlight=False)
     args = build_parser().parse_args(argv)
     try:
-        with GATE.installed():  # the first SIGINT/SIGTERM raises; more cannot cut a shutdown
-            return COMMANDS[args.command](args, console)
+        with GATE.installed(ignore_after=exiting):  # the first signal raises; more cannot
+            return COMMANDS[args.command](args, console)  # cut a shutdown short
     except CcbenchError as exc:
         console.print(f"[bold red]ccbench:[/] {exc}", soft_wrap=True)
         return exc.exit_code
     except (KeyboardInterrupt, Terminated) as exc:
-        what = "Ctrl-C" if isinstance(exc, KeyboardInterrupt) else "SIGTERM"
-        console.print(f"[bold yellow]ccbench:[/] stopped by {what}", soft_wrap=True)
+        console.print(f"[bold yellow]ccbench:[/] {_why_stopped(exc)}", soft_wrap=True)
         return EXIT_INTERRUPTED
+
+
+def _why_stopped(exc: BaseException) -> str:
+    """'stopped by SIGHUP', say (the signal gate names the signal in the exception)."""
+    return str(exc) or ("stopped by Ctrl-C" if isinstance(exc, KeyboardInterrupt) else "stopped")
+
+
+def entry() -> None:
+    """The `ccbench` program: main, then an exit that a late signal cannot change."""
+    sys.exit(main(exiting=True))
 
 
 def cmd_check(args: argparse.Namespace, console: Console) -> int:
@@ -106,8 +125,6 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
 
 
 def cmd_run(args: argparse.Namespace, console: Console) -> int:
-    from instruments import InstrumentError
-
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
@@ -125,9 +142,10 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
         return 0
     several = len(recipe.station.instruments) > 1
-    status, bench = "failed", (multibench.Benches() if several else Bench())
-    uploads = shipper.start_for(recipe.station.results_database, store, console)
+    bench = multibench.Benches() if several else Bench()
+    status, error, uploads = "failed", None, None
     try:
+        uploads = shipper.start_for(recipe.station.results_database, store, console)
         if several:  # one worker per instrument; sequencer/multibench.py
             summary = multibench.measure_on_benches(
                 recipe, plan, args.sim, out, store,
@@ -139,37 +157,62 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
                 console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part
             )
         status = summary.status
-    except InstrumentError as exc:
-        raise RunError(f"instrument: {exc}; {bench.ending()}") from None
-    except CcbenchError as exc:
-        exc.message = f"{exc.message}; {bench.ending()}"
-        raise
-    except (KeyboardInterrupt, Terminated) as exc:
-        status = "interrupted"
-        why = str(exc) or f"stopped by {'SIGTERM' if isinstance(exc, Terminated) else 'Ctrl-C'}"
-        raise Stopped(f"{why}; {bench.ending()}; what was measured is kept in {out}") from None
-    except Exception as exc:  # a bug (in the judge, say): still one line, the output state in it
-        (out / "traceback.txt").write_text(traceback.format_exc(), encoding="utf-8")
-        detail = f"internal error ({type(exc).__name__}: {exc}); {bench.ending()}"
-        raise RunError(f"{detail}; details in {out / 'traceback.txt'}") from None
+    except (Exception, KeyboardInterrupt, Terminated) as exc:
+        status = "interrupted" if isinstance(exc, KeyboardInterrupt | Terminated) else "failed"
+        error = _run_error(exc, bench, out)
     finally:
-        problem = store.finish(status, _now())  # after a failure, the failure is the news
-        if problem and status == "completed":
-            console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
+        GATE.settle()  # measuring is over: a late signal cannot cut the record or the last line
+        ended = error.message if error else f"{status}; {bench.ending()}"
+        _finish(console, store, status, ended)
         shipper.finish(uploads, console)
+    if error is not None:
+        if bench.may_be_on():
+            error.exit_code = EXIT_OUTPUT_MAY_BE_ON
+        raise error
     console.print(summary_table(summary))
     took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
     console.print(took, soft_wrap=True)
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
-    return 0
+    return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
+
+
+def _run_error(exc: BaseException, bench: Bench | multibench.Benches, out: Path) -> CcbenchError:
+    """The one error a run ends with, its last line saying how the output was left. The first
+    error wins: nothing that fails after it (a log file on a full disk) may take its place."""
+    from instruments import InstrumentError
+
+    ending = bench.ending()
+    if isinstance(exc, InstrumentError):
+        return RunError(f"instrument: {exc}; {ending}")
+    if isinstance(exc, CcbenchError):
+        exc.message = f"{exc.message}; {ending}"
+        return exc
+    if isinstance(exc, KeyboardInterrupt | Terminated):
+        return Stopped(f"{_why_stopped(exc)}; {ending}; what was measured is kept in {out}")
+    # a bug (in the judge, say): still one line, the output state in it
+    detail = f"internal error ({type(exc).__name__}: {exc}); {ending}"
+    try:
+        (out / "traceback.txt").write_text(traceback.format_exc(), encoding="utf-8")
+    except OSError as failed:
+        return RunError(f"{detail}; its traceback could not be saved ({failed.strerror})")
+    return RunError(f"{detail}; details in {out / 'traceback.txt'}")
+
+
+def _finish(console: Console, store, status: str, ended: str) -> None:
+    """Record how the session ended, with what the screen no longer showed."""
+    lost = getattr(console.file, "lost", "")
+    problem = store.finish(status, _now(), ended=f"{ended}; {lost}" if lost else ended)
+    if problem and status == "completed":  # after a failure, the failure is the news
+        console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
 
 
 def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect
 
-    with open(out / "scpi.log", "a", encoding="utf-8") as log, GATE.held():
+    with exchange_log(out / "scpi.log") as log, GATE.held():
+        bench.connecting = True
         conn = connect(
             resource,
             dialect=recipe.station.dialect,
@@ -296,4 +339,4 @@ COMMANDS = {
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    entry()

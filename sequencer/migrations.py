@@ -107,7 +107,13 @@ def _v4(db: sqlite3.Connection) -> None:
     db.execute("ALTER TABLE device ADD COLUMN standing INTEGER")
 
 
-MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_v1, _v2, _v3, _v4)
+def _v5(db: sqlite3.Connection) -> None:
+    """How each session ended, in words: the run's last line on screen (what stopped it, how
+    the output was left), kept where the screen may have been gone (a closed terminal)."""
+    db.execute("ALTER TABLE session ADD COLUMN ended TEXT")
+
+
+MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_v1, _v2, _v3, _v4, _v5)
 LATEST = len(MIGRATIONS)
 
 

@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING
 
 from rich.console import Console
 
-from .benchrun import SignalGate
+from .benchrun import NOTHING_SENT, UNTOUCHED, SignalGate, exchange_log
 from .instrumentspec import InstrumentSpec
 from .lotrun import RunSummary, make_guard
 from .parallel import Lane, LaneGuard, lane_guards, run_parallel
@@ -38,16 +38,26 @@ if TYPE_CHECKING:
 class Benches:
     """How each instrument's output was left, for the last line on screen."""
 
-    names: list[str] = field(default_factory=list)
+    names: list[str] = field(default_factory=list)  # connected
     shutdowns: dict[str, Shutdown] = field(default_factory=dict)
+    tried: list[str] = field(default_factory=list)  # a connection was tried
 
     def ending(self) -> str:
-        if not self.shutdowns:
-            return "the output was never switched on"
-        if all(s.off and not s.reconnected for s in self.shutdowns.values()):
+        if not self.tried:
+            return NOTHING_SENT
+        if len(self.shutdowns) == len(self.tried) and all(
+            s.off and not s.reconnected for s in self.shutdowns.values()
+        ):
             count = len(self.shutdowns)
             return f"output off on all {count} instruments (read back from each)"
-        return "; ".join(f"{name}: {s.describe()}" for name, s in self.shutdowns.items())
+        return "; ".join(
+            f"{name}: {self.shutdowns[name].describe() if name in self.shutdowns else UNTOUCHED}"
+            for name in self.tried
+        )
+
+    def may_be_on(self) -> bool:
+        """True when ccbench drove an instrument and could not read its output back off."""
+        return any(not s.off for s in self.shutdowns.values())
 
 
 def log_name(spec: InstrumentSpec) -> str:
@@ -71,9 +81,10 @@ def measure_on_benches(
     conns: list[Connection] = []
     guards: list[LaneGuard] = []
     with gate.held(), ExitStack() as stack:  # the shutdown below runs before signals act
-        logs = [stack.enter_context(open(out / log_name(s), "a", encoding="utf-8")) for s in specs]
+        logs = [stack.enter_context(exchange_log(out / log_name(s))) for s in specs]
         stack.callback(_switch_all_off, conns, guards, specs, benches)
         for spec, log in zip(specs, logs, strict=True):
+            benches.tried.append(spec.name)
             conns.append(_connect(recipe, spec, sim, log))
             benches.names.append(spec.name)
         guards += lane_guards([make_guard(recipe, conn.smu) for conn in conns])

@@ -66,8 +66,8 @@ def why_stopped(exc: BaseException, lane: str | None = None) -> str:
     """The reason other lanes' devices are stored with when `exc` stops the run."""
     if isinstance(exc, KeyboardInterrupt):
         return "interrupted by the operator"
-    if type(exc).__name__ == "Terminated":  # benchrun.Terminated (SIGTERM)
-        return "stopped by SIGTERM"
+    if type(exc).__name__ == "Terminated":  # benchrun.Terminated: "stopped by SIGHUP", say
+        return str(exc) or "stopped by a signal"
     where = f"instrument {lane}" if lane else "the run"
     return f"stopped with {where}: {exc or type(exc).__name__}"
 

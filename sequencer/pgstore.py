@@ -144,7 +144,12 @@ def _v4(cur: psycopg.Cursor) -> None:
     cur.execute("ALTER TABLE device ADD COLUMN standing INTEGER")
 
 
-MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (_v1, _v2, _v3, _v4)
+def _v5(cur: psycopg.Cursor) -> None:
+    """How each session ended, in words (what stopped it, how the output was left)."""
+    cur.execute("ALTER TABLE session ADD COLUMN ended TEXT")
+
+
+MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (_v1, _v2, _v3, _v4, _v5)
 LATEST = len(MIGRATIONS)
 
 

@@ -49,7 +49,7 @@ from .runfolder import (
     write_manifest,
 )
 
-SCHEMA_VERSION = LATEST  # 2: bins, reverse and peak figures; 3: passes; 4: standing (migrations)
+SCHEMA_VERSION = LATEST  # 2: bins, reverse and peak figures; 3: passes; 4: standing; 5: ended
 UNITS = FIGURE_UNIT
 BIN_COLUMNS = ["hard_bin", "bin_class", "soft_bin"]
 
@@ -256,17 +256,19 @@ class RunStore:
         self._write_meta(lambda: dbase.update_session(self.db, self.run_id, self.session, **ids))
         self._write_meta(lambda: write_manifest(self.folder, self.manifest))
 
-    def finish(self, status: str, finished: str, identity: str = "") -> str:
-        """Record the end of this session and close the folder (the lock goes last). Never
-        raises: it runs on every way out; a problem is returned as text for the screen."""
+    def finish(self, status: str, finished: str, identity: str = "", ended: str = "") -> str:
+        """Record the end of this session and close the folder (the lock goes last). `ended`:
+        how the session ended, in words (the last line on screen). Never raises: it runs on
+        every way out; a problem is returned as text for the screen."""
         ends = {"status": status, "finished": finished}
         if identity:
             ends["identity"] = identity
         self.manifest.update(ends)
-        self.manifest["sessions"][-1].update(ends)
+        session = {**ends, "ended": ended} if ended else ends
+        self.manifest["sessions"][-1].update(session)
         problems = [
             self._try(lambda: dbase.update_run(self.db, self.run_id, **ends)),
-            self._try(lambda: dbase.update_session(self.db, self.run_id, self.session, **ends)),
+            self._try(lambda: dbase.update_session(self.db, self.run_id, self.session, **session)),
             self._try(lambda: write_manifest(self.folder, self.manifest)),
         ]
         problems.append(self._close())

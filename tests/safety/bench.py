@@ -5,8 +5,10 @@ connection that reads what the output is doing."""
 from __future__ import annotations
 
 import re
+import socket
 import subprocess
 import sys
+import threading
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -137,6 +139,57 @@ def start_sim_process(*args: str) -> SimProcess:
         process.kill()
         raise RuntimeError(f"simulator did not start: {line!r}")
     return SimProcess(process, line)
+
+
+class SilentInstrument:
+    """An instrument that accepts the connection, takes in every message and never answers
+    anything, not even *IDN? (a hung controller, a device listening on the wrong protocol).
+    `received` is every message, in order. Use it as a context manager."""
+
+    def __init__(self) -> None:
+        self.received: list[str] = []
+        self._listener = socket.create_server(("127.0.0.1", 0))
+        self._listener.settimeout(0.05)
+        self.resource = f"TCPIP0::127.0.0.1::{self._listener.getsockname()[1]}::SOCKET"
+        self._stop = threading.Event()
+        self._threads = [threading.Thread(target=self._accept, daemon=True)]
+
+    def __enter__(self) -> SilentInstrument:
+        self._threads[0].start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._stop.set()
+        for thread in self._threads:
+            thread.join(timeout=5)
+        self._listener.close()
+
+    def _accept(self) -> None:
+        while not self._stop.is_set():
+            try:
+                conn, _ = self._listener.accept()
+            except TimeoutError:
+                continue
+            thread = threading.Thread(target=self._listen, args=(conn,), daemon=True)
+            self._threads.append(thread)
+            thread.start()
+
+    def _listen(self, conn: socket.socket) -> None:
+        conn.settimeout(0.05)
+        pending = b""
+        with conn:
+            while not self._stop.is_set():
+                try:
+                    data = conn.recv(65536)
+                except TimeoutError:
+                    continue
+                except OSError:
+                    return
+                if not data:
+                    return
+                pending += data
+                *messages, pending = pending.split(b"\n")
+                self.received += [m.decode(errors="replace").strip() for m in messages]
 
 
 def run_cli(

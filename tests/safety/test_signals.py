@@ -41,7 +41,12 @@ def lines(path) -> int:
     return len(path.read_text().splitlines()) if path.exists() else 0
 
 
-SIGNALS = [(signal.SIGINT, "Ctrl-C"), (signal.SIGTERM, "SIGTERM")]
+SIGNALS = [
+    (signal.SIGINT, "Ctrl-C"),
+    (signal.SIGTERM, "SIGTERM"),
+    (signal.SIGHUP, "SIGHUP"),  # the terminal closed, an SSH session dropped
+    (signal.SIGQUIT, "SIGQUIT"),  # Ctrl-\ at the terminal
+]
 
 
 @pytest.mark.sim
@@ -73,6 +78,8 @@ def test_a_signal_mid_sweep_leaves_the_output_off_and_keeps_the_data(tmp_path, s
     assert read_output(sim.resource) == "0"  # a second, independent connection
     db = sqlite3.connect(out / "results.sqlite")
     assert db.execute("SELECT status FROM run").fetchone()[0] == "interrupted"
+    ended = db.execute("SELECT status, ended FROM session").fetchone()
+    assert ended == ("interrupted", last.removeprefix("ccbench: "))  # the record says how
     verdicts = db.execute("SELECT verdict, reasons FROM device ORDER BY channel").fetchall()
     assert len(verdicts) >= 2 and verdicts[-1][0] == "aborted"
     assert why in verdicts[-1][1] or "operator" in verdicts[-1][1]
