@@ -1,7 +1,8 @@
 """The run folder: a journal line per device (flushed and fsynced) first, then SQLite, then CSV.
 
 Layout of a run folder:
-    run.lock         held (fcntl) by the run using the folder; names its pid and host
+    run.lock         held (flock, with the folder itself) by the run using it; names its pid
+                     and host
     manifest.json    the run: recipe and station text, hash, instrument, software, sessions
     journal.jsonl    one JSON object per device, the first place a result is written
     results.sqlite   tables run, session, device, point (schema version in PRAGMA user_version)
@@ -216,6 +217,7 @@ class RunStore:
         entry["measured"] = utc_now()
         entry["pass_started"] = self.pass_started or entry["measured"]
         entry["points"] = _points(curve)
+        self.lock.check()  # another run may own the folder now: write nothing then
         try:
             entry = {"seq": self.journal.append(entry), **entry}
         except OSError as exc:
@@ -223,6 +225,7 @@ class RunStore:
                 f"{self.folder}: result of {curve.device} could not be written "
                 f"({exc.strerror or exc}); everything before it is kept"
             ) from None
+        self.lock.check(f"the result of {curve.device} in the journal only")
         try:
             self._database_and_csv(entry)
         except (OSError, sqlite3.Error) as exc:
@@ -259,6 +262,10 @@ class RunStore:
     def finish(self, status: str, finished: str, identity: str = "") -> str:
         """Record the end of this session and close the folder (the lock goes last). Never
         raises: it runs on every way out; a problem is returned as text for the screen."""
+        lost = self.lock.lost()
+        if lost:  # the folder may be another run's now: its record is not ours to write
+            self._close()
+            return f"{self.folder}: end of run not recorded (the run's lock was taken away: {lost})"
         ends = {"status": status, "finished": finished}
         if identity:
             ends["identity"] = identity
@@ -280,6 +287,7 @@ class RunStore:
         return next((p for p in problems if p), "")
 
     def _write_meta(self, write: Any) -> None:
+        self.lock.check()
         problem = self._try(write)
         if problem:
             raise StoreError(f"{self.folder}: run record could not be written ({problem})")
