@@ -7,6 +7,10 @@ our typed errors at one chokepoint (`VisaTransport._mapped`). Two more transport
 every exchange.
 
 pyvisa-py facts this module works around (measured, see SCPI.md):
+- a reply's timeout restarts with every chunk that arrives (pyvisa-py checks its deadline only when
+  a wait for data ends empty), so a reply dribbled a byte at a time never times out: the transport
+  reads a reply into pyvisa-py's buffer itself, against one deadline for the whole reply, and
+  pyvisa-py then finds it complete there (`_fill_line`, `_fill_bytes`);
 - a late reply after a timeout would be read as the answer to the next query, for good: after a
   timeout the transport is marked out of step and resynchronised before its next query (drain,
   then *IDN? on the same link, waiting up to RESYNC_WAIT_S for its answer behind any late ones:
@@ -202,8 +206,7 @@ class VisaTransport:
         dtype = block_dtype(datatype, big_endian)
         self.write(self._in_step(message))
         with self._mapped(message):
-            self._await_reply(message)
-            return self._read_block(dtype)
+            return self._read_block(message, dtype, time.monotonic() + self._timeout_s)
 
     def clear(self) -> None:
         """Drop everything the instrument sent and nobody read, then check the stream is in step."""
@@ -282,20 +285,39 @@ class VisaTransport:
         return message
 
     def _read(self, command: str, wait_s: float | None = None) -> str:
-        self._await_reply(command, wait_s)
+        """One reply line, complete within `wait_s` (the timeout) from now, however it comes."""
+        deadline = time.monotonic() + (self._timeout_s if wait_s is None else wait_s)
+        self._fill_line(command, deadline)
         return self._inst.read().removesuffix("\r")
 
-    def _await_reply(self, command: str, wait_s: float | None = None) -> None:
-        """Wait on the socket itself, so a peer that closed is seen at once, not after a timeout."""
-        if self._socket is None or getattr(self._session, "_pending_buffer", None):
+    def _fill_line(self, command: str, deadline: float) -> None:
+        """Read until pyvisa-py's buffer holds a whole line (its own read then ends at once)."""
+        if self._socket is None or b"\n" in self._session._pending_buffer:
+            return  # not a socket: pyvisa's own timeout, which restarts with each chunk
+        while b"\n" not in self._more(command, deadline):
+            pass
+
+    def _fill_bytes(self, command: str, deadline: float, count: int) -> None:
+        """Read until pyvisa-py's buffer holds `count` bytes."""
+        if self._socket is None:
             return
-        wait = self._timeout_s if wait_s is None else wait_s
-        ready, _, _ = select.select([self._socket], [], [], wait)
-        if not ready:
+        while len(self._session._pending_buffer) < count:
+            self._more(command, deadline)
+
+    def _more(self, command: str, deadline: float) -> bytes:
+        """The next chunk from the socket, into pyvisa-py's buffer; a timeout at `deadline`, a
+        closed peer at once (pyvisa-py alone would spin until the timeout)."""
+        assert self._socket is not None
+        left = deadline - time.monotonic()
+        if left <= 0 or not select.select([self._socket], [], [], left)[0]:
             raise self._after_timeout(command)
-        lost = self._link_lost()
-        if lost:
-            raise InstrumentDisconnected(self.resource, command, lost)
+        chunk = self._socket.recv(65536)
+        if not chunk:
+            raise InstrumentDisconnected(
+                self.resource, command, "the instrument closed the connection"
+            )
+        self._session._pending_buffer.extend(chunk)
+        return chunk
 
     def _link_lost(self) -> str | None:
         """Why the TCP link is gone, or None while it looks alive (a peek, never a wait)."""
@@ -312,12 +334,15 @@ class VisaTransport:
             return f"connection lost ({exc.strerror or exc})"
         return None
 
-    def _read_block(self, dtype: np.dtype) -> np.ndarray:
+    def _read_block(self, command: str, dtype: np.dtype, deadline: float) -> np.ndarray:
         # Reads the payload with the termchar off, so LF bytes in it do not cost a read each.
+        self._fill_bytes(command, deadline, 2)
         head = self._inst.read_bytes(2)
         digits = int(head[1:2]) if head[:1] == b"#" and head[1:2].isdigit() else 0
+        self._fill_bytes(command, deadline, digits)
         length_text = self._inst.read_bytes(digits) if digits else b""
         _, length = parse_block_header(head + length_text)
+        self._fill_bytes(command, deadline, length + 1)
         attribute = constants.ResourceAttribute.termchar_enabled
         self._inst.set_visa_attribute(attribute, constants.VI_FALSE)
         try:
@@ -354,13 +379,15 @@ class VisaTransport:
                 raise InstrumentError(self.resource, command, detail, hint=hint)
 
     def _drain(self, command: str) -> None:
-        """Read and drop input until it has been quiet for 0.1 s (bounded by the timeout)."""
+        """Read and drop input until it has been quiet for 0.1 s (for at most RESYNC_WAIT_S)."""
         if self._socket is None:
             self._inst.clear()
             return
         dropped = bytes(self._session._pending_buffer)
         self._session._pending_buffer.clear()
-        deadline = time.monotonic() + max(self._timeout_s, 2 * _QUIET_S)
+        # A reply still dribbling in when its query timed out is drained to its end, within
+        # the time a resync may take, like a late one; only output that never pauses is refused.
+        deadline = time.monotonic() + max(self._timeout_s, RESYNC_WAIT_S)
         while select.select([self._socket], [], [], _QUIET_S)[0]:
             chunk = self._socket.recv(65536)
             if not chunk:
