@@ -23,6 +23,7 @@ import fcntl
 import json
 import os
 import platform
+import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
 from typing import IO, Any
@@ -192,6 +193,59 @@ def _holder(folder: Path) -> str:
 
 def holds_run(folder: Path) -> bool:
     return any((folder / name).exists() for name in RUN_FILES)
+
+
+def never_reached(folder: Path) -> dict[str, Any] | None:
+    """The manifest of the run in `folder` if that run never reached an instrument (so starting
+    it again there loses nothing), else None. Never reached: a manifest of ours whose sessions
+    name no instrument identity, an empty journal, no device in the database and nothing in any
+    SCPI log (an instrument that answered *IDN? leaves its exchanges there)."""
+    try:
+        run = read_manifest(folder)
+    except StoreError:
+        return None
+    sessions = run.get("sessions")
+    if not isinstance(sessions, list) or any(_named_instrument(s) for s in [run, *sessions]):
+        return None
+    if _has_bytes(folder / "journal.jsonl") or _stored_devices(folder / "results.sqlite"):
+        return None
+    if any(_has_bytes(log) for log in folder.glob("scpi*.log")):
+        return None
+    return run
+
+
+def clear_run(folder: Path) -> None:
+    """Remove the files of a run that never reached its instrument (`never_reached`)."""
+    extra = ("results.sqlite-wal", "results.sqlite-shm", "results.sqlite-journal", "devices.csv")
+    for name in (*RUN_FILES, *extra, MANIFEST_FILE + ".new", "devices.csv.new"):
+        with contextlib.suppress(FileNotFoundError):
+            (folder / name).unlink()
+    _sync_folder(folder)
+
+
+def _named_instrument(record: Any) -> bool:
+    return not isinstance(record, dict) or bool(record.get("identity"))
+
+
+def _has_bytes(path: Path) -> bool:
+    try:
+        return path.stat().st_size > 0
+    except FileNotFoundError:
+        return False
+
+
+def _stored_devices(path: Path) -> int:
+    """Devices in a run database (1 when it cannot be read: then it is not ours to remove)."""
+    if not path.exists():
+        return 0
+    try:
+        db = sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)
+        try:
+            return int(db.execute("SELECT COUNT(*) FROM device").fetchone()[0])
+        finally:
+            db.close()
+    except sqlite3.Error:
+        return 1
 
 
 def write_manifest(folder: Path, manifest: dict[str, Any]) -> None:

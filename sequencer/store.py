@@ -43,7 +43,9 @@ from .resume import (
 from .runfolder import (
     FolderLock,
     FolderRefused,
+    clear_run,
     holds_run,
+    never_reached,
     read_manifest,
     unwritable,
     utc_now,
@@ -128,12 +130,15 @@ class RunStore:
         """A new run in `folder`; refused when the folder holds one already."""
         lock = FolderLock.take(folder)
         try:
-            if holds_run(folder):
+            if not holds_run(folder):
+                return cls._new(folder, lock, manifest)
+            unreached = never_reached(folder)
+            if unreached is None:
                 raise FolderRefused(
                     folder,
                     "already holds a run; add --resume to continue it, or choose another --out",
                 )
-            return cls._new(folder, lock, manifest)
+            return cls._again(folder, lock, manifest, unreached)
         except BaseException:
             lock.release()
             raise
@@ -157,8 +162,28 @@ class RunStore:
             raise
 
     @classmethod
-    def _new(cls, folder: Path, lock: FolderLock, manifest: dict[str, Any]) -> RunStore:
-        run = {"uid": uuid.uuid4().hex, **manifest, "status": "running"}
+    def _again(
+        cls, folder: Path, lock: FolderLock, manifest: dict[str, Any], unreached: dict[str, Any]
+    ) -> RunStore:
+        """A new run in place of one that never reached its instrument (its uid kept, so a
+        shared database that saw it sees one run)."""
+        try:
+            clear_run(folder)
+        except OSError as exc:
+            raise unwritable(folder, exc) from None
+        store = cls._new(folder, lock, manifest, uid=str(unreached.get("uid") or ""))
+        note = (
+            f"{folder}: held a run that never reached its instrument (nothing measured); "
+            "started it again there"
+        )
+        store.progress = replace(store.progress, notes=(note,))
+        return store
+
+    @classmethod
+    def _new(
+        cls, folder: Path, lock: FolderLock, manifest: dict[str, Any], uid: str = ""
+    ) -> RunStore:
+        run = {"uid": uid or uuid.uuid4().hex, **manifest, "status": "running"}
         session = session_info(1, manifest, run)
         run["sessions"] = [session]
         try:
