@@ -227,7 +227,9 @@ class RunStore:
         return store
 
     def begin_pass(self, pass_no: int, started: str | None = None) -> None:
-        """The devices stored from now on belong to pass `pass_no`, which began at `started`."""
+        """The devices stored from now on belong to pass `pass_no`, which began at `started`.
+        Refused (LockLost) once the folder's lock was taken away, before a device is measured."""
+        self.lock.check()
         self.pass_no = pass_no
         self.pass_started = started or utc_now()
 

@@ -87,6 +87,8 @@ def test_a_store_whose_lock_was_taken_writes_nothing_more(tmp_path, recipe_file)
     assert "stopped before writing" in str(caught.value)
     with pytest.raises(LockLost):
         store.set_identity("TCPIP0::127.0.0.1::5025::SOCKET", "TEST,SMU,1,1")
+    with pytest.raises(LockLost):
+        store.begin_pass(2)  # a pass does not begin: nothing is measured to be thrown away
     problem = store.finish("failed", "2026-05-04T22:05:00.000+00:00")
     assert problem.endswith(f"the run's lock was taken away: {LOCK_FILE} was removed)")
     for name, data in written.items():  # the manifest, too: the run's end is not ours to write
@@ -110,6 +112,7 @@ def test_two_real_runs_never_write_one_folder_when_run_lock_is_deleted(tmp_path)
             break
     assert first.poll() is None, "".join(seen)
     (out / LOCK_FILE).unlink()
+    readings = _readings(out)
     second = _run(recipe, out, "--resume")
     second_screen = second.communicate(timeout=120)[0]
     first_screen = "".join(seen) + first.communicate(timeout=120)[0]
@@ -119,6 +122,7 @@ def test_two_real_runs_never_write_one_folder_when_run_lock_is_deleted(tmp_path)
     assert "output off (read back from the instrument)" in first_screen.splitlines()[-1]
     if second.returncode == 2:  # refused while the first held the folder
         assert "in use by another run" in second_screen, second_screen
+        assert _readings(out) == readings  # the first began no pass: nothing measured in vain
     else:  # came in after the first had stopped: it finished the run alone
         assert second.returncode == 0, second_screen
     entries = [json.loads(line) for line in (out / "journal.jsonl").read_text().splitlines()]
@@ -159,3 +163,8 @@ def test_a_lock_taken_between_the_journal_and_the_database_stops_there(tmp_path,
     db = sqlite3.connect(folder / "results.sqlite")
     assert db.execute("SELECT COUNT(*) FROM device").fetchone() == (0,)  # --resume catches up
     db.close()
+
+
+def _readings(out: Path) -> int:
+    """Readings taken so far, as the SCPI log shows them (each exchange is a line)."""
+    return sum("READ?" in line for line in (out / "scpi.log").read_text().splitlines())
