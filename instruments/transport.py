@@ -7,20 +7,29 @@ our typed errors at one chokepoint (`VisaTransport._mapped`). Two more transport
 every exchange.
 
 pyvisa-py facts this module works around (measured, see SCPI.md):
+- a reply's timeout restarts with every chunk that arrives (pyvisa-py checks its deadline only when
+  a wait for data ends empty), so a reply dribbled a byte at a time never times out: the transport
+  reads a reply into pyvisa-py's buffer itself, against one deadline for the whole reply, and
+  pyvisa-py then finds it complete there (`_fill_line`, `_fill_bytes`);
 - a late reply after a timeout would be read as the answer to the next query, for good: after a
   timeout the transport is marked out of step and resynchronised before its next query (drain,
   then *IDN? on the same link, waiting up to RESYNC_WAIT_S for its answer behind any late ones:
   the same link keeps every command sent meanwhile in order);
 - a peer that closed the socket looks like a slow instrument (the read spins until the timeout):
   a query first waits for the socket itself and peeks, so a closed peer is reported at once;
-- a refused connection opens fine and only fails on the first write: `open_visa` asks `*IDN?`.
+- a refused connection opens fine and only fails on the first write: `open_visa` asks `*IDN?`;
+- a connect that times out is reported as a bare status number (-1073807339): `_unreached` says
+  in words what did not answer where.
 """
 
 from __future__ import annotations
 
+import errno
 import functools
+import ipaddress
 import logging
 import math
+import re
 import select
 import socket
 import time
@@ -122,6 +131,9 @@ def _resource_manager() -> pyvisa.ResourceManager:
 def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
     """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers *IDN?."""
     millis = round(check_timeout(timeout_s) * 1000)
+    problem = resource_problem(resource)
+    if problem:
+        raise InstrumentError(resource, None, f"the resource {problem}", hint=RESOURCE_HINT)
     try:
         inst = _resource_manager().open_resource(
             resource,
@@ -131,7 +143,7 @@ def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
             open_timeout=millis,
         )
     except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
-        raise _open_error(resource, exc) from exc
+        raise _open_error(resource, exc, timeout_s) from exc
     transport = VisaTransport(inst, resource, timeout_s)
     try:
         transport.learn_probe()
@@ -141,14 +153,122 @@ def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
     return transport
 
 
-def _open_error(resource: str, exc: Exception) -> InstrumentError:
-    hint = "write it like TCPIP0::127.0.0.1::5025::SOCKET (SOCKET and INSTR in upper case)"
+RESOURCE_HINT = "write it like TCPIP0::192.0.2.17::5025::SOCKET (SOCKET and INSTR in upper case)"
+_HOST_LABEL = re.compile(r"[A-Za-z0-9]([A-Za-z0-9-]{0,61}[A-Za-z0-9])?")  # RFC 1123 host names
+
+
+def resource_problem(resource: str) -> str:
+    """Why `resource` cannot name an instrument ('' when it can): pyvisa's own grammar, then the
+    host and port a TCP resource needs. Reads the text only; nothing is opened."""
+    if not resource.strip():
+        return "is empty"
+    try:
+        parsed = rname.parse_resource_name(resource)
+    except rname.InvalidResourceName as exc:
+        return f"is not a VISA resource string ({_parse_why(exc)})"
+    host = getattr(parsed, "host_address", None)
+    if isinstance(host, str) and _host_problem(host):
+        return _host_problem(host)
+    port = getattr(parsed, "port", None)
+    if isinstance(parsed, rname.TCPIPSocket) and not _is_port(port):
+        return f"has the port {port!r}; a TCP port is a whole number from 1 to 65535"
+    device = getattr(parsed, "lan_device_name", "")
+    if isinstance(parsed, rname.TCPIPInstr) and device.isdigit():
+        return f"names the LAN device {device}, which looks like a port (a socket ends in ::SOCKET)"
+    return ""
+
+
+def _parse_why(exc: Exception) -> str:
+    text = str(exc)
+    if "The syntax is" in text:
+        return "the syntax is" + text.split("The syntax is", 1)[1].rstrip(".")
+    return text.rpartition(": ")[2] or text
+
+
+def _host_problem(host: str) -> str:
+    if all(c.isdigit() or c == "." for c in host):
+        try:
+            ipaddress.IPv4Address(host)
+        except ValueError:
+            return f"has the host {host!r}, which is not an IPv4 address"
+        return ""
+    labels = host.rstrip(".").split(".")
+    if len(host) > 253 or not all(_HOST_LABEL.fullmatch(label) for label in labels):
+        return f"has the host {host!r}, which is neither an IPv4 address nor a host name"
+    return ""
+
+
+def _is_port(port: object) -> bool:
+    return isinstance(port, str) and port.isdigit() and 1 <= int(port) <= 65535
+
+
+def _open_error(resource: str, exc: Exception, timeout_s: float) -> InstrumentError:
     if isinstance(exc, rname.InvalidResourceName):
-        return InstrumentError(resource, None, f"not a valid resource string: {exc}", hint=hint)
+        detail = f"not a valid resource string: {exc}"
+        return InstrumentError(resource, None, detail, hint=RESOURCE_HINT)
     if isinstance(exc, ValueError):  # GPIB/USB without drivers, or a resource class in lower case
         detail = f"cannot open this kind of resource: {exc}"
-        return InstrumentError(resource, None, detail, hint=f"install its driver, or {hint}")
-    return InstrumentDisconnected(resource, None, f"could not open: {exc}")
+        hint = f"install its driver, or {RESOURCE_HINT}"
+        return InstrumentError(resource, None, detail, hint=hint)
+    return InstrumentDisconnected(resource, None, _unreached(resource, exc, timeout_s))
+
+
+def _where(resource: str) -> str:
+    """The address a resource string points at, in words: '192.0.2.17 port 5025'."""
+    try:
+        parsed = rname.parse_resource_name(resource)
+    except rname.InvalidResourceName:
+        return resource
+    host, port = getattr(parsed, "host_address", None), getattr(parsed, "port", None)
+    if host is None:
+        return resource
+    return f"{host} port {port}" if isinstance(parsed, rname.TCPIPSocket) else host
+
+
+_STATUS = re.compile(r"-?\b\d{9,10}\b")  # a VISA status code: 32-bit, errors negative
+_ERRNO = re.compile(r"\[Errno (-?\d+)\] ?(.*)")
+_ERRNO_WORDS = {  # what a failed connect's errno means at the bench
+    errno.ECONNREFUSED: "connection refused: the address answers, but nothing listens on that port",
+    errno.ENETUNREACH: "network unreachable: no route from this computer to that address",
+    errno.EHOSTUNREACH: "host unreachable: no route from this computer to that address",
+    errno.ETIMEDOUT: "no answer at all: the address may be wrong or the instrument off",
+}
+_NAME_ERRNOS = {  # the host name itself failed: nothing was asked to answer
+    socket.EAI_NONAME: "is not a known host name",
+    socket.EAI_AGAIN: "could not be looked up (the name service did not answer)",
+}
+
+
+def _unreached(resource: str, exc: Exception, timeout_s: float) -> str:
+    """What a failed open means, in words, instead of a status number or errno."""
+    text = str(exc).removeprefix("could not connect: ")
+    code, said = _errno_of(exc, text)
+    if code in _NAME_ERRNOS:
+        host = _where(resource).partition(" port ")[0]
+        return f"{host} {_NAME_ERRNOS[code]}: check its spelling, or give its IPv4 address"
+    if code is not None:
+        return f"nothing answered at {_where(resource)} ({_ERRNO_WORDS.get(code, said)})"
+    status = _STATUS.search(text)
+    if status and int(status.group()) == constants.StatusCode.error_timeout:
+        return (
+            f"nothing answered at {_where(resource)} within {timeout_s:g} s (no connection was "
+            "made: the address may be wrong, the instrument off or unplugged, or a firewall "
+            "in between)"
+        )
+    if status and int(status.group()) in _VISA_WORDS:
+        abbreviation, description = _VISA_WORDS[int(status.group())]
+        return f"could not connect to {_where(resource)}: {description} ({abbreviation})"
+    return f"could not connect to {_where(resource)}: {text}"
+
+
+def _errno_of(exc: Exception, text: str) -> tuple[int | None, str]:
+    if isinstance(exc, OSError) and exc.errno is not None:
+        return exc.errno, exc.strerror or text
+    found = _ERRNO.search(text)  # pyvisa-py wraps the OSError's text in a bare Exception
+    return (int(found.group(1)), found.group(2)) if found else (None, text)
+
+
+_VISA_WORDS = {int(k): words for k, words in visa_errors.completion_and_error_messages.items()}
 
 
 class VisaTransport:
@@ -202,8 +322,7 @@ class VisaTransport:
         dtype = block_dtype(datatype, big_endian)
         self.write(self._in_step(message))
         with self._mapped(message):
-            self._await_reply(message)
-            return self._read_block(dtype)
+            return self._read_block(message, dtype, time.monotonic() + self._timeout_s)
 
     def clear(self) -> None:
         """Drop everything the instrument sent and nobody read, then check the stream is in step."""
@@ -282,20 +401,39 @@ class VisaTransport:
         return message
 
     def _read(self, command: str, wait_s: float | None = None) -> str:
-        self._await_reply(command, wait_s)
+        """One reply line, complete within `wait_s` (the timeout) from now, however it comes."""
+        deadline = time.monotonic() + (self._timeout_s if wait_s is None else wait_s)
+        self._fill_line(command, deadline)
         return self._inst.read().removesuffix("\r")
 
-    def _await_reply(self, command: str, wait_s: float | None = None) -> None:
-        """Wait on the socket itself, so a peer that closed is seen at once, not after a timeout."""
-        if self._socket is None or getattr(self._session, "_pending_buffer", None):
+    def _fill_line(self, command: str, deadline: float) -> None:
+        """Read until pyvisa-py's buffer holds a whole line (its own read then ends at once)."""
+        if self._socket is None or b"\n" in self._session._pending_buffer:
+            return  # not a socket: pyvisa's own timeout, which restarts with each chunk
+        while b"\n" not in self._more(command, deadline):
+            pass
+
+    def _fill_bytes(self, command: str, deadline: float, count: int) -> None:
+        """Read until pyvisa-py's buffer holds `count` bytes."""
+        if self._socket is None:
             return
-        wait = self._timeout_s if wait_s is None else wait_s
-        ready, _, _ = select.select([self._socket], [], [], wait)
-        if not ready:
+        while len(self._session._pending_buffer) < count:
+            self._more(command, deadline)
+
+    def _more(self, command: str, deadline: float) -> bytes:
+        """The next chunk from the socket, into pyvisa-py's buffer; a timeout at `deadline`, a
+        closed peer at once (pyvisa-py alone would spin until the timeout)."""
+        assert self._socket is not None
+        left = deadline - time.monotonic()
+        if left <= 0 or not select.select([self._socket], [], [], left)[0]:
             raise self._after_timeout(command)
-        lost = self._link_lost()
-        if lost:
-            raise InstrumentDisconnected(self.resource, command, lost)
+        chunk = self._socket.recv(65536)
+        if not chunk:
+            raise InstrumentDisconnected(
+                self.resource, command, "the instrument closed the connection"
+            )
+        self._session._pending_buffer.extend(chunk)
+        return chunk
 
     def _link_lost(self) -> str | None:
         """Why the TCP link is gone, or None while it looks alive (a peek, never a wait)."""
@@ -307,17 +445,21 @@ class VisaTransport:
         except BlockingIOError:
             return None  # alive, nothing pending
         except ConnectionRefusedError:
-            return "connection refused: nothing listens at that address and port"
+            refused = _ERRNO_WORDS[errno.ECONNREFUSED]
+            return f"nothing answered at {_where(self.resource)} ({refused})"
         except OSError as exc:  # reset, or our own socket closed
             return f"connection lost ({exc.strerror or exc})"
         return None
 
-    def _read_block(self, dtype: np.dtype) -> np.ndarray:
+    def _read_block(self, command: str, dtype: np.dtype, deadline: float) -> np.ndarray:
         # Reads the payload with the termchar off, so LF bytes in it do not cost a read each.
+        self._fill_bytes(command, deadline, 2)
         head = self._inst.read_bytes(2)
         digits = int(head[1:2]) if head[:1] == b"#" and head[1:2].isdigit() else 0
+        self._fill_bytes(command, deadline, digits)
         length_text = self._inst.read_bytes(digits) if digits else b""
         _, length = parse_block_header(head + length_text)
+        self._fill_bytes(command, deadline, length + 1)
         attribute = constants.ResourceAttribute.termchar_enabled
         self._inst.set_visa_attribute(attribute, constants.VI_FALSE)
         try:
@@ -354,13 +496,15 @@ class VisaTransport:
                 raise InstrumentError(self.resource, command, detail, hint=hint)
 
     def _drain(self, command: str) -> None:
-        """Read and drop input until it has been quiet for 0.1 s (bounded by the timeout)."""
+        """Read and drop input until it has been quiet for 0.1 s (for at most RESYNC_WAIT_S)."""
         if self._socket is None:
             self._inst.clear()
             return
         dropped = bytes(self._session._pending_buffer)
         self._session._pending_buffer.clear()
-        deadline = time.monotonic() + max(self._timeout_s, 2 * _QUIET_S)
+        # A reply still dribbling in when its query timed out is drained to its end, within
+        # the time a resync may take, like a late one; only output that never pauses is refused.
+        deadline = time.monotonic() + max(self._timeout_s, RESYNC_WAIT_S)
         while select.select([self._socket], [], [], _QUIET_S)[0]:
             chunk = self._socket.recv(65536)
             if not chunk:

@@ -23,10 +23,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from .fields import Fields
+from .fields import Fields, show
 from .yamlsource import Source
 
 DEFAULT_DIALECT = "scpi1999"
+SIM_RESOURCE = "sim"  # the embedded simulator (instruments.SIM_RESOURCE)
 MAX_INSTRUMENTS = 32
 
 
@@ -96,7 +97,7 @@ def _check_against_earlier(source: Source, index: int, specs: list[InstrumentSpe
 
 def _settings(f: Fields, folder: Path) -> tuple[str, str, float, float]:
     """resource, dialect (a path made absolute), timeout and line frequency of one entry."""
-    resource = f.text("resource")
+    resource = _resource(f)
     dialect = f.text("dialect", DEFAULT_DIALECT)
     if dialect != DEFAULT_DIALECT and not Path(dialect).is_absolute():
         dialect = str((folder / dialect).resolve())
@@ -105,6 +106,19 @@ def _settings(f: Fields, folder: Path) -> tuple[str, str, float, float]:
     line_hz = f.quantity("line_frequency", "frequency", "50 Hz")
     f.check(line_hz in (50.0, 60.0), "line_frequency", f"must be 50 Hz or 60 Hz (got {line_hz})")
     return resource, dialect, timeout_s, line_hz
+
+
+def _resource(f: Fields) -> str:
+    """`sim`, or text that can name an instrument (checked before anything is opened)."""
+    value = f.raw("resource")
+    if value == SIM_RESOURCE:
+        return value
+    from instruments.transport import RESOURCE_HINT, resource_problem  # no I/O: reads the text
+
+    problem = resource_problem(value) if isinstance(value, str) else "is not text"
+    hint = f"{RESOURCE_HINT}, or {SIM_RESOURCE} for the simulator"
+    f.check(not problem, "resource", f"{problem}: {hint} (got {show(value)})")
+    return value
 
 
 def _timing(f: Fields) -> tuple[float | None, float | None]:

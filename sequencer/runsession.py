@@ -69,7 +69,10 @@ def open_store(
     if args.resume and args.out is None:
         raise RecipeError("command line", None, "--resume", "needs --out, the run's folder")
     if not args.resume:
-        return RunStore.create(out, manifest)
+        store = RunStore.create(out, manifest)
+        for note in store.progress.notes:  # a folder left by a run that never reached its SMU
+            console.print(f"[yellow]note:[/] {note}", soft_wrap=True)
+        return store
     store = RunStore.resume(out, manifest, accept_changed_recipe=args.accept_changed_recipe)
     for note in store.progress.notes:
         console.print(f"[yellow]resume:[/] {note}", soft_wrap=True)

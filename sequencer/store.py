@@ -1,7 +1,8 @@
 """The run folder: a journal line per device (flushed and fsynced) first, then SQLite, then CSV.
 
 Layout of a run folder:
-    run.lock         held (fcntl) by the run using the folder; names its pid and host
+    run.lock         held (flock, with the folder itself) by the run using it; names its pid
+                     and host
     manifest.json    the run: recipe and station text, hash, instrument, software, sessions
     journal.jsonl    one JSON object per device, the first place a result is written
     results.sqlite   tables run, session, device, point (schema version in PRAGMA user_version)
@@ -42,7 +43,9 @@ from .resume import (
 from .runfolder import (
     FolderLock,
     FolderRefused,
+    clear_run,
     holds_run,
+    never_reached,
     read_manifest,
     unwritable,
     utc_now,
@@ -127,12 +130,15 @@ class RunStore:
         """A new run in `folder`; refused when the folder holds one already."""
         lock = FolderLock.take(folder)
         try:
-            if holds_run(folder):
+            if not holds_run(folder):
+                return cls._new(folder, lock, manifest)
+            unreached = never_reached(folder)
+            if unreached is None:
                 raise FolderRefused(
                     folder,
                     "already holds a run; add --resume to continue it, or choose another --out",
                 )
-            return cls._new(folder, lock, manifest)
+            return cls._again(folder, lock, manifest, unreached)
         except BaseException:
             lock.release()
             raise
@@ -156,8 +162,28 @@ class RunStore:
             raise
 
     @classmethod
-    def _new(cls, folder: Path, lock: FolderLock, manifest: dict[str, Any]) -> RunStore:
-        run = {"uid": uuid.uuid4().hex, **manifest, "status": "running"}
+    def _again(
+        cls, folder: Path, lock: FolderLock, manifest: dict[str, Any], unreached: dict[str, Any]
+    ) -> RunStore:
+        """A new run in place of one that never reached its instrument (its uid kept, so a
+        shared database that saw it sees one run)."""
+        try:
+            clear_run(folder)
+        except OSError as exc:
+            raise unwritable(folder, exc) from None
+        store = cls._new(folder, lock, manifest, uid=str(unreached.get("uid") or ""))
+        note = (
+            f"{folder}: held a run that never reached its instrument (nothing measured); "
+            "started it again there"
+        )
+        store.progress = replace(store.progress, notes=(note,))
+        return store
+
+    @classmethod
+    def _new(
+        cls, folder: Path, lock: FolderLock, manifest: dict[str, Any], uid: str = ""
+    ) -> RunStore:
+        run = {"uid": uid or uuid.uuid4().hex, **manifest, "status": "running"}
         session = session_info(1, manifest, run)
         run["sessions"] = [session]
         try:
@@ -201,7 +227,9 @@ class RunStore:
         return store
 
     def begin_pass(self, pass_no: int, started: str | None = None) -> None:
-        """The devices stored from now on belong to pass `pass_no`, which began at `started`."""
+        """The devices stored from now on belong to pass `pass_no`, which began at `started`.
+        Refused (LockLost) once the folder's lock was taken away, before a device is measured."""
+        self.lock.check()
         self.pass_no = pass_no
         self.pass_started = started or utc_now()
 
@@ -216,6 +244,7 @@ class RunStore:
         entry["measured"] = utc_now()
         entry["pass_started"] = self.pass_started or entry["measured"]
         entry["points"] = _points(curve)
+        self.lock.check()  # another run may own the folder now: write nothing then
         try:
             entry = {"seq": self.journal.append(entry), **entry}
         except OSError as exc:
@@ -223,6 +252,7 @@ class RunStore:
                 f"{self.folder}: result of {curve.device} could not be written "
                 f"({exc.strerror or exc}); everything before it is kept"
             ) from None
+        self.lock.check(f"the result of {curve.device} in the journal only")
         try:
             self._database_and_csv(entry)
         except (OSError, sqlite3.Error) as exc:
@@ -260,6 +290,10 @@ class RunStore:
         """Record the end of this session and close the folder (the lock goes last). `ended`:
         how the session ended, in words (the last line on screen). Never raises: it runs on
         every way out; a problem is returned as text for the screen."""
+        lost = self.lock.lost()
+        if lost:  # the folder may be another run's now: its record is not ours to write
+            self._close()
+            return f"{self.folder}: end of run not recorded (the run's lock was taken away: {lost})"
         ends = {"status": status, "finished": finished}
         if identity:
             ends["identity"] = identity
@@ -282,6 +316,7 @@ class RunStore:
         return next((p for p in problems if p), "")
 
     def _write_meta(self, write: Any) -> None:
+        self.lock.check()
         problem = self._try(write)
         if problem:
             raise StoreError(f"{self.folder}: run record could not be written ({problem})")

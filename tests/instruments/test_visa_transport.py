@@ -18,7 +18,7 @@ from instruments.errors import (
     ReplyError,
 )
 from instruments.scpi import make_block
-from instruments.transport import PROBE, Transport, open_visa
+from instruments.transport import PROBE, Transport, open_visa, resource_problem
 
 IDN = b"TEST,SOCKET-SMU,0001,1.0\n"
 LF_RICH = np.full(10_000, 0x0A0A0A0A, dtype="<u4").view("<f4")  # 40 kB, all bytes 0x0A
@@ -172,3 +172,34 @@ def test_timeout_can_be_changed_but_not_to_infinity(transport) -> None:
     with pytest.raises(ValueError):
         transport.timeout_s = math.inf
     assert transport.timeout_s == 1.5
+
+
+@pytest.mark.parametrize(  # the grammar's examples, SCPI.md section 4 [D, pyvisa names]
+    "resource",
+    [
+        "TCPIP::127.0.0.1::5025::SOCKET",
+        "TCPIP0::192.0.2.17::5025::SOCKET",
+        "TCPIP0::smu-b2.lab.example::5025::SOCKET",
+        "TCPIP::10.0.0.5::INSTR",
+        "TCPIP0::host::hislip0,4880::INSTR",
+        "ASRL1::INSTR",
+        "ASRL/dev/ttyUSB0::INSTR",
+        "GPIB0::24::3::INSTR",
+        "USB0::0x1234::0x5678::SN001::INSTR",
+    ],
+)
+def test_resource_strings_of_every_kind_pass_the_check(resource: str) -> None:
+    assert resource_problem(resource) == ""
+
+
+@pytest.mark.parametrize(
+    "resource",
+    ["", "   ", "sim", "%%%not::a::resource", "12345", "TCPIP0::127.0.0.1::5025::socket",
+     "TCPIP0::256.0.0.1::5025::SOCKET", "TCPIP0::1.2.3.4::0::SOCKET",
+     "TCPIP0::1.2.3.4::http::SOCKET", "TCPIP0::bad_host!::5025::SOCKET",
+     "TCPIP0::127.0.0.1::5025"],
+)  # fmt: skip
+def test_text_that_cannot_name_an_instrument_is_refused_before_opening(resource: str) -> None:
+    assert resource_problem(resource)
+    with pytest.raises(InstrumentError, match="SOCKET and INSTR in upper case"):
+        open_visa(resource, timeout_s=0.5)

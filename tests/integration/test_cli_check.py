@@ -53,3 +53,31 @@ def test_over_limit_recipe_is_refused_before_any_instrument(tmp_path):
     assert done.returncode == 3
     assert "step 'iv' reaches 75 V, above the station's maximum 60 V" in done.stdout
     assert not (tmp_path / "out").exists()
+
+
+@pytest.mark.robustness
+@pytest.mark.parametrize(
+    ("written", "problem"),
+    [
+        ("'%%%not::a::resource'", "is not a VISA resource string (unknown interface type)"),
+        ("''", "is empty"),
+        ("12345", "is not text"),
+        ("'12345'", "is not a VISA resource string"),
+        ("'TCPIP0::300.1.1.1::5025::SOCKET'", "has the host '300.1.1.1', which is not an IPv4"),
+        ("'TCPIP0::192.0.2.17::70000::SOCKET'", "has the port '70000'"),
+    ],
+)
+def test_check_refuses_a_resource_that_cannot_name_an_instrument(tmp_path, written, problem):
+    station = (ROOT / "recipes/demo-station.yaml").read_text()
+    assert "\n  resource: sim\n" in station
+    (tmp_path / "demo-station.yaml").write_text(
+        station.replace("\n  resource: sim\n", f"\n  resource: {written}\n", 1)
+    )
+    (tmp_path / "demo.yaml").write_text((ROOT / "recipes/demo.yaml").read_text())
+    done = ccbench("check", str(tmp_path / "demo.yaml"))
+    lines = done.stdout.strip().splitlines()
+    assert done.returncode == 2 and len(lines) == 1, done.stdout
+    line = station.splitlines().index("  resource: sim") + 1
+    where = f"ccbench: {tmp_path / 'demo-station.yaml'}:{line}: instrument.resource {problem}"
+    assert lines[0].startswith(where), lines[0]
+    assert "or sim for the simulator" in lines[0]

@@ -68,6 +68,8 @@ def test_results_in_journal_sqlite_and_csv(tmp_path):
 
 @pytest.mark.robustness
 def test_refuses_a_folder_that_holds_a_run(tmp_path):
-    RunStore.create(tmp_path / "run", {"started": "t0"}).finish("completed", "t1")
+    store = RunStore.create(tmp_path / "run", {"started": "t0"})
+    store.set_identity("TCPIP0::127.0.0.1::5025::SOCKET", "TEST,SMU,1,1")  # it reached one
+    store.finish("completed", "t1")
     with pytest.raises(StoreError, match="already holds a run"):
         RunStore.create(tmp_path / "run", {"started": "t0"})

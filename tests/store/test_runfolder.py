@@ -62,7 +62,9 @@ def test_the_lock_is_held_across_processes_and_freed_when_its_holder_dies(tmp_pa
 
 @pytest.mark.robustness
 def test_a_folder_holding_a_run_is_refused_without_resume(tmp_path):
-    RunStore.create(tmp_path / "run", MANIFEST).finish("interrupted", "t1")
+    store = RunStore.create(tmp_path / "run", MANIFEST)
+    store.set_identity("TCPIP0::127.0.0.1::5025::SOCKET", "TEST,SMU,1,1")  # it reached one
+    store.finish("interrupted", "t1")
     with pytest.raises(FolderRefused, match="already holds a run; add --resume") as caught:
         RunStore.create(tmp_path / "run", MANIFEST)
     assert caught.value.exit_code == 2 and isinstance(caught.value, FileExistsError)
