@@ -37,8 +37,10 @@ def main() -> None:
             wall, busy = timed_run(Path(tmp) / f"virtual-{n}", "virtual")
             virtual.append(wall / busy)
     ratio = statistics.median(real)
-    print(f"real clock: wall / instrument time = {ratio:.3f} (median of {args.repeats}; "
-          f"target <= {TARGET:.2f}: {'met' if ratio <= TARGET else 'NOT met'})")
+    print(
+        f"real clock: wall / instrument time = {ratio:.3f} (median of {args.repeats}; "
+        f"target <= {TARGET:.2f}: {'met' if ratio <= TARGET else 'NOT met'})"
+    )
     print(f"virtual clock: wall / instrument time = {statistics.median(virtual):.3f}")
 
 
