@@ -67,6 +67,7 @@ def test_a_signal_mid_sweep_leaves_the_output_off_and_keeps_the_data(tmp_path, s
         # into the second device's sweep: the output really is on (polled, since a loaded
         # machine may still be between devices a moment after the first journal line)
         assert wait_for(lambda: read_output(sim.resource) == "1", 10), "output never on"
+        time.sleep(0.2)  # a few of its 25 ms points in, well before its 61st
         run.send_signal(signum)
         stdout, stderr = run.communicate(timeout=20)
     finally:
