@@ -6,6 +6,7 @@ and placeholder once, so a wrong file fails at start-up with file, line and key,
 
 from __future__ import annotations
 
+import re
 import string
 from dataclasses import dataclass, fields
 from pathlib import Path
@@ -171,7 +172,21 @@ def _key_lines(text: str, source: str | Path) -> dict[str, int]:
         raise DialectError(source, None, _yaml_line(exc), f"not valid YAML: {exc}") from exc
     if not isinstance(node, yaml.MappingNode):
         return {}
+    for key, value in node.value:
+        _check_whole_number(str(key.value), value, source)
     return {str(k.value): k.start_mark.line + 1 for k, _ in node.value}
+
+
+# YAML 1.1 reads '017' as 15 (octal), '0x10' as 16, '1_0' as 10 and '1:30' as 90; a dialect's
+# whole numbers (a bit number, a buffer size) must be plain decimal, as written.
+_DECIMAL = re.compile(r"0|[1-9][0-9]*")
+
+
+def _check_whole_number(key: str, node: yaml.Node, source: str | Path) -> None:
+    if node.tag == "tag:yaml.org,2002:int" and not _DECIMAL.fullmatch(str(node.value)):
+        detail = f"must be a plain decimal whole number (got {node.value!r}, which YAML reads "
+        detail += "in another base or with separators)"
+        raise DialectError(source, key, node.start_mark.line + 1, detail)
 
 
 def _yaml_line(exc: yaml.YAMLError) -> int | None:

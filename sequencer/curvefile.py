@@ -1,4 +1,5 @@
-"""A curve recorded elsewhere: CSV with the header `voltage_V,current_A`, one point a line.
+"""A curve recorded elsewhere: CSV with the header `voltage_V,current_A`, one point a line,
+each value a plain decimal number.
 
 Anything else is refused with one message naming the file and the line, so a user can fix it.
 """
@@ -6,11 +7,11 @@ Anything else is refused with one message naming the file and the line, so a use
 from __future__ import annotations
 
 import csv
-import math
 from pathlib import Path
 
 from .curve import Curve
 from .errors import CurveFileError
+from .units import UnitProblem, plain_number
 
 HEADER = ["voltage_V", "current_A"]
 
@@ -43,12 +44,8 @@ def read_curve_csv(path: Path) -> Curve:
 
 
 def _number(name: str, line: int, column: str, text: str) -> float:
+    """A plain decimal number, finite (units.plain_number): not Python's '0.001_8' or 'nan'."""
     try:
-        value = float(text)
-    except ValueError:
-        raise CurveFileError(
-            name, line, f"{column} is not a number (got {text.strip()!r})"
-        ) from None
-    if not math.isfinite(value):
-        raise CurveFileError(name, line, f"{column} must be finite (got {text.strip()!r})")
-    return value
+        return plain_number(text)
+    except UnitProblem as exc:
+        raise CurveFileError(name, line, f"{column} {exc}") from None

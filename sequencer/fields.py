@@ -6,6 +6,7 @@ Shared by the recipe, station and judge-section loaders so that every message ha
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -59,6 +60,8 @@ class Fields:
         if isinstance(value, bool) or not ok:
             kind = "a whole number" if integer else "a plain number"
             raise self.source.error(self.where(key), f"must be {kind} (got {show(value)})")
+        if not math.isfinite(value):
+            raise self.source.error(self.where(key), f"must be a finite number (got {value!r})")
         return value
 
     def text(self, key: str, default: Any = ...) -> str:

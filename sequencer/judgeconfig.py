@@ -23,6 +23,7 @@ from .judgesettings import (
     Shape,
 )
 from .uncertainty import DEFAULT_ACCURACY, Accuracy, AccuracyTable, RangeAccuracy
+from .units import UnitProblem, plain_number
 from .yamlsource import Source
 
 
@@ -191,14 +192,12 @@ def _table(source: Source, path: str, value: Any, kind: str) -> AccuracyTable | 
 def _fraction(g: Fields, key: str) -> float:
     raw = g.raw(key)
     text = str(raw).strip() if isinstance(raw, str) else ""
-    scale = {"%": 1e-2, "ppm": 1e-6}
-    for suffix, factor in scale.items():
-        number = text.removesuffix(suffix).strip()
+    for suffix, factor in (("%", 1e-2), ("ppm", 1e-6)):
         if text.endswith(suffix):
             try:
-                value = float(number) * factor
-            except ValueError:
-                break
+                value = plain_number(text.removesuffix(suffix)) * factor
+            except UnitProblem as exc:
+                raise g.source.error(g.where(key), f"{exc}; e.g. '0.05 %'") from None
             g.check(0 <= value < 0.1, key, f"must be 0 to 10 % (got {raw!r})")
             return value
     raise g.source.error(

@@ -16,11 +16,25 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from .errors import RecipeError
+from .fields import Fields, positive
 from .units import UnitProblem, format_si, parse_quantity
 from .yamlsource import Source
 
 if TYPE_CHECKING:  # recipe.py imports this module; the station's Limits is only read here
     from .recipe import Limits
+
+# Ceilings no station may set a limit above: (key, kind, attribute, unit, ceiling). ccbench
+# drives bench SMUs for two-terminal regulators; a source beyond these is another kind of bench
+# with its own rules (common practice, no source).
+STATION_CEILINGS = (
+    ("max_voltage", "voltage", "max_voltage_v", "V", 1000.0),
+    ("max_current", "current", "max_current_a", "A", 10.0),
+    ("max_power", "power", "max_power_w", "W", 1000.0),
+)
+TOUCH_SAFE_DEFAULT_V = 42.0  # common practice, no source (README "Safety")
+# IEC 61010-1: accessible parts are hazardous live above 70 V d.c. (from memory; REFERENCES.md
+# s4). A station may set its touch-safe voltage above it only with a stated reason.
+HAZARDOUS_DC_V = 70.0
 
 ON_TRIP = ("stop", "skip")
 ON_COMPLIANCE = ("flag", "trip")
@@ -82,6 +96,18 @@ class EffectiveLimits:
     worst_case_current_a: float | None
     touch_safe_v: float
 
+    def __post_init__(self) -> None:
+        # The safety layer's own check: a NaN or infinite limit would compare false (or true)
+        # with every level, whichever loader or test built it.
+        values = [self.voltage.value, self.current.value, self.power.value, self.touch_safe_v]
+        if self.dissipation is not None:
+            values.append(self.dissipation.value)
+        if self.worst_case_current_a is not None:
+            values.append(self.worst_case_current_a)
+        for value in values:
+            if not (math.isfinite(value) and value > 0):
+                raise ValueError(f"every limit must be finite and positive (got {value!r})")
+
     def device_power_w(self, volts: float, compliance_a: float) -> float:
         """The most a device can dissipate at `volts` with this compliance."""
         current = compliance_a
@@ -121,6 +147,48 @@ def _smallest(*layers: tuple[str, float | None]) -> Bound:
 
 def as_effective(limits: Limits | EffectiveLimits) -> EffectiveLimits:
     return limits if isinstance(limits, EffectiveLimits) else effective_limits(limits)
+
+
+# --- the station's limits ---------------------------------------------------------------------
+
+
+def parse_station_limits(f: Fields) -> dict[str, Any]:
+    """The station's `limits:` as keyword arguments of recipe.Limits, each rule of
+    `station_limits_problem` refused with file:line."""
+    found: dict[str, Any] = {}
+    for key, kind, attr, unit, ceiling in STATION_CEILINGS:
+        value = positive(f, key, kind)
+        f.check(value <= ceiling, key, f"must be at most {format_si(ceiling, unit)}, the most "
+                f"ccbench drives (got {format_si(value, unit)})")  # fmt: skip
+        found[attr] = value
+    most_v = found["max_voltage_v"]
+    # Unwritten, the touch-safe voltage is the usual 42 V, or the station's maximum if lower.
+    touch = positive(f, "touch_safe_voltage", "voltage", min(TOUCH_SAFE_DEFAULT_V, most_v))
+    reason = f.text("touch_safe_reason", "").strip()
+    f.check(touch <= most_v, "touch_safe_voltage", f"must not exceed max_voltage "
+            f"({format_si(most_v, 'V')}; got {format_si(touch, 'V')})")  # fmt: skip
+    f.check(
+        touch <= HAZARDOUS_DC_V or bool(reason),
+        "touch_safe_voltage",
+        f"must be at most {HAZARDOUS_DC_V:g} V, the d.c. level above which IEC 61010-1 calls "
+        f"accessible parts hazardous live (got {format_si(touch, 'V')}); if this station is "
+        "safe to touch above it, say why in 'touch_safe_reason:' beside it",
+    )
+    return found | {"touch_safe_v": touch, "touch_safe_reason": reason}
+
+
+def station_limits_problem(limits: Limits) -> str | None:
+    """What is wrong with a station's limits however they were built, or None."""
+    for _, _, attr, unit, ceiling in STATION_CEILINGS:
+        value = getattr(limits, attr)
+        if not (math.isfinite(value) and 0 < value <= ceiling):
+            return f"{attr} must be above 0 and at most {ceiling:g} {unit} (got {value!r})"
+    touch = limits.touch_safe_v
+    if not (math.isfinite(touch) and touch > 0):
+        return f"touch_safe_v must be finite and positive (got {touch!r})"
+    if touch > HAZARDOUS_DC_V and not limits.touch_safe_reason.strip():
+        return f"touch_safe_v above {HAZARDOUS_DC_V:g} V needs a touch_safe_reason (got {touch!r})"
+    return None
 
 
 # --- reading the recipe's sections ------------------------------------------------------------

@@ -7,6 +7,8 @@ search usually takes.
 
 from __future__ import annotations
 
+import math
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -40,7 +42,7 @@ class Segment:
 
     @property
     def peak_voltage_v(self) -> float:
-        return max(abs(v) for v in self.levels_v)
+        return _peak(abs(v) for v in self.levels_v)
 
     @property
     def peak_power_w(self) -> float:
@@ -62,7 +64,7 @@ class Plan:
 
     @property
     def peak_voltage_v(self) -> float:
-        return max(s.peak_voltage_v for s in self.segments)
+        return _peak(s.peak_voltage_v for s in self.segments)
 
     @property
     def peak_power_w(self) -> float:
@@ -80,6 +82,12 @@ class Plan:
 
     def estimated_seconds(self) -> float:
         return self.seconds_per_device() * len(self.channels)
+
+
+def _peak(values: Iterable[float]) -> float:
+    """The largest value, or NaN if any is NaN (max() keeps or drops a NaN by its position)."""
+    found = list(values)
+    return math.nan if any(math.isnan(v) for v in found) else max(found)
 
 
 def sweep_levels(step: SweepStep) -> tuple[float, ...]:

@@ -30,6 +30,8 @@ from .limits import (
     parse_choice,
     parse_ratings,
     parse_recipe_limits,
+    parse_station_limits,
+    station_limits_problem,
 )
 from .repeat import Repeat, parse_repeat
 from .resultsdb import SharedDatabase, parse_results_database
@@ -42,7 +44,13 @@ __all__ = ["FIGURES", "FIGURE_KIND", "FigureLimit", "JudgeSettings", "Recipe", "
 
 @dataclass(frozen=True)
 class Limits:
-    """Absolute limits of a station: what the fixture, wiring and SMU may ever carry."""
+    """Absolute limits of a station: what the fixture, wiring and SMU may ever carry.
+
+    Every value is finite and positive and within the ceilings of sequencer.limits; the
+    touch-safe voltage is at most `max_voltage` and, unless `touch_safe_reason` says why, at
+    most the d.c. level IEC 61010-1 calls hazardous live. The loader refuses a file that breaks
+    a rule with file:line; this check is the backstop for limits built in code.
+    """
 
     max_voltage_v: float
     max_current_a: float
@@ -52,11 +60,12 @@ class Limits:
     # hazardous live above 33 V rms, 46.7 V peak or 70 V d.c. (from memory; verify against the
     # standard, REFERENCES.md s4).
     touch_safe_v: float = 42.0
+    touch_safe_reason: str = ""  # why this station's touch-safe voltage is above 70 V d.c.
 
     def __post_init__(self) -> None:
-        for name in ("max_voltage_v", "max_current_a", "max_power_w", "touch_safe_v"):
-            if not getattr(self, name) > 0:
-                raise ValueError(f"{name} must be positive")
+        problem = station_limits_problem(self)
+        if problem:
+            raise ValueError(problem)
 
 
 @dataclass(frozen=True)
@@ -157,12 +166,7 @@ def load_station(path: Path) -> Station:
     line_hz = first.line_frequency_hz
     channels = tuple(c for spec in specs for c in spec.channels)
     lim = _Fields.at(source, "limits", top.raw("limits"))
-    limits = Limits(
-        max_voltage_v=_positive(lim, "max_voltage", "voltage"),
-        max_current_a=_positive(lim, "max_current", "current"),
-        max_power_w=_positive(lim, "max_power", "power"),
-        touch_safe_v=_positive(lim, "touch_safe_voltage", "voltage", "42 V"),
-    )
+    limits = Limits(**parse_station_limits(lim))
     lim.finish()
     fixture = _Fields.at(source, "fixture", top.raw("fixture", {}))
     interlocked = fixture.raw("interlocked", False)

@@ -8,6 +8,7 @@ from rich.table import Table
 from .limits import Bound
 from .plan import Plan
 from .recipe import Recipe
+from .safety import is_hazardous
 from .units import format_si
 
 LAYER = {
@@ -38,11 +39,12 @@ def limits_table(recipe: Recipe, plan: Plan) -> Table:
         rows.append(("dissipation", lim.dissipation, "W", device_peak))
     for name, bound, unit, peak in rows:
         table.add_row(name, format_si(bound.value, unit), _layer(bound), format_si(peak, unit))
-    hazardous = plan.peak_voltage_v > lim.touch_safe_v
+    hazardous = is_hazardous(plan, lim)
+    reason = recipe.station.limits.touch_safe_reason
     table.add_row(
         "touch-safe voltage",
         format_si(lim.touch_safe_v, "V"),
-        "station",
+        f"station: {reason}" if reason else "station",
         "above: interlock + ack" if hazardous else "not exceeded",
     )
     return table

@@ -49,7 +49,7 @@ def list_is_safe(seg: Segment, guard: Guard) -> bool:
     """Whether the guard's checks of this segment's readings can wait until the list is over."""
     lim = guard.effective
     peak = seg.peak_voltage_v
-    if peak > lim.touch_safe_v or seg.step in guard.no_clamp_steps:
+    if not peak <= lim.touch_safe_v or seg.step in guard.no_clamp_steps:  # NaN: never safe
         return False
     # With a worst-case current in the ratings, pre-flight bounds the device's dissipation by
     # that current, not by the compliance; a device drawing more trips only on its reading.

@@ -6,6 +6,7 @@ a map from each dotted field path ("steps[0].sweep.stop") to its 1-based line.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -13,6 +14,9 @@ from typing import Any
 import yaml
 
 from .errors import RecipeError
+from .units import UnitProblem, plain_number
+
+_PLAIN_INTEGER = re.compile(r"[+-]?(?:0|[1-9][0-9]*)")
 
 
 @dataclass
@@ -83,4 +87,24 @@ def _convert(node: yaml.Node, path: str, source: Source) -> Any:
         return out
     if isinstance(node, yaml.SequenceNode):
         return [_convert(item, f"{path}[{i}]", source) for i, item in enumerate(node.value)]
-    return yaml.SafeLoader(" ").construct_object(node)
+    value = yaml.SafeLoader(" ").construct_object(node)
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        _check_plain_number(node, value, path, source)
+    return value
+
+
+def _check_plain_number(node: yaml.Node, value: float, path: str, source: Source) -> None:
+    """YAML 1.1 reads more than decimal numbers as numbers: '1_000', '0x1F', '017' (octal 15),
+    '1:30' (90), '.inf', '.nan'. Only plain decimal numbers pass; the rest would be silently
+    something else than written, a number or (quoted) text."""
+    text = str(node.value)
+    try:
+        plain = _PLAIN_INTEGER.fullmatch(text) if isinstance(value, int) else plain_number(text)
+    except UnitProblem:
+        plain = None
+    if plain is None:
+        problem = (
+            f"reads as the number {value!r} in YAML (written {text!r}); write a plain finite "
+            "decimal number, or put it in quotes if it is text"
+        )
+        raise RecipeError(source.file, node.start_mark.line + 1, path, problem)

@@ -75,6 +75,10 @@ def test_voltage_text_without_its_placeholder_is_refused(tmp_path: Path) -> None
         ("status, errors]", "status, errors, errors]", "'errors' more than once"),
         ('reset: "*RST"', "reset: 5", "must be text"),
         ('"OUTP {state}"', '"OUTP {state"', "bad braces"),
+        # YAML 1.1 reads these as 8 (octal), 2 and 4096: plain decimal whole numbers only
+        ("compliance_bit: 1", "compliance_bit: 010", "plain decimal whole number"),
+        ("compliance_bit: 1", "compliance_bit: 0b10", "plain decimal whole number"),
+        ("max_message_bytes: 4096", "max_message_bytes: 4_096", "plain decimal whole number"),
     ],
 )
 def test_broken_values_are_refused(tmp_path: Path, old: str, new: str, match: str) -> None:

@@ -3,6 +3,9 @@ ratings tighten them, and `ccbench check` shows the effective one and who set it
 
 from __future__ import annotations
 
+import dataclasses
+import math
+
 import pytest
 from rich.console import Console
 
@@ -120,3 +123,87 @@ def test_check_shows_the_effective_limits_and_who_set_them(tmp_path):
     assert "200 mW" in rows["V x compliance"] and "recipe" in rows["V x compliance"]
     # 30 V x 5 mA = 150 mW: the plan peak sits exactly on the rated dissipation
     assert "150 mW" in rows["dissipation"] and "ratings (PD)" in rows["dissipation"]
+
+
+# --- the station's own limits: finite, positive, under a ceiling; a sane touch-safe voltage ---
+
+
+def station_with(tmp_path, **limits: str):
+    from .bench import STATION
+
+    return write_bench(tmp_path, station={"limits": {**STATION["limits"], **limits}})
+
+
+@pytest.mark.robustness
+@pytest.mark.parametrize(
+    ("limits", "field", "words"),
+    [
+        # red team 10: no ceiling (1e999 V was infinity, shown "∞ V")
+        ({"max_voltage": "1e9 V"}, "max_voltage", "must be at most 1 kV, the most ccbench drives"),
+        ({"max_voltage": "1001 V"}, "max_voltage", "must be at most 1 kV"),
+        ({"max_current": "11 A"}, "max_current", "must be at most 10 A"),
+        ({"max_power": "1.5 kW"}, "max_power", "must be at most 1 kW"),
+        ({"max_voltage": "1e999 V"}, "max_voltage", "is too large a number"),
+        ({"max_power": "+inf W"}, "max_power", "must be a finite number"),
+        ({"max_current": "nan A"}, "max_current", "must be a finite number"),
+        # red team 2: a station written 60,0 V was a 600 V station
+        ({"max_voltage": "60,0 V"}, "max_voltage", "write 60.0 V: a decimal point, not a comma"),
+        # red team 9 and issue 19 item 11: a touch-safe voltage that switches the rules off
+        ({"touch_safe_voltage": "1e9 V"}, "touch_safe_voltage", "must not exceed max_voltage"),
+        ({"touch_safe_voltage": "100 V"}, "touch_safe_voltage",
+         "must not exceed max_voltage (60 V; got 100 V)"),
+        ({"max_voltage": "200 V", "max_power": "1 W", "touch_safe_voltage": "100 V"},
+         "touch_safe_voltage", "must be at most 70 V, the d.c. level above which IEC 61010-1"),
+        ({"max_voltage": "200 V", "touch_safe_voltage": "100 V", "touch_safe_reason": " "},
+         "touch_safe_voltage", "say why in 'touch_safe_reason:'"),
+    ],
+)  # fmt: skip
+def test_station_limits_are_sane_or_refused_with_file_and_line(tmp_path, limits, field, words):
+    path = station_with(tmp_path, **limits)
+    station = path.parent / "station.yaml"
+    with pytest.raises(RecipeError) as info:
+        load_recipe(path)
+    assert str(info.value).startswith(f"{station}:{line_of(station, field + ':')}: limits.{field} ")
+    assert words in str(info.value)
+    code, text = run_main("check", str(path))
+    assert code == 2 and text.strip().splitlines() == [f"ccbench: {info.value}"]
+
+
+def test_a_touch_safe_voltage_above_70_v_needs_a_stated_reason(tmp_path):
+    reason = "fixture fully enclosed, terminals unreachable with the lid open or closed"
+    path = station_with(tmp_path, max_voltage="200 V", touch_safe_voltage="100 V",
+                        touch_safe_reason=reason)  # fmt: skip
+    station = load_recipe(path).station
+    assert station.limits.touch_safe_v == 100.0 and station.limits.touch_safe_reason == reason
+    code, text = run_main("check", str(path))
+    assert code == 0 and f"station: {reason}" in text
+
+
+def test_an_unwritten_touch_safe_voltage_is_42_v_or_the_station_maximum(tmp_path):
+    from .bench import STATION
+
+    low = {"max_voltage": "30 V", "max_current": "20 mA", "max_power": "250 mW"}
+    path = write_bench(tmp_path / "low", station={"limits": low})
+    assert load_recipe(path).station.limits.touch_safe_v == 30.0
+    path = write_bench(tmp_path / "usual", station={"limits": STATION["limits"]})
+    assert load_recipe(path).station.limits.touch_safe_v == 42.0
+
+
+@pytest.mark.robustness
+@pytest.mark.parametrize(
+    "values",
+    [(math.inf, 0.02, 0.5), (60.0, math.nan, 0.5), (60.0, 0.02, 1e9), (2000.0, 0.02, 0.5),
+     (60.0, 0.02, 0.5, math.nan), (60.0, 0.02, 0.5, 1e9)],
+)  # fmt: skip
+def test_limits_built_in_code_are_checked_too(values):
+    with pytest.raises(ValueError):
+        Limits(*values)
+
+
+@pytest.mark.robustness
+def test_non_finite_effective_limits_are_refused():
+    lim = effective_limits(Limits(60.0, 0.02, 0.5))
+    with pytest.raises(ValueError, match="finite and positive"):
+        dataclasses.replace(lim, voltage=Bound(math.nan, "station"))
+    with pytest.raises(ValueError, match="finite and positive"):
+        dataclasses.replace(lim, touch_safe_v=math.inf)

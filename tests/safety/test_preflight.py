@@ -117,3 +117,20 @@ def test_a_refused_run_never_connects_to_the_station_resource(tmp_path):
         assert "step 'iv' reaches 70 V, above the station's maximum 60 V" in done.stdout
         with pytest.raises(TimeoutError):
             listener.accept()
+
+
+@pytest.mark.robustness
+def test_a_station_cannot_switch_the_hazardous_voltage_rules_off(tmp_path, monkeypatch):
+    """Red team 9: touch_safe_voltage 1e9 V without an interlock let a 55 V spot run with no
+    acknowledgement and no interlock read. Now the station itself is refused."""
+    limits = {**STATION["limits"], "touch_safe_voltage": "1e9 V"}
+    station = {"limits": limits, "fixture": {"interlocked": False}}
+    steps = [{"spot": {"name": "hv", "voltage": "55 V", "compliance": "1 mA", "repeats": 2}}]
+    path = write_bench(tmp_path, recipe={"steps": steps}, station=station)
+    monkeypatch.setattr(instruments, "connect", never)
+    monkeypatch.setattr(instruments.embedded.EmbeddedSimulator, "start", never)
+    out = tmp_path / "run"
+    code, text = run_main("run", str(path), "--sim", "--out", str(out))
+    assert code == 2, text
+    assert "limits.touch_safe_voltage must not exceed max_voltage (60 V; got 1 GV)" in text
+    assert not out.exists()

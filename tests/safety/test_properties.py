@@ -41,6 +41,10 @@ class Case:
     interlocked: bool
     acknowledged: bool
 
+    def station_refused(self) -> bool:
+        """A touch-safe voltage above the station's maximum is a mistake in the station file."""
+        return self.touch_v > self.station_v
+
     def raises_a_limit(self) -> bool:
         pairs = (("v", self.station_v), ("a", self.station_a), ("w", self.station_w))
         return any(self.limits.get(k, 0.0) > ceiling for k, ceiling in pairs)
@@ -162,6 +166,8 @@ def run(folder: Path, case: Case, mp: pytest.MonkeyPatch, connect) -> tuple[int,
 
 
 def outcome(case: Case, code: int) -> str:
+    if case.station_refused():
+        return "station refused"
     if case.raises_a_limit():
         return "recipe raised a station limit"
     return "refused by pre-flight" if not case.possible() else f"ran, exit {code}"
@@ -184,7 +190,10 @@ def test_random_recipes_are_refused_before_the_wire_or_stay_within_limits(case):
     with tempfile.TemporaryDirectory() as tmp, pytest.MonkeyPatch.context() as mp:
         code, text = run(Path(tmp), case, mp, (lambda *a, **k: bench.connection(), {}))
     event(outcome(case, code))
-    if case.raises_a_limit():
+    if case.station_refused():
+        assert code == 2 and "must not exceed max_voltage" in text
+        assert bench.sent == []
+    elif case.raises_a_limit():
         assert code == 3 and "never raise it" in text
         assert bench.sent == []
     elif not case.possible():
@@ -209,7 +218,9 @@ def test_random_recipes_over_tcp_never_exceed_the_effective_limit(case):
         applied = float(read_output(server.resource, "SIM:LEV:MAX?"))
         count = int(read_output(server.resource, "SIM:LEV:COUN?"))
         assert read_output(server.resource) == "0"
-    if case.raises_a_limit() or not case.possible():
+    if case.station_refused():
+        assert code == 2 and count == 0, text
+    elif case.raises_a_limit() or not case.possible():
         assert code == 3, text
         assert count == 0
     else:

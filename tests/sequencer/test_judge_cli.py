@@ -71,9 +71,13 @@ def test_judge_with_a_recipe_prints_a_table(tmp_path):
 BAD_CSV = [
     ("voltage,current\n0,0\n", 1, "the header must be 'voltage_V,current_A'"),
     ("", 1, "the header must be"),
-    ("voltage_V,current_A\n0,0\n1,abc\n2,1e-3\n", 3, "current_A is not a number (got 'abc')"),
+    ("voltage_V,current_A\n0,0\n1,abc\n2,1e-3\n", 3, "current_A is not a plain decimal number"),
     ("voltage_V,current_A\n0,0\n1,1e-3,7\n", 3, "needs 2 values"),
-    ("voltage_V,current_A\n0,0\nnan,1e-3\n2,1e-3\n", 3, "voltage_V must be finite"),
+    ("voltage_V,current_A\n0,0\nnan,1e-3\n2,1e-3\n", 3, "voltage_V is not a plain decimal"),
+    # red team 27: Python's float() read 0.001_8 as 0.0018; plain decimal numbers only
+    ("voltage_V,current_A\n0,0\n1,0.001_8\n2,1e-3\n", 3, "current_A is not a plain decimal"),
+    ("voltage_V,current_A\n0,0\n1,1e-3\n1e999,1e-3\n", 4, "voltage_V is too large a number"),
+    ("voltage_V,current_A\n0,0\n1,1e-3\n0x2,1e-3\n", 4, "voltage_V is not a plain decimal"),
     ("voltage_V,current_A\n0,0\n1,1e-3\n", None, "needs at least 3 points"),
 ]
 

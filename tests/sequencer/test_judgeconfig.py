@@ -131,6 +131,9 @@ STATION_BROKEN = [
     ("{range: 100 uA,", "{range: 1 uA,", "accuracy.current[1].range"),
     ("offset: 2 mV}", "offset: 2 mA}", "accuracy.voltage[1].offset"),
     ("gain: 0.02 %, offset: 0.2 mV", "gain: 20 %, offset: 0.2 mV", "accuracy.voltage[0].gain"),
+    # float() read these as 0.05 % and as nan (then refused only by luck of the range check)
+    ("gain: 0.05 %, offset: 2.5 nA", "gain: 0.0_5 %, offset: 2.5 nA", "accuracy.current[0].gain"),
+    ("gain: 0.05 %, offset: 2.5 nA", "gain: nan %, offset: 2.5 nA", "accuracy.current[0].gain"),
     ("  voltage:\n", "  volts:\n", "accuracy.volts"),
 ]
 
@@ -146,6 +149,15 @@ def test_broken_accuracy_section(tmp_path, old, new, field):
         load_station(path)
     assert str(info.value).startswith(f"{path}:{_line_of(text, new.strip())}: ")
     assert field in str(info.value)
+
+
+@pytest.mark.robustness
+def test_a_decimal_comma_in_an_accuracy_fraction_says_what_to_write(tmp_path):
+    path = tmp_path / "s.yaml"
+    comma = "gain: '0,05 %', offset: 2.5 nA"
+    path.write_text(STATION.replace("gain: 0.05 %, offset: 2.5 nA", comma, 1))
+    with pytest.raises(RecipeError, match=r"gain has a decimal comma: write 0\.05: a decimal"):
+        load_station(path)
 
 
 def test_station_without_accuracy_uses_the_defaults(tmp_path):

@@ -125,3 +125,51 @@ def test_broken_station(tmp_path, old, new, words):
     with pytest.raises(RecipeError, match=words) as info:
         load_station(path)
     assert str(info.value).startswith(f"{path}:{_line_of(text, new)}: ")
+
+
+# --- numbers as written: no expression, no comma, no YAML base or separator ----------------
+
+
+@pytest.mark.robustness
+@pytest.mark.parametrize(
+    ("old", "new", "field", "words"),
+    [
+        # red team 1 and 14: units were parsed as expressions (0*1e999 V gave NaN, 9**9**9 V hung)
+        ("stop: 40 V", "stop: 0*1e999 V", "steps[0].sweep.stop", "not a calculation"),
+        ("stop: 40 V", "stop: 9**9**9 V", "steps[0].sweep.stop", "not a calculation"),
+        ("stop: 40 V", "stop: '+nan V'", "steps[0].sweep.stop", "must be a finite number"),
+        ("stop: 40 V", "stop: 1e999 V", "steps[0].sweep.stop", "is too large a number"),
+        ("voltage: 25 V", "voltage: '-inf V'", "steps[1].spot.voltage", "finite number"),
+        # red team 2: a decimal comma read as a tenfold value
+        ("stop: 40 V", "stop: 4,0 V", "steps[0].sweep.stop", "write 4.0 V: a decimal point"),
+        ("compliance: 5 mA", "compliance: 1,8 mA", "steps[0].sweep.compliance", "write 1.8 mA"),
+        # issue 19 item 11: 0.1 mohm was read as milliohm beside a 100 kOhm limit
+        ("min: 100 kohm", "min: 0.1 mohm", "judge.limits.dynamic_impedance.min",
+         "did you mean 'MOhm' (megaohm)?"),
+        # YAML 1.1 numbers that are not what they look like
+        ("points: 81", "points: 0x51", "steps[0].sweep.points", "reads as the number 81"),
+        ("points: 81", "points: 1:21", "steps[0].sweep.points", "reads as the number 81"),
+        ("points: 81", "points: 0121", "steps[0].sweep.points", "reads as the number 81"),
+        ("nplc: 0.1", "nplc: .nan", "nplc", "reads as the number nan"),
+        ("knee_fraction: 0.8", "knee_fraction: 0.8_0", "judge.knee_fraction", "written '0.8_0'"),
+        ("lot: FK2611-07", "lot: 2611_07", "lot", "put it in quotes if it is text"),
+    ],
+)  # fmt: skip
+def test_numbers_are_read_as_written_or_refused(tmp_path, old, new, field, words):
+    text = DEMO.replace(old, new, 1)
+    assert text != DEMO
+    path = _write(tmp_path, text)
+    with pytest.raises(RecipeError) as info:
+        load_recipe(path)
+    message = str(info.value)
+    assert message.startswith(f"{path}:{_line_of(text, new)}: {field} "), message
+    assert words in message and "\n" not in message
+
+
+def test_practitioners_units_load_from_a_recipe(tmp_path):
+    text = DEMO.replace("min: 100 kohm", "min: 0.1 MOhm").replace("min: 20 kohm", "min: 20 kΩ")
+    text = text.replace("compliance: 5 mA", "compliance: 5000 µA", 1)
+    recipe = load_recipe(_write(tmp_path, text))
+    assert recipe.judge.limit("dynamic_impedance").min == pytest.approx(1e5)
+    assert recipe.judge.limit("knee_impedance").min == pytest.approx(2e4)
+    assert recipe.steps[0].compliance_a == pytest.approx(5e-3)
