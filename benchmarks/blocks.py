@@ -27,7 +27,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from instruments import connect  # noqa: E402
-from sequencer.recipe import load_recipe  # noqa: E402
+from sequencer.recipe.load import load_recipe  # noqa: E402
 
 TARGET = 5.0
 

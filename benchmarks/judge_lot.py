@@ -18,10 +18,10 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from sequencer.curve import Curve
-from sequencer.figures import Layout
-from sequencer.judge import judge_arrays, judge_curve
-from sequencer.judgesettings import BinRule, FigureLimit, FigureRange, JudgeSettings
+from sequencer.judge.engine import judge_arrays, judge_curve
+from sequencer.judge.figures import Layout
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import BinRule, FigureLimit, FigureRange, JudgeSettings
 
 POINTS = 200
 COMPLIANCE_A = 5e-3

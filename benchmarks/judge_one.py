@@ -30,13 +30,13 @@ sys.path.insert(0, str(ROOT / "benchmarks"))
 import judge_lot  # noqa: E402
 from production_plan import Bench  # noqa: E402
 
-from sequencer.curve import Curve  # noqa: E402
-from sequencer.figures import Layout  # noqa: E402
-from sequencer.judge import judge_arrays, judge_curve  # noqa: E402
-from sequencer.lotrun import device_name, make_guard  # noqa: E402
-from sequencer.plan import make_plan  # noqa: E402
-from sequencer.recipe import Recipe, load_recipe  # noqa: E402
-from sequencer.runner import Recorder, measure_device  # noqa: E402
+from sequencer.bench.lotrun import device_name, make_guard  # noqa: E402
+from sequencer.judge.engine import judge_arrays, judge_curve  # noqa: E402
+from sequencer.judge.figures import Layout  # noqa: E402
+from sequencer.model.curve import Curve  # noqa: E402
+from sequencer.plan.make import make_plan  # noqa: E402
+from sequencer.recipe.load import Recipe, load_recipe  # noqa: E402
+from sequencer.run.device import Recorder, measure_device  # noqa: E402
 
 TARGET_MS = 1.0  # production curve
 

@@ -1,5 +1,5 @@
 """200 levels as one instrument-side source list with one binary buffer read, against the same
-200 levels point by point, through the runner (sequencer.runner.measure_device) on the
+200 levels point by point, through the runner (sequencer.run.device.measure_device) on the
 simulated SMU over TCP with its real clock, so the instrument's time passes as it would.
 
     python benchmarks/lists.py [--levels N] [--repeats R]
@@ -28,11 +28,11 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from instruments import connect  # noqa: E402
-from sequencer.lotrun import make_guard  # noqa: E402
-from sequencer.plan import Plan, Segment  # noqa: E402
-from sequencer.recipe import load_recipe  # noqa: E402
-from sequencer.runner import Recorder, measure_device  # noqa: E402
-from sequencer.shutdown import start_safe  # noqa: E402
+from sequencer.bench.lotrun import make_guard  # noqa: E402
+from sequencer.plan.make import Plan, Segment  # noqa: E402
+from sequencer.recipe.load import load_recipe  # noqa: E402
+from sequencer.run.device import Recorder, measure_device  # noqa: E402
+from sequencer.run.shutdown import start_safe  # noqa: E402
 
 TARGET = 5.0
 NPLC = 0.01  # 0.2 ms at 50 Hz: the shortest aperture the simulated SMU takes

@@ -41,11 +41,11 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from instruments import connect  # noqa: E402
-from sequencer.lotrun import make_guard, run_lot  # noqa: E402
-from sequencer.plan import make_plan  # noqa: E402
-from sequencer.recipe import SweepStep, load_recipe  # noqa: E402
-from sequencer.shutdown import make_safe, start_safe  # noqa: E402
-from sequencer.store import RunStore  # noqa: E402
+from sequencer.bench.lotrun import make_guard, run_lot  # noqa: E402
+from sequencer.plan.make import make_plan  # noqa: E402
+from sequencer.recipe.load import SweepStep, load_recipe  # noqa: E402
+from sequencer.run.shutdown import make_safe, start_safe  # noqa: E402
+from sequencer.store.runstore import RunStore  # noqa: E402
 
 TARGET = 1.5
 DENSER = 4  # the second run's sweeps: this many times the points

@@ -39,12 +39,12 @@ sys.path.insert(0, str(ROOT))
 from instruments.dialect import load_dialect  # noqa: E402
 from instruments.smu import ScpiSmu  # noqa: E402
 from instruments.transport import CallableTransport, SpyTransport  # noqa: E402
-from sequencer.lotrun import run_lot  # noqa: E402
-from sequencer.plan import make_plan  # noqa: E402
-from sequencer.recipe import load_recipe  # noqa: E402
-from sequencer.repeat import Repeat  # noqa: E402
-from sequencer.schedule import run_passes  # noqa: E402
-from sequencer.store import RunStore  # noqa: E402
+from sequencer.bench.lotrun import run_lot  # noqa: E402
+from sequencer.bench.schedule import run_passes  # noqa: E402
+from sequencer.plan.make import make_plan  # noqa: E402
+from sequencer.recipe.load import load_recipe  # noqa: E402
+from sequencer.recipe.repeat import Repeat  # noqa: E402
+from sequencer.store.runstore import RunStore  # noqa: E402
 from simulator.options import SimOptions, build_instrument  # noqa: E402
 from simulator.session import Session  # noqa: E402
 

@@ -4,7 +4,7 @@ its own process (`python -m simulator serve`) whose settling and apertures reall
     python benchmarks/parallel.py [--devices N]
 
 One instrument: `run_lot` over the tray, as `ccbench run` does on a one-SMU station. Four:
-`run_parallel` with the tray split in four (sequencer.parallel: a worker thread per SMU, the
+`run_parallel` with the tray split in four (sequencer.bench.parallel: a worker thread per SMU, the
 calling thread judging and storing in device order). Both store every device in a real run
 folder (journal fsynced, SQLite, CSV) and log every SCPI exchange. Each SMU serves the same
 simulated lot, so both runs measure the same devices; connecting and the safe start are not
@@ -26,12 +26,12 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from instruments import connect  # noqa: E402
-from sequencer.lotrun import make_guard, run_lot  # noqa: E402
-from sequencer.parallel import Lane, lane_guards, run_parallel  # noqa: E402
-from sequencer.plan import make_plan  # noqa: E402
-from sequencer.recipe import load_recipe  # noqa: E402
-from sequencer.shutdown import make_safe, start_safe  # noqa: E402
-from sequencer.store import RunStore  # noqa: E402
+from sequencer.bench.lotrun import make_guard, run_lot  # noqa: E402
+from sequencer.bench.parallel import Lane, lane_guards, run_parallel  # noqa: E402
+from sequencer.plan.make import make_plan  # noqa: E402
+from sequencer.recipe.load import load_recipe  # noqa: E402
+from sequencer.run.shutdown import make_safe, start_safe  # noqa: E402
+from sequencer.store.runstore import RunStore  # noqa: E402
 
 TARGET = 3.5
 MANIFEST = {"started": "2026-05-04T22:00:00.000+00:00", "lot": "FK2611-07"}

@@ -41,11 +41,11 @@ sys.path.insert(0, str(ROOT))
 from instruments.dialect import load_dialect  # noqa: E402
 from instruments.smu import ScpiSmu  # noqa: E402
 from instruments.transport import CallableTransport  # noqa: E402
-from sequencer.judge import Judgement, judge_curve  # noqa: E402
-from sequencer.lotrun import device_name, make_guard  # noqa: E402
-from sequencer.plan import Plan, make_plan  # noqa: E402
-from sequencer.recipe import Recipe, load_recipe  # noqa: E402
-from sequencer.runner import Recorder, measure_device  # noqa: E402
+from sequencer.bench.lotrun import device_name, make_guard  # noqa: E402
+from sequencer.judge.engine import Judgement, judge_curve  # noqa: E402
+from sequencer.plan.make import Plan, make_plan  # noqa: E402
+from sequencer.recipe.load import Recipe, load_recipe  # noqa: E402
+from sequencer.run.device import Recorder, measure_device  # noqa: E402
 from simulator import smu_model  # noqa: E402
 from simulator.options import SimOptions, build_instrument  # noqa: E402
 from simulator.session import Session  # noqa: E402

@@ -40,7 +40,7 @@ CASES = ("production plan", "full sweep as lists", "full sweep point by point")
 
 
 def _recipes() -> dict:
-    from sequencer.recipe import load_recipe
+    from sequencer.recipe.load import load_recipe
 
     sweep = load_recipe(ROOT / "recipes" / "demo.yaml")
     return {
@@ -62,9 +62,9 @@ def _lot(recipe, devices: int) -> dict:
 
 
 def _run_lot(smu, recipe, devices: int) -> None:
-    from sequencer.lotrun import make_guard
-    from sequencer.plan import make_plan
-    from sequencer.runner import Recorder, measure_device
+    from sequencer.bench.lotrun import make_guard
+    from sequencer.plan.make import make_plan
+    from sequencer.run.device import Recorder, measure_device
 
     plan = dataclasses.replace(make_plan(recipe), channels=tuple(range(1, devices + 1)))
     guard = make_guard(recipe, smu)

@@ -15,12 +15,12 @@ from rich.console import Console
 from instruments.dialect import load_dialect
 from instruments.smu import ScpiSmu
 from instruments.transport import CallableTransport
-from sequencer.lotrun import make_guard
-from sequencer.operator import PartBench, run_parts
-from sequencer.plan import make_plan
-from sequencer.prompts import InterlockLid, Scanner, SimulatedHands
-from sequencer.recipe import load_recipe
-from sequencer.store import RunStore
+from sequencer.bench.lotrun import make_guard
+from sequencer.bench.parts import PartBench, run_parts
+from sequencer.bench.prompts import InterlockLid, Scanner, SimulatedHands
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import load_recipe
+from sequencer.store.runstore import RunStore
 from simulator.devices import open_circuit
 from simulator.options import SimOptions, build_instrument
 from simulator.session import Session

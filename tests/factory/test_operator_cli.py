@@ -12,7 +12,7 @@ from pathlib import Path
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
+from sequencer.cli.main import main
 from tests.factory.conftest import write_recipe, write_station
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -14,11 +14,12 @@ from tests.factory.conftest import needs_psycopg
 
 psycopg = needs_psycopg()
 
-from sequencer import migrations, pgstore  # noqa: E402 - needs psycopg
-from sequencer.database import open_database  # noqa: E402
-from sequencer.resultsdb import SharedDatabase  # noqa: E402
-from sequencer.shipper import Shipper  # noqa: E402
-from sequencer.store import RunStore  # noqa: E402
+from sequencer.recipe.resultsdb import SharedDatabase  # noqa: E402
+from sequencer.store import migrations  # noqa: E402 - needs psycopg
+from sequencer.store.database import open_database  # noqa: E402
+from sequencer.store.runstore import RunStore  # noqa: E402
+from sequencer.store.shared import pgstore  # noqa: E402 - needs psycopg
+from sequencer.store.shared.shipper import Shipper  # noqa: E402
 from tests.factory.pgserver import free_port  # noqa: E402
 from tests.store.conftest import load, manifest_of, measure_into, write_recipe  # noqa: E402
 

@@ -6,9 +6,9 @@ import pickle
 
 import pytest
 
-from sequencer.errors import RecipeError
-from sequencer.retest import Attempt, RetestPolicy, admit, parse_part_by_part, stands
-from sequencer.yamlsource import parse_yaml
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.retest import Attempt, RetestPolicy, admit, parse_part_by_part, stands
+from sequencer.recipe.yamlsource import parse_yaml
 
 
 def attempts(*outcomes: tuple[str, str, bool]) -> list[Attempt]:

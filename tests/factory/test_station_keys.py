@@ -7,11 +7,11 @@ import io
 import pytest
 from rich.console import Console
 
-from sequencer.errors import RecipeError
-from sequencer.figures import FIGURES
-from sequencer.judge import MISSING, Judgement
-from sequencer.recipe import load_station
-from sequencer.verdictview import block_letters, verdict_panel, verdict_style
+from sequencer.cli.verdictview import block_letters, verdict_panel, verdict_style
+from sequencer.judge.engine import MISSING, Judgement
+from sequencer.model.errors import RecipeError
+from sequencer.model.judgesettings import FIGURES
+from sequencer.recipe.load import load_station
 from tests.factory.conftest import write_station
 
 URL = "postgresql://ccbench@results.example.internal:5433/ccbench"

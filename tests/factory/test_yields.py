@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pandas as pd
 
-from sequencer.yields import final_mask, yield_by
+from sequencer.store.yields import final_mask, yield_by
 
 ROWS = [  # station, lot, device, pass, verdict, bin_class, standing, measured
     ("P1", "FK2611-07", "0001", 1, "pass", "pass", None, "2026-05-04T06:00:00+00:00"),

@@ -17,9 +17,9 @@ from instruments.errors import DialectError, ScpiError
 from instruments.scpi import message_units
 from instruments.smu import ScpiSmu
 from instruments.transport import CallableTransport
-from sequencer.lotrun import make_guard
-from sequencer.plan import make_plan
-from sequencer.runner import Recorder, measure_device
+from sequencer.bench.lotrun import make_guard
+from sequencer.plan.make import make_plan
+from sequencer.run.device import Recorder, measure_device
 from tests.instruments.test_dialect_files import _write_variant
 from tests.speed.helpers import lot_smu, recipes
 

@@ -14,8 +14,8 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.runfolder import never_reached
-from sequencer.store import RunStore
+from sequencer.store.runfolder import never_reached
+from sequencer.store.runstore import RunStore
 from tests.store.conftest import write_recipe
 
 ROOT = Path(__file__).resolve().parents[2]

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from . import spice
+from tests.reference import spice
 
 
 def test_missing_ngspice_skips_locally_and_fails_under_ci(monkeypatch):

@@ -17,13 +17,12 @@ import numpy as np
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.curve import Curve
-from sequencer.judge import judge_curve
-from sequencer.judgesettings import FigureLimit, JudgeSettings
-from sequencer.recipe import load_recipe
-
-from .spice import dc_sweep, jfet_source, jfet_source_with_diode
+from sequencer.cli.main import main
+from sequencer.judge.engine import judge_curve
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import FigureLimit, JudgeSettings
+from sequencer.recipe.load import load_recipe
+from tests.reference.spice import dc_sweep, jfet_source, jfet_source_with_diode
 
 HERE = Path(__file__).resolve().parent
 NOISE_A = 30e-9

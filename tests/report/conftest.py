@@ -13,11 +13,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from sequencer.curve import Curve
-from sequencer.judge import judge_curve, with_bin
-from sequencer.lotrun import aborted
-from sequencer.recipe import Recipe, load_recipe
-from sequencer.store import RunStore
+from sequencer.bench.lotrun import aborted
+from sequencer.judge.engine import judge_curve, with_bin
+from sequencer.model.curve import Curve
+from sequencer.recipe.load import Recipe, load_recipe
+from sequencer.store.runstore import RunStore
 
 ROOT = Path(__file__).resolve().parents[2]
 SWEEP_V = np.linspace(0.0, 40.0, 81)

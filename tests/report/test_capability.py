@@ -10,14 +10,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.stats import norm
 
-from sequencer.capability import (
-    capability,
-    cp,
-    cpk,
-    cpk_interval,
-    fallout_ppm,
-    observed_ppm,
-)
+from sequencer.report.capability import capability, cp, cpk, cpk_interval, fallout_ppm, observed_ppm
 
 
 def sample_with(mean: float, s: float, n: int = 40) -> np.ndarray:
@@ -120,7 +113,7 @@ def test_observed_ppm_counts_values_outside():
 
 def test_no_index_from_a_handful_of_parts():
     # Two parts (an operator's first two tests) give no capability index at all.
-    from sequencer.capability import MIN_SAMPLES, capability
+    from sequencer.report.capability import MIN_SAMPLES, capability
 
     few = capability(np.array([1.80e-3, 1.90e-3]), 1.62e-3, 1.98e-3)
     assert np.isnan(few.cpk) and np.isnan(few.cp) and few.n == 2

@@ -10,9 +10,9 @@ from html.parser import HTMLParser
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.lotsummary import lot_yield, percent, reported_figures
-from sequencer.report_data import load_lot
+from sequencer.cli.main import main
+from sequencer.report.data import load_lot
+from sequencer.report.lotsummary import lot_yield, percent, reported_figures
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 

@@ -8,8 +8,8 @@ from collections import Counter
 import numpy as np
 import pytest
 
-from sequencer import lotsummary
-from sequencer.report_data import load_lot
+from sequencer.report import lotsummary
+from sequencer.report.data import load_lot
 
 
 def _rows(folder):

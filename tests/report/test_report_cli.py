@@ -10,8 +10,8 @@ from pathlib import Path
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.reportcmd import after_run
+from sequencer.cli.main import main
+from sequencer.cli.reportcmd import after_run
 
 ROOT = Path(__file__).resolve().parents[2]
 

@@ -9,8 +9,8 @@ import sqlite3
 import numpy as np
 import pytest
 
-from sequencer.errors import StoreError
-from sequencer.report_data import ReportError, load_lot, value_column
+from sequencer.model.errors import StoreError
+from sequencer.report.data import ReportError, load_lot, value_column
 
 
 def _csv(folder):

@@ -5,8 +5,8 @@ from __future__ import annotations
 from hypothesis import given
 from hypothesis import strategies as st
 
-from sequencer.judgesettings import DEFAULT_BINS, BinRule
-from sequencer.softbins import fixed_numbers, soft_bin_numbers
+from sequencer.model.judgesettings import DEFAULT_BINS, BinRule
+from sequencer.report.softbins import fixed_numbers, soft_bin_numbers
 
 RULES = (
     BinRule(1, "pass", "IP-A"),

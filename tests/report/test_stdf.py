@@ -18,11 +18,11 @@ import pytest
 import yaml
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.judgesettings import FIGURE_INFO, FIGURE_KIND, FIGURE_UNIT
-from sequencer.report_data import ReportError, load_lot
-from sequencer.stdf import stdf_bytes
-from sequencer.units import parse_quantity
+from sequencer.cli.main import main
+from sequencer.model.judgesettings import FIGURE_INFO, FIGURE_KIND, FIGURE_UNIT
+from sequencer.recipe.units import parse_quantity
+from sequencer.report.data import ReportError, load_lot
+from sequencer.report.stdf import stdf_bytes
 from tests.report.conftest import Part, write_run
 
 with warnings.catch_warnings():  # an old module: escape sequences in its regular expressions

@@ -26,12 +26,18 @@ import pytest
 from rich.console import Console
 
 from instruments.scpi import message_units
-from sequencer.cli import main
-
-from ..store.test_write_faults import stored, tiny_filesystem
-from .bench import ROOT, SilentInstrument, loop_bench, read_output, start_sim_process, write_bench
-from .test_guard import assert_output_off, run_loop
-from .test_signals import SLOW_STEPS, lines, wait_for
+from sequencer.cli.main import main
+from tests.safety.bench import (
+    ROOT,
+    SilentInstrument,
+    loop_bench,
+    read_output,
+    start_sim_process,
+    write_bench,
+)
+from tests.safety.test_guard import assert_output_off, run_loop
+from tests.safety.test_signals import SLOW_STEPS, lines, wait_for
+from tests.store.test_write_faults import stored, tiny_filesystem
 
 ENV = {"PATH": "/usr/bin:/bin", "COLUMNS": "300", "PYTHONPATH": str(ROOT)}
 OFF = "output off (read back from the instrument)"
@@ -290,7 +296,7 @@ class FillingLog:
 def test_the_first_write_error_is_shown_when_every_later_write_fails_too(tmp_path, monkeypatch):
     import builtins
 
-    from ..store.conftest import write_recipe
+    from tests.store.conftest import write_recipe
 
     recipe, out = write_recipe(tmp_path / "recipes", channels=5), tmp_path / "run"
     real_open, real_fsync, disk, journal_syncs = builtins.open, os.fsync, {"full": False}, []
@@ -354,7 +360,7 @@ def test_an_instrument_that_never_answers_leaves_the_output_state_unknown(tmp_pa
 def test_of_two_instruments_the_one_that_never_answered_is_named_unknown(tmp_path):
     import yaml
 
-    from .bench import STATION
+    from tests.safety.bench import STATION
 
     with SilentInstrument() as silent:
         station = {k: v for k, v in STATION.items() if k not in ("instrument", "tray")}

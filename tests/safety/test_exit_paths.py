@@ -9,14 +9,13 @@ import signal
 
 import pytest
 
-import sequencer.lotrun
-import sequencer.store
+import sequencer.bench.lotrun
+import sequencer.store.runstore
 from instruments.scpi import message_units
-from sequencer.benchrun import SignalGate, Terminated
-from sequencer.errors import StoreError
-
-from .bench import SET_VOLTAGE, loop_bench
-from .test_guard import assert_output_off, run_loop
+from sequencer.bench.benchrun import SignalGate, Terminated
+from sequencer.model.errors import StoreError
+from tests.safety.bench import SET_VOLTAGE, loop_bench
+from tests.safety.test_guard import assert_output_off, run_loop
 
 
 def tail_after_last_reading(sent: list[str]) -> list[str]:
@@ -70,7 +69,7 @@ def test_levels_above_a_few_volts_are_ramped_down_before_output_off(tmp_path, mo
 @pytest.mark.robustness
 def test_a_judge_that_raises_still_ends_with_the_output_off(tmp_path, monkeypatch):
     bench = loop_bench()
-    real, calls = sequencer.lotrun.judge_curve, []
+    real, calls = sequencer.bench.lotrun.judge_curve, []
 
     def judge(curve, settings):
         calls.append(curve.device)
@@ -78,7 +77,7 @@ def test_a_judge_that_raises_still_ends_with_the_output_off(tmp_path, monkeypatc
             raise ValueError("judge gave up")
         return real(curve, settings)
 
-    monkeypatch.setattr(sequencer.lotrun, "judge_curve", judge)
+    monkeypatch.setattr(sequencer.bench.lotrun, "judge_curve", judge)
     code, text, rows = run_loop(tmp_path, monkeypatch, bench)
     last = text.strip().splitlines()[-1]
     assert code == 4
@@ -91,14 +90,14 @@ def test_a_judge_that_raises_still_ends_with_the_output_off(tmp_path, monkeypatc
 @pytest.mark.robustness
 def test_a_store_failure_mid_run_ends_with_the_output_off(tmp_path, monkeypatch):
     bench = loop_bench()
-    real = sequencer.store.RunStore.add_device
+    real = sequencer.store.runstore.RunStore.add_device
 
     def add(self, curve, judgement):
         if curve.channel == 2:
             raise StoreError("disk full (made up for the test)")
         real(self, curve, judgement)
 
-    monkeypatch.setattr(sequencer.store.RunStore, "add_device", add)
+    monkeypatch.setattr(sequencer.store.runstore.RunStore, "add_device", add)
     code, text, _ = run_loop(tmp_path, monkeypatch, bench)
     assert code == 5
     assert text.strip().splitlines()[-1] == (

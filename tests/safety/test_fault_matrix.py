@@ -13,12 +13,11 @@ from pathlib import Path
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
+from sequencer.cli.main import main
 from simulator import SimOptions
 from simulator.server import ServerHandle, start_server
-
-from .bench import read_output, write_bench
-from .test_guard import read_rows
+from tests.safety.bench import read_output, write_bench
+from tests.safety.test_guard import read_rows
 
 STATION = {
     "instrument": {"resource": "set per test", "timeout": "500 ms"},

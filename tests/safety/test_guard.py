@@ -15,11 +15,10 @@ from rich.console import Console
 import instruments
 from instruments import load_dialect
 from instruments.scpi import message_units
-from sequencer.cli import main
+from sequencer.cli.main import main
 from simulator.devices import Resistor, short_circuit
 from simulator.instrument import Instrument
-
-from .bench import SET_VOLTAGE, LoopBench, loop_bench, write_bench
+from tests.safety.bench import SET_VOLTAGE, LoopBench, loop_bench, write_bench
 
 
 def put_device(inst: Instrument, channel: int, device, kind: str = "short") -> None:

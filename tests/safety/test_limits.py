@@ -9,12 +9,11 @@ import math
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.errors import RecipeError
-from sequencer.limits import Bound, Ratings, RecipeLimits, effective_limits
-from sequencer.recipe import Limits, load_recipe
-
-from .bench import write_bench
+from sequencer.cli.main import main
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.limits import Bound, Ratings, RecipeLimits, effective_limits
+from sequencer.recipe.load import Limits, load_recipe
+from tests.safety.bench import write_bench
 
 
 def run_main(*argv: str) -> tuple[int, str]:
@@ -129,7 +128,7 @@ def test_check_shows_the_effective_limits_and_who_set_them(tmp_path):
 
 
 def station_with(tmp_path, **limits: str):
-    from .bench import STATION
+    from tests.safety.bench import STATION
 
     return write_bench(tmp_path, station={"limits": {**STATION["limits"], **limits}})
 
@@ -180,7 +179,7 @@ def test_a_touch_safe_voltage_above_70_v_needs_a_stated_reason(tmp_path):
 
 
 def test_an_unwritten_touch_safe_voltage_is_42_v_or_the_station_maximum(tmp_path):
-    from .bench import STATION
+    from tests.safety.bench import STATION
 
     low = {"max_voltage": "30 V", "max_current": "20 mA", "max_power": "250 mW"}
     path = write_bench(tmp_path / "low", station={"limits": low})

@@ -12,8 +12,8 @@ import sys
 
 import pytest
 
-from .bench import ROOT, read_output, write_bench
-from .nan_smu import NanSmu
+from tests.safety.bench import ROOT, read_output, write_bench
+from tests.safety.nan_smu import NanSmu
 
 STEPS = [
     {"sweep": {"name": "iv", "start": "0 V", "stop": "30 V", "points": 16, "compliance": "5 mA"}},

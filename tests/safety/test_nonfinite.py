@@ -8,12 +8,12 @@ import math
 
 import pytest
 
-from sequencer.errors import SafetyError
-from sequencer.limits import effective_limits
-from sequencer.plan import Plan, Segment
-from sequencer.recipe import Limits
-from sequencer.safety import Guard, Trip, check_hazard, is_hazardous, preflight
-from sequencer.segmentrun import Point
+from sequencer.model.errors import SafetyError
+from sequencer.plan.make import Plan, Segment
+from sequencer.recipe.limits import effective_limits
+from sequencer.recipe.load import Limits
+from sequencer.run.segment import Point
+from sequencer.safety.rules import Guard, Trip, check_hazard, is_hazardous, preflight
 
 LIMITS = Limits(60.0, 0.02, 0.25)
 NAN, INF = math.nan, math.inf

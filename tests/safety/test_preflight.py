@@ -10,13 +10,12 @@ import pytest
 
 import instruments
 import instruments.embedded
-from sequencer.errors import SafetyError
-from sequencer.plan import make_plan
-from sequencer.recipe import load_recipe
-from sequencer.safety import check_hazard, preflight
-
-from .bench import STATION, never, run_cli, write_bench
-from .test_limits import run_main
+from sequencer.model.errors import SafetyError
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import load_recipe
+from sequencer.safety.rules import check_hazard, preflight
+from tests.safety.bench import STATION, never, run_cli, write_bench
+from tests.safety.test_limits import run_main
 
 
 def sweep(stop: str, compliance: str = "5 mA", name: str = "iv") -> list[dict]:

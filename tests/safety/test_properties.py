@@ -1,5 +1,5 @@
 """Property-based: random station limits, recipe limits, device ratings and steps. An oracle
-written here from the raw numbers (not from sequencer.limits) says whether the plan is possible;
+written here from the raw numbers (not from sequencer.recipe.limits) says whether the plan is possible;
 an impossible one must be refused before the first command, and a possible one, run on the
 simulator, must never put a level, a compliance or a power beyond the effective limit on the
 wire, nor leave the output on."""
@@ -18,11 +18,10 @@ from rich.console import Console
 
 import instruments
 import instruments.embedded
-from sequencer.cli import main
+from sequencer.cli.main import main
 from simulator import SimOptions
 from simulator.server import start_server
-
-from .bench import STATION, loop_bench, never, read_output, write_bench
+from tests.safety.bench import STATION, loop_bench, never, read_output, write_bench
 
 MARGIN = 1e-6  # examples this close to a limit are skipped: the oracle and the code round apart
 

@@ -13,7 +13,7 @@ import time
 
 import pytest
 
-from .bench import ROOT, read_output, start_sim_process, write_bench
+from tests.safety.bench import ROOT, read_output, start_sim_process, write_bench
 
 SLOW_STEPS = [
     {"sweep": {"name": "iv", "start": "0 V", "stop": "30 V", "points": 61, "compliance": "5 mA",

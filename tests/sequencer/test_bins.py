@@ -7,12 +7,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from sequencer.curve import Curve
-from sequencer.judge import MISSING, Judgement, judge_curve, with_bin
-from sequencer.judgesettings import FIGURES, BinRule, FigureLimit, FigureRange, JudgeSettings
-from sequencer.recipe import load_recipe
-
-from .textbook import curve
+from sequencer.judge.engine import MISSING, Judgement, judge_curve, with_bin
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import FIGURES, BinRule, FigureLimit, FigureRange, JudgeSettings
+from sequencer.recipe.load import load_recipe
+from tests.sequencer.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 GRID = np.arange(0.0, 40.0001, 0.5)

@@ -7,8 +7,7 @@ import math
 import numpy as np
 import pytest
 
-from sequencer.curve import Curve
-from sequencer.decide import (
+from sequencer.judge.decide import (
     ABOVE,
     BELOW,
     GUARD_HIGH,
@@ -18,12 +17,12 @@ from sequencer.decide import (
     decide,
     limit_status,
 )
-from sequencer.figures import FigureArrays
-from sequencer.judge import judge_curve
-from sequencer.judgesettings import VERDICTS, FigureLimit, JudgeSettings
-from sequencer.uncertainty import acceptance_zone
-
-from .textbook import curve
+from sequencer.judge.engine import judge_curve
+from sequencer.judge.figures import FigureArrays
+from sequencer.judge.uncertainty import acceptance_zone
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import VERDICTS, FigureLimit, JudgeSettings
+from tests.sequencer.textbook import curve
 
 IP_LIMIT = FigureLimit("regulated_current", 1.62e-3, 1.98e-3)
 

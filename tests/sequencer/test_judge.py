@@ -6,11 +6,10 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from sequencer.curve import Curve
-from sequencer.judge import fit_slope, impedance_from_slope, judge_curve
-from sequencer.recipe import FigureLimit, JudgeSettings
-
-from .textbook import closed_form_current, closed_form_vl, curve
+from sequencer.judge.engine import fit_slope, impedance_from_slope, judge_curve
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import FigureLimit, JudgeSettings
+from tests.sequencer.textbook import closed_form_current, closed_form_vl, curve
 
 GRID = np.arange(0.0, 40.0001, 0.05)
 
@@ -76,7 +75,7 @@ def test_slope_and_stderr_match_scipy_linregress():
 
 def test_masked_rows_match_scipy_linregress_row_by_row():
     # Each row fitted over its own points only (the others masked out), as the lot judge does.
-    from sequencer.slopes import window_fit
+    from sequencer.judge.slopes import window_fit
 
     rng = np.random.default_rng(8)
     v = np.tile(np.linspace(23, 27, 17), (5, 1)) + rng.normal(0, 1e-4, (5, 17))

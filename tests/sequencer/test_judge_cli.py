@@ -13,15 +13,14 @@ import numpy as np
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.judge import judge_curve
-from sequencer.lotjudge import judge_lot
-from sequencer.lotrun import aborted
-from sequencer.recipe import load_recipe
-from sequencer.store import RunStore
-
-from .test_lotjudge import mixed_lot
-from .textbook import curve
+from sequencer.bench.lotrun import aborted
+from sequencer.cli.main import main
+from sequencer.judge.engine import judge_curve
+from sequencer.judge.lotjudge import judge_lot
+from sequencer.recipe.load import load_recipe
+from sequencer.store.runstore import RunStore
+from tests.sequencer.test_lotjudge import mixed_lot
+from tests.sequencer.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 GRID = np.arange(0.0, 40.0001, 0.25)

@@ -7,8 +7,8 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.errors import RecipeError
-from sequencer.recipe import load_recipe, load_station
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.load import load_recipe, load_station
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 DEMO = (RECIPES / "demo.yaml").read_text()
@@ -161,7 +161,7 @@ def test_a_decimal_comma_in_an_accuracy_fraction_says_what_to_write(tmp_path):
 
 
 def test_station_without_accuracy_uses_the_defaults(tmp_path):
-    from sequencer.uncertainty import DEFAULT_ACCURACY
+    from sequencer.judge.uncertainty import DEFAULT_ACCURACY
 
     text = STATION[: STATION.index("# What the SMU measures to")]
     path = tmp_path / "s.yaml"

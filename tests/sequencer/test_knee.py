@@ -7,7 +7,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from sequencer import knee as knee_module
+from sequencer.judge import knee as knee_module
 
 
 def crossing(v, i, good, ref):

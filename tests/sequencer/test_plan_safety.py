@@ -7,11 +7,11 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.errors import SafetyError
-from sequencer.plan import make_plan
-from sequencer.recipe import Limits, load_recipe
-from sequencer.runner import ramp_levels
-from sequencer.safety import Guard, preflight
+from sequencer.model.errors import SafetyError
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import Limits, load_recipe
+from sequencer.run.device import ramp_levels
+from sequencer.safety.rules import Guard, preflight
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 

@@ -6,9 +6,9 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.errors import RecipeError
-from sequencer.recipe import load_recipe, load_station
-from sequencer.units import UnitProblem, parse_quantity
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.load import load_recipe, load_station
+from sequencer.recipe.units import UnitProblem, parse_quantity
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 

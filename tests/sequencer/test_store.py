@@ -9,11 +9,11 @@ import sqlite3
 import numpy as np
 import pytest
 
-from sequencer.curve import Curve
-from sequencer.errors import StoreError
-from sequencer.judge import judge_curve
-from sequencer.recipe import FigureLimit, JudgeSettings
-from sequencer.store import RUN_CSV_COLUMNS, SCHEMA_VERSION, RunStore
+from sequencer.judge.engine import judge_curve
+from sequencer.model.curve import Curve
+from sequencer.model.errors import StoreError
+from sequencer.model.judgesettings import FigureLimit, JudgeSettings
+from sequencer.store.runstore import RUN_CSV_COLUMNS, SCHEMA_VERSION, RunStore
 
 SETTINGS = JudgeSettings(limits=(FigureLimit("dynamic_impedance", 1e5, None),))
 

@@ -8,13 +8,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from sequencer.curve import Curve
-from sequencer.judge import judge_curve
-from sequencer.judgesettings import JudgeSettings
-from sequencer.recipe import load_recipe
-from sequencer.uncertainty import Accuracy, AccuracyTable, RangeAccuracy
-
-from .textbook import curve
+from sequencer.judge.engine import judge_curve
+from sequencer.judge.uncertainty import Accuracy, AccuracyTable, RangeAccuracy
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import JudgeSettings
+from sequencer.recipe.load import load_recipe
+from tests.sequencer.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 

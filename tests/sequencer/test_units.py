@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sequencer.units import (
+from sequencer.recipe.units import (
     KINDS,
     LARGEST_SI,
     SMALLEST_SI,

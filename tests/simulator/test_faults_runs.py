@@ -21,10 +21,10 @@ from instruments import Connection, connect
 from instruments import transport as transport_module
 from instruments.errors import InstrumentDisconnected, InstrumentTimeout, ReplyError, ScpiError
 from instruments.transport import open_visa
-from sequencer.lotrun import run_lot
-from sequencer.plan import make_plan
-from sequencer.recipe import Recipe, load_recipe
-from sequencer.store import RunStore
+from sequencer.bench.lotrun import run_lot
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import Recipe, load_recipe
+from sequencer.store.runstore import RunStore
 from simulator import ServerHandle, SimOptions, start_server
 from simulator.faults import parse_fault
 

@@ -6,8 +6,8 @@ from pathlib import Path
 
 import pytest
 
-from sequencer import recipe as recipe_module
-from sequencer.errors import RecipeError
+from sequencer.model.errors import RecipeError
+from sequencer.recipe import load as recipe_module
 from simulator import Session, SimOptions, build_instrument
 from simulator import __main__ as cli
 from simulator.errors import OptionError

@@ -19,10 +19,10 @@ from pathlib import Path
 import pytest
 
 from instruments import connect
-from sequencer.lotrun import run_lot
-from sequencer.plan import make_plan
-from sequencer.recipe import load_recipe
-from sequencer.store import RunStore
+from sequencer.bench.lotrun import run_lot
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import load_recipe
+from sequencer.store.runstore import RunStore
 
 pytestmark = pytest.mark.sim
 

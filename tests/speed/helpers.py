@@ -12,11 +12,11 @@ from instruments.dialect import load_dialect
 from instruments.scpi import message_units
 from instruments.smu import ScpiSmu
 from instruments.transport import CallableTransport
-from sequencer.judge import Judgement, judge_curve
-from sequencer.lotrun import device_name, make_guard
-from sequencer.plan import make_plan
-from sequencer.recipe import Recipe, load_recipe
-from sequencer.runner import Recorder, measure_device
+from sequencer.bench.lotrun import device_name, make_guard
+from sequencer.judge.engine import Judgement, judge_curve
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import Recipe, load_recipe
+from sequencer.run.device import Recorder, measure_device
 from simulator.options import SimOptions, build_instrument
 from simulator.session import Session
 from simulator.smu_model import noiseless  # noqa: F401 - the speed tests import it from here

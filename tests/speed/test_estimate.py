@@ -8,10 +8,10 @@ import dataclasses
 import numpy as np
 import pytest
 
-from sequencer.estimate import Timing, after_run, estimate, predict
-from sequencer.lotrun import make_guard
-from sequencer.plan import make_plan
-from sequencer.runner import Recorder, measure_device
+from sequencer.bench.lotrun import make_guard
+from sequencer.plan.make import make_plan
+from sequencer.run.device import Recorder, measure_device
+from sequencer.run.estimate import Timing, after_run, estimate, predict
 from tests.speed.helpers import lot_smu, recipes
 
 
@@ -68,8 +68,8 @@ def test_after_a_run_the_prediction_and_the_time_taken_stand_side_by_side():
 
 
 def test_a_station_whose_dialect_cannot_be_read_is_refused_by_the_estimate(tmp_path):
-    from sequencer.errors import RecipeError
-    from sequencer.recipe import load_recipe
+    from sequencer.model.errors import RecipeError
+    from sequencer.recipe.load import load_recipe
     from tests.speed.helpers import ROOT
 
     text = (ROOT / "recipes" / "demo-station.yaml").read_text()

@@ -10,15 +10,15 @@ import dataclasses
 import numpy as np
 import pytest
 
-from sequencer import judge as judge_module
-from sequencer.bins import _members
-from sequencer.curve import Curve
-from sequencer.decide import FAILING, GUARDED, IS_FAILING, IS_GUARDED
-from sequencer.figures import Layout
-from sequencer.judge import judge_arrays, judge_curve
-from sequencer.judgesettings import CLASSIFICATIONS, VERDICTS
-from sequencer.lotjudge import judge_lot
-from sequencer.uncertainty import DEFAULT_CURRENT, DEFAULT_VOLTAGE
+from sequencer.judge import engine as judge_module
+from sequencer.judge.bins import _members
+from sequencer.judge.decide import FAILING, GUARDED, IS_FAILING, IS_GUARDED
+from sequencer.judge.engine import judge_arrays, judge_curve
+from sequencer.judge.figures import Layout
+from sequencer.judge.lotjudge import judge_lot
+from sequencer.judge.uncertainty import DEFAULT_CURRENT, DEFAULT_VOLTAGE
+from sequencer.model.curve import Curve
+from sequencer.model.judgesettings import CLASSIFICATIONS, VERDICTS
 from tests.sequencer.test_lotjudge import _same
 from tests.speed.helpers import measure_lot, recipes
 

@@ -8,13 +8,13 @@ import dataclasses
 import numpy as np
 import pytest
 
-from sequencer.limits import Ratings, effective_limits
-from sequencer.lotrun import make_guard
-from sequencer.plan import Segment, make_plan
-from sequencer.recipe import Limits
-from sequencer.runner import Recorder, measure_device
-from sequencer.safety import Guard
-from sequencer.segmentrun import list_is_safe
+from sequencer.bench.lotrun import make_guard
+from sequencer.plan.make import Segment, make_plan
+from sequencer.recipe.limits import Ratings, effective_limits
+from sequencer.recipe.load import Limits
+from sequencer.run.device import Recorder, measure_device
+from sequencer.run.segment import list_is_safe
+from sequencer.safety.rules import Guard
 from simulator.smu_model import CURRENT_RESOLUTION_OF_RANGE, VOLTAGE_RESOLUTION_V
 from tests.speed.helpers import lot_smu, recipes
 
@@ -132,6 +132,6 @@ def test_an_interrupted_list_ramps_down_from_its_last_level():
     with pytest.raises(KeyboardInterrupt):
         measure_device(wrapped, make_plan(recipe), 1, guard, Recorder())
     # the sweep's list ends at 40 V, where the instrument stays once it has the list: the
-    # ramp starts 5 V below it (sequencer.runner.ramp_levels), then the output goes off
+    # ramp starts 5 V below it (sequencer.run.device.ramp_levels), then the output goes off
     assert wrapped.levels == [0.0, 35.0, 30.0, 25.0, 20.0, 15.0, 10.0, 5.0, 0.0]
     assert not smu.output_is_on()

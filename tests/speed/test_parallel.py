@@ -10,10 +10,10 @@ import time
 import numpy as np
 import pytest
 
-from sequencer.lotrun import make_guard, run_lot
-from sequencer.parallel import Halted, Lane, lane_guards, run_parallel
-from sequencer.plan import make_plan
-from sequencer.safety import Trip
+from sequencer.bench.lotrun import make_guard, run_lot
+from sequencer.bench.parallel import Halted, Lane, lane_guards, run_parallel
+from sequencer.plan.make import make_plan
+from sequencer.safety.rules import Trip
 from tests.speed.helpers import lot_smu, recipes
 
 DEVICES = 9

@@ -11,13 +11,14 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from sequencer.errors import RecipeError
-from sequencer.judgesettings import JudgeSettings
-from sequencer.kneesearch import KneeSearch, next_level
-from sequencer.plan import make_plan
-from sequencer.production import fixed_levels, knee_search, window_levels
-from sequencer.recipe import FiguresStep, load_recipe
-from sequencer.safety import preflight
+from sequencer.model.errors import RecipeError
+from sequencer.model.judgesettings import JudgeSettings
+from sequencer.plan.kneesearch import KneeSearch, next_level
+from sequencer.plan.make import make_plan
+from sequencer.plan.production import fixed_levels, knee_search, window_levels
+from sequencer.recipe.figuresstep import FiguresStep
+from sequencer.recipe.load import load_recipe
+from sequencer.safety.rules import preflight
 from tests.speed.helpers import PRODUCTION, regulator_current
 
 
@@ -48,7 +49,7 @@ def test_reverse_level_and_spot_repeats_join_the_plan():
     judge = JudgeSettings(reverse_voltage_v=-5.0, peak_voltage_v=None, slope_window_v=2.0)
     step = FiguresStep("p", 5e-3, 0.0, repeats=3)
     assert fixed_levels(step, judge) == (-5.0, 5.0, 6.0, 7.0, 24.0, 25.0, 26.0)
-    from sequencer.production import production_segments
+    from sequencer.plan.production import production_segments
 
     segments = production_segments(step, judge)
     assert [(s.step, s.kind, s.levels_v) for s in segments[1:2]] == [

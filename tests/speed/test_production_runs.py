@@ -11,9 +11,9 @@ import sys
 import numpy as np
 import pytest
 
-from sequencer.figures import Layout, Readings, compute
-from sequencer.kneesearch import knee_reference
-from sequencer.plan import make_plan
+from sequencer.judge.figures import Layout, Readings, compute
+from sequencer.plan.kneesearch import knee_reference
+from sequencer.plan.make import make_plan
 from tests.speed.helpers import ROOT, measure_lot, noiseless, recipes
 
 DEVICES = 40

@@ -11,8 +11,8 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.errors import RecipeError
-from sequencer.recipe import load_recipe, load_station
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.load import load_recipe, load_station
 from tests.speed.helpers import ROOT
 
 DEMO_STATION = (ROOT / "recipes" / "demo-station.yaml").read_text()
@@ -110,8 +110,8 @@ def test_ccbench_run_on_four_instruments_gives_what_one_gives(tmp_path):
 
 
 def test_check_shows_the_estimate_for_four_instruments_at_once(tmp_path):
-    from sequencer.estimate import predict
-    from sequencer.plan import make_plan
+    from sequencer.plan.make import make_plan
+    from sequencer.run.estimate import predict
 
     recipe = load_recipe(ROOT / "recipes" / "demo-production.yaml")
     several = load_recipe(

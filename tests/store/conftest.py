@@ -12,10 +12,10 @@ import pytest
 from instruments.dialect import load_dialect
 from instruments.smu import ScpiSmu
 from instruments.transport import CallableTransport
-from sequencer.lotrun import RunSummary, run_lot
-from sequencer.plan import Plan, make_plan
-from sequencer.recipe import Recipe, load_recipe
-from sequencer.store import RunStore
+from sequencer.bench.lotrun import RunSummary, run_lot
+from sequencer.plan.make import Plan, make_plan
+from sequencer.recipe.load import Recipe, load_recipe
+from sequencer.store.runstore import RunStore
 from simulator.options import SimOptions, build_instrument
 from simulator.session import Session
 

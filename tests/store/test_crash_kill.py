@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from .conftest import stored, write_recipe
+from tests.store.conftest import stored, write_recipe
 
 ROOT = Path(__file__).resolve().parents[2]
 KILLS = 10  # SIGKILLs per test run; each resumed run is killed again until this many

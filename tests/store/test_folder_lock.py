@@ -13,11 +13,10 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.errors import StoreError
-from sequencer.runfolder import LOCK_FILE, FolderLock, FolderRefused, LockLost, read_manifest
-from sequencer.store import RunStore
-
-from .conftest import load, manifest_of, measure_into, write_recipe
+from sequencer.model.errors import StoreError
+from sequencer.store.runfolder import LOCK_FILE, FolderLock, FolderRefused, LockLost, read_manifest
+from sequencer.store.runstore import RunStore
+from tests.store.conftest import load, manifest_of, measure_into, write_recipe
 
 ROOT = Path(__file__).resolve().parents[2]
 MANIFEST = {"started": "2026-05-04T22:00:00.000+00:00", "lot": "FK2611-07", "recipe_sha256": "a"}

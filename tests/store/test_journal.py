@@ -10,8 +10,8 @@ import os
 
 import pytest
 
-from sequencer.errors import StoreError
-from sequencer.journal import Journal, decode_floats, encode_floats, read_entries, recover
+from sequencer.model.errors import StoreError
+from sequencer.store.journal import Journal, decode_floats, encode_floats, read_entries, recover
 
 
 def _three(path):
@@ -57,7 +57,7 @@ def test_a_torn_last_line_is_dropped_with_a_warning_and_the_rest_kept(tmp_path, 
     last_start = data.rstrip(b"\n").rfind(b"\n") + 1
     torn = data[: last_start + cut] if cut > 0 else data[:cut]
     path.write_bytes(torn)
-    with caplog.at_level(logging.WARNING, logger="sequencer.journal"):
+    with caplog.at_level(logging.WARNING, logger="sequencer.store.journal"):
         found = recover(path)
     assert (found.entries, found.last_seq) == (2, 2)
     assert found.dropped == torn[last_start:]

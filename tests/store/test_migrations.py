@@ -7,10 +7,10 @@ from pathlib import Path
 
 import pytest
 
-from sequencer import migrations
-from sequencer.database import open_database
-from sequencer.errors import StoreError
-from sequencer.export import load_run
+from sequencer.model.errors import StoreError
+from sequencer.store import migrations
+from sequencer.store.database import open_database
+from sequencer.store.export import load_run
 
 V1_DUMP = Path(__file__).parent / "data" / "run-v1.sql"
 

@@ -10,11 +10,10 @@ import pandas as pd
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.export import Filter, find_runs, merge_runs, parse_since
-from sequencer.store import RunStore
-
-from .conftest import load, manifest_of, measure_into, write_recipe
+from sequencer.cli.main import main
+from sequencer.store.export import Filter, find_runs, merge_runs, parse_since
+from sequencer.store.runstore import RunStore
+from tests.store.conftest import load, manifest_of, measure_into, write_recipe
 
 
 def run(*argv: str) -> tuple[int, str]:

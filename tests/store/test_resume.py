@@ -9,14 +9,13 @@ from dataclasses import replace
 
 import pytest
 
-from sequencer import database
-from sequencer.errors import StoreError
-from sequencer.lotrun import run_lot
-from sequencer.plan import make_plan
-from sequencer.store import RunStore
-
-from .conftest import load, manifest_of, measure_into, sim_smu
-from .conftest import stored as devices
+from sequencer.bench.lotrun import run_lot
+from sequencer.model.errors import StoreError
+from sequencer.plan.make import make_plan
+from sequencer.store import database
+from sequencer.store.runstore import RunStore
+from tests.store.conftest import load, manifest_of, measure_into, sim_smu
+from tests.store.conftest import stored as devices
 
 
 class StopAt:

@@ -8,10 +8,9 @@ import io
 import pytest
 from rich.console import Console
 
-from sequencer.cli import main
-from sequencer.runfolder import FolderLock
-
-from .conftest import write_recipe
+from sequencer.cli.main import main
+from sequencer.store.runfolder import FolderLock
+from tests.store.conftest import write_recipe
 
 
 def ccbench(*argv: str) -> tuple[int, str]:

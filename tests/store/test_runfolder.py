@@ -15,11 +15,10 @@ from pathlib import Path
 
 import pytest
 
-from sequencer.errors import CcbenchError, StoreError
-from sequencer.runfolder import FolderLock, FolderRefused, read_manifest
-from sequencer.store import RunStore
-
-from .conftest import load, manifest_of, measure_into
+from sequencer.model.errors import CcbenchError, StoreError
+from sequencer.store.runfolder import FolderLock, FolderRefused, read_manifest
+from sequencer.store.runstore import RunStore
+from tests.store.conftest import load, manifest_of, measure_into
 
 MANIFEST = {"started": "2026-05-04T22:00:00.000+00:00", "lot": "FK2611-07", "recipe_sha256": "a"}
 
@@ -38,7 +37,7 @@ def test_the_lock_is_held_across_processes_and_freed_when_its_holder_dies(tmp_pa
     folder = tmp_path / "run"
     holder = subprocess.Popen(
         [sys.executable, "-c", "import sys, time; from pathlib import Path; "
-         "from sequencer.runfolder import FolderLock; held = FolderLock.take(Path(sys.argv[1])); "
+         "from sequencer.store.runfolder import FolderLock; held = FolderLock.take(Path(sys.argv[1])); "
          "print('held', flush=True); time.sleep(60)", str(folder)],
         stdout=subprocess.PIPE, text=True, env={**os.environ, "PYTHONPATH": os.getcwd()},
     )  # fmt: skip

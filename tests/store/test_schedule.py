@@ -9,15 +9,14 @@ from dataclasses import replace
 
 import pytest
 
-from sequencer.errors import RecipeError
-from sequencer.lotrun import RunSummary
-from sequencer.plan import make_plan
-from sequencer.recipe import load_recipe
-from sequencer.repeat import Repeat, repeat_from_options
-from sequencer.schedule import next_due, run_passes
-from sequencer.store import RunStore
-
-from .conftest import load, manifest_of, measure_into, write_recipe
+from sequencer.bench.lotrun import RunSummary
+from sequencer.bench.schedule import next_due, run_passes
+from sequencer.model.errors import RecipeError
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import load_recipe
+from sequencer.recipe.repeat import Repeat, repeat_from_options
+from sequencer.store.runstore import RunStore
+from tests.store.conftest import load, manifest_of, measure_into, write_recipe
 
 MIN, HOUR = 60.0, 3600.0
 

@@ -18,10 +18,9 @@ import pytest
 from rich.console import Console
 
 from instruments.scpi import message_units
-from sequencer import database
-from sequencer.cli import main
-
-from .conftest import write_recipe
+from sequencer.cli.main import main
+from sequencer.store import database
+from tests.store.conftest import write_recipe
 
 pytestmark = [pytest.mark.sim, pytest.mark.robustness]
 

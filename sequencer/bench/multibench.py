@@ -1,0 +1,155 @@
+"""`ccbench run` on a station of several instruments: connect each, start each safe, measure on
+all at once (sequencer.bench.parallel), and switch every output off however the run ends.
+
+The same rules as one instrument (benchrun.on_bench), once per instrument: the safe start
+before anything else, the interlock read at the start of a hazardous run, signals held except
+while devices are measured, and at the end each output ramped down from its own last level,
+switched off and read back (reconnecting once if needed). Each instrument's SCPI exchanges go
+to its own log, `scpi-<name>.log`, so that every line can be traced to one instrument.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from contextlib import ExitStack
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from rich.console import Console
+
+from sequencer.bench.benchrun import NOTHING_SENT, UNTOUCHED, SignalGate, exchange_log
+from sequencer.bench.lotrun import RunSummary, make_guard
+from sequencer.bench.parallel import Lane, LaneGuard, lane_guards, run_parallel
+from sequencer.cli.view import device_line, progress_bar
+from sequencer.plan.make import Plan
+from sequencer.recipe.instrumentspec import InstrumentSpec
+from sequencer.recipe.load import Recipe
+from sequencer.safety.rules import is_hazardous
+from sequencer.store.runstore import RunStore
+
+if TYPE_CHECKING:
+    from instruments import Connection
+    from sequencer.run.shutdown import Shutdown
+
+
+@dataclass
+class Benches:
+    """How each instrument's output was left, for the last line on screen."""
+
+    names: list[str] = field(default_factory=list)  # connected
+    shutdowns: dict[str, Shutdown] = field(default_factory=dict)
+    tried: list[str] = field(default_factory=list)  # a connection was tried
+
+    def ending(self) -> str:
+        if not self.tried:
+            return NOTHING_SENT
+        if len(self.shutdowns) == len(self.tried) and all(
+            s.off and not s.reconnected for s in self.shutdowns.values()
+        ):
+            count = len(self.shutdowns)
+            return f"output off on all {count} instruments (read back from each)"
+        return "; ".join(
+            f"{name}: {self.shutdowns[name].describe() if name in self.shutdowns else UNTOUCHED}"
+            for name in self.tried
+        )
+
+    def may_be_on(self) -> bool:
+        """True when ccbench drove an instrument and could not read its output back off."""
+        return any(not s.off for s in self.shutdowns.values())
+
+
+def log_name(spec: InstrumentSpec) -> str:
+    return f"scpi-{spec.name}.log"
+
+
+def measure_on_benches(
+    recipe: Recipe,
+    plan: Plan,
+    sim: bool,
+    out: Path,
+    store: RunStore,
+    measure_passes: Callable[[Callable[[Plan], RunSummary]], RunSummary],
+    console: Console,
+    benches: Benches,
+    gate: SignalGate,
+) -> RunSummary:
+    """Connect every instrument of the station, run `measure_passes(one_pass)` on all of them,
+    then switch every output off. Call it from the CLI with the run's store open."""
+    specs = recipe.station.instruments
+    conns: list[Connection] = []
+    guards: list[LaneGuard] = []
+    with gate.held(), ExitStack() as stack:  # the shutdown below runs before signals act
+        logs = [stack.enter_context(exchange_log(out / log_name(s))) for s in specs]
+        stack.callback(_switch_all_off, conns, guards, specs, benches)
+        for spec, log in zip(specs, logs, strict=True):
+            benches.tried.append(spec.name)
+            conns.append(_connect(recipe, spec, sim, log))
+            benches.names.append(spec.name)
+        guards += lane_guards([make_guard(recipe, conn.smu) for conn in conns])
+        _start_all_safe(recipe, plan, conns, specs, console)
+        store.set_identity(
+            "; ".join(c.resource for c in conns), "; ".join(c.identity for c in conns)
+        )
+        lanes = [
+            Lane(spec.name, conn.smu, guard, spec.channels)
+            for spec, conn, guard in zip(specs, conns, guards, strict=True)
+        ]
+
+        def one_pass(part: Plan) -> RunSummary:
+            return _measure(console, recipe, part, lanes, store)
+
+        with gate.raising():
+            return measure_passes(one_pass)
+
+
+def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection:
+    from instruments import connect
+
+    resource = "sim" if sim else spec.resource
+    options = recipe.station.simulator_options if resource == "sim" else None
+    return connect(
+        resource, dialect=spec.dialect, timeout_s=spec.timeout_s, spy_log=log, sim_options=options
+    )
+
+
+def _start_all_safe(recipe, plan, conns, specs, console: Console) -> None:
+    from sequencer.run.shutdown import require_interlock, start_safe
+
+    for spec, conn in zip(specs, conns, strict=True):
+        start_safe(conn.smu)  # the first commands after *IDN?
+        console.print(
+            f"instrument {spec.name}: {conn.identity} at {conn.resource}, channels "
+            f"{_channels(spec.channels)}",
+            soft_wrap=True,
+        )
+    if is_hazardous(plan, recipe.effective_limits):
+        for conn in conns:
+            require_interlock(conn.smu, plan.peak_voltage_v)
+
+
+def _channels(channels: tuple[int, ...]) -> str:
+    if channels == tuple(range(channels[0], channels[-1] + 1)) and len(channels) > 2:
+        return f"{channels[0]}-{channels[-1]}"
+    return ", ".join(str(c) for c in channels)
+
+
+def _switch_all_off(conns, guards, specs, benches: Benches) -> None:
+    """Every connected instrument: ramp down from its own last level, off, read back."""
+    from sequencer.run.shutdown import make_safe
+
+    for k, conn in enumerate(conns):
+        level = guards[k].level_v if k < len(guards) else 0.0
+        benches.shutdowns[specs[k].name] = make_safe(conn, level)
+        conn.close()
+
+
+def _measure(console: Console, recipe: Recipe, plan: Plan, lanes, store) -> RunSummary:
+    with progress_bar(console) as progress:
+        task = progress.add_task("devices", total=len(plan.channels))
+
+        def shown(done) -> None:
+            progress.console.print(device_line(done), soft_wrap=True)
+            progress.advance(task)
+
+        return run_parallel(recipe, plan, lanes, store, shown)

@@ -1,0 +1,1 @@
+"""The command line: the only place that reads arguments and draws on the terminal."""

@@ -1,0 +1,5 @@
+"""`python -m sequencer.cli`: the same as the `ccbench` command."""
+
+from sequencer.cli.main import entry
+
+entry()

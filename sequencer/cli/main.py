@@ -1,0 +1,347 @@
+"""`ccbench`: the command line. Errors become one clear line and a non-zero exit code."""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import getpass
+import json
+import os
+import platform
+import subprocess
+import sys
+import traceback
+from collections.abc import Sequence
+from pathlib import Path
+
+from rich.console import Console
+
+from sequencer import __version__
+from sequencer.bench import multibench
+from sequencer.bench import parts as operator
+from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
+from sequencer.bench.lotrun import run_lot
+from sequencer.cli import judgecmd, reportcmd, results
+from sequencer.cli import runcmd as runsession
+from sequencer.cli.safetyview import limits_table
+from sequencer.cli.screen import Screen
+from sequencer.cli.view import device_line, plan_summary, plan_table, progress_bar, summary_table
+from sequencer.model.errors import CcbenchError, RunError
+from sequencer.plan.make import make_plan
+from sequencer.recipe.load import Recipe, load_recipe
+from sequencer.run.estimate import after_run, predict
+from sequencer.safety.rules import CAUTION, check_hazard, is_hazardous, preflight
+from sequencer.store.shared import shipper
+
+EXIT_INTERRUPTED = 130
+EXIT_OUTPUT_MAY_BE_ON = 6  # wins over every other code: the one a supervising script must see
+
+
+class Stopped(CcbenchError):
+    """A signal (Ctrl-C, SIGTERM, SIGHUP, SIGQUIT) ended a run; the message says how the
+    output was left."""
+
+    exit_code = EXIT_INTERRUPTED
+
+
+HAZARD_HELP = (
+    "acknowledge levels above the station's touch-safe voltage (instead of the recipe's "
+    "'hazardous_voltage: acknowledged')"
+)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="ccbench",
+        description="Test and characterise two-terminal constant-current regulators with an SMU.",
+    )
+    parser.add_argument("--version", action="version", version=f"ccbench {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    run = sub.add_parser("run", help="measure, judge and store every device of a recipe")
+    run.add_argument("recipe", type=Path)
+    run.add_argument("--sim", action="store_true", help="use the embedded simulated SMU")
+    run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
+    run.add_argument("--station", type=Path, help="station file instead of the recipe's")
+    run.add_argument("--operator", default="", help="operator name for the records")
+    run.add_argument("--part-by-part", action="store_true", help=operator.FLAG_HELP)
+    run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
+    runsession.add_run_options(run)
+
+    check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
+    check.add_argument("recipe", type=Path)
+    check.add_argument("--station", type=Path, help="station file instead of the recipe's")
+    check.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
+
+    judgecmd.add_parsers(sub)
+    reportcmd.add_parser(sub)
+
+    results.add_parser(sub)
+    shipper.add_parser(sub)
+
+    sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
+    sim.add_argument("--port", type=int, default=0)
+    sim.add_argument("--seed", type=int, default=1)
+    sim.add_argument("--devices", type=int, default=20)
+    sim.add_argument("--preset", default="FLC-1.8")
+    return parser
+
+
+def main(
+    argv: Sequence[str] | None = None,
+    console: Console | None = None,
+    *,
+    exiting: bool = False,
+) -> int:
+    """Run one command; returns its exit code. `exiting`: the process ends after this (the
+    `ccbench` program itself), so stop signals stay ignored once the command is over."""
+    console = console or Console(file=Screen(sys.stdout), highlight=False)
+    args = build_parser().parse_args(argv)
+    try:
+        with GATE.installed(ignore_after=exiting):  # the first signal raises; more cannot
+            return COMMANDS[args.command](args, console)  # cut a shutdown short
+    except CcbenchError as exc:
+        console.print(f"[bold red]ccbench:[/] {exc}", soft_wrap=True)
+        return exc.exit_code
+    except (KeyboardInterrupt, Terminated) as exc:
+        console.print(f"[bold yellow]ccbench:[/] {_why_stopped(exc)}", soft_wrap=True)
+        return EXIT_INTERRUPTED
+
+
+def _why_stopped(exc: BaseException) -> str:
+    """'stopped by SIGHUP', say (the signal gate names the signal in the exception)."""
+    return str(exc) or ("stopped by Ctrl-C" if isinstance(exc, KeyboardInterrupt) else "stopped")
+
+
+def entry() -> None:
+    """The `ccbench` program: main, then an exit that a late signal cannot change."""
+    sys.exit(main(exiting=True))
+
+
+def cmd_check(args: argparse.Namespace, console: Console) -> int:
+    recipe = load_recipe(args.recipe, station_path=args.station)
+    plan = make_plan(recipe)
+    _preflight(recipe, plan, args)
+    console.print(plan_table(recipe, plan))
+    console.print(limits_table(recipe, plan))
+    console.print(plan_summary(recipe, plan, predict(recipe, plan)), soft_wrap=True)
+    console.print(f"{recipe.file}: valid; within the limits of station {recipe.station.name}")
+    return 0
+
+
+def cmd_run(args: argparse.Namespace, console: Console) -> int:
+    recipe = load_recipe(args.recipe, station_path=args.station)
+    plan = make_plan(recipe)
+    _preflight(recipe, plan, args)  # refuses before anything is started or opened
+    resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
+    _cautions(console, recipe, plan)
+    prediction = predict(recipe, plan)
+    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
+    out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
+    repeat = runsession.repeat_for(recipe, args)
+    manifest = _manifest(recipe, plan, args, resource)
+    manifest |= runsession.manifest_extras(recipe, resource, repeat)
+    manifest |= operator.manifest_extras(recipe, args, repeat)
+    shipper.check_driver(recipe.station.results_database)
+    store = runsession.open_store(out, manifest, args, console)
+    if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
+        return 0
+    several = len(recipe.station.instruments) > 1
+    bench = multibench.Benches() if several else Bench()
+    status, error, uploads = "failed", None, None
+    try:
+        uploads = shipper.start_for(recipe.station.results_database, store, console)
+        if several:  # one worker per instrument; sequencer/multibench.py
+            summary = multibench.measure_on_benches(
+                recipe, plan, args.sim, out, store,
+                lambda one: runsession.measure_passes(console, store, plan, repeat, one),
+                console, bench, GATE,
+            )  # fmt: skip
+        else:
+            summary = _on_one_bench(
+                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part
+            )
+        status = summary.status
+    except (Exception, KeyboardInterrupt, Terminated) as exc:
+        status = "interrupted" if isinstance(exc, KeyboardInterrupt | Terminated) else "failed"
+        error = _run_error(exc, bench, out)
+    finally:
+        GATE.settle()  # measuring is over: a late signal cannot cut the record or the last line
+        ended = error.message if error else f"{status}; {bench.ending()}"
+        _finish(console, store, status, ended)
+        shipper.finish(uploads, console)
+    if error is not None:
+        if bench.may_be_on():
+            error.exit_code = EXIT_OUTPUT_MAY_BE_ON
+        raise error
+    console.print(summary_table(summary))
+    took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
+    console.print(took, soft_wrap=True)
+    reportcmd.after_run(console, out)
+    console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
+    return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
+
+
+def _run_error(exc: BaseException, bench: Bench | multibench.Benches, out: Path) -> CcbenchError:
+    """The one error a run ends with, its last line saying how the output was left. The first
+    error wins: nothing that fails after it (a log file on a full disk) may take its place."""
+    from instruments import InstrumentError
+
+    ending = bench.ending()
+    if isinstance(exc, InstrumentError):
+        return RunError(f"instrument: {exc}; {ending}")
+    if isinstance(exc, CcbenchError):
+        exc.message = f"{exc.message}; {ending}"
+        return exc
+    if isinstance(exc, KeyboardInterrupt | Terminated):
+        return Stopped(f"{_why_stopped(exc)}; {ending}; what was measured is kept in {out}")
+    # a bug (in the judge, say): still one line, the output state in it
+    detail = f"internal error ({type(exc).__name__}: {exc}); {ending}"
+    try:
+        (out / "traceback.txt").write_text(traceback.format_exc(), encoding="utf-8")
+    except OSError as failed:
+        return RunError(f"{detail}; its traceback could not be saved ({failed.strerror})")
+    return RunError(f"{detail}; details in {out / 'traceback.txt'}")
+
+
+def _finish(console: Console, store, status: str, ended: str) -> None:
+    """Record how the session ended, with what the screen no longer showed."""
+    lost = getattr(console.file, "lost", "")
+    problem = store.finish(status, _now(), ended=f"{ended}; {lost}" if lost else ended)
+    if problem and status == "completed":  # after a failure, the failure is the news
+        console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
+
+
+def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
+    """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
+    from instruments import connect
+
+    with exchange_log(out / "scpi.log") as log, GATE.held():
+        bench.connecting = True
+        conn = connect(
+            resource,
+            dialect=recipe.station.dialect,
+            timeout_s=recipe.station.timeout_s,
+            spy_log=log,
+            sim_options=recipe.station.simulator_options if resource == "sim" else None,
+        )
+
+        def measure(guard):
+            store.set_identity(conn.resource, conn.identity)
+            if part_by_part:
+                tester = operator.PartBench(recipe, plan, conn.smu, store, guard)
+                write, sim = conn.smu.transport.write, resource == "sim"
+                return operator.from_command_line(console, tester, sim, write)
+
+            def one_pass(part):
+                return _measure(console, recipe, part, conn.smu, store, guard)
+
+            return runsession.measure_passes(console, store, plan, repeat, one_pass)
+
+        def announce(text):
+            console.print(text, soft_wrap=True)
+
+        return on_bench(conn, recipe, plan, measure, bench, GATE, announce)
+
+
+def _measure(console, recipe, plan, smu, store, guard):
+    with progress_bar(console) as progress:
+        task = progress.add_task("devices", total=len(plan.channels))
+
+        def shown(done):
+            progress.console.print(device_line(done), soft_wrap=True)
+            progress.advance(task)
+
+        return run_lot(recipe, plan, smu, store, shown, guard=guard)
+
+
+def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:
+    """Every planned level against the effective limits, then the hazardous-voltage rules."""
+    limits = preflight(plan, recipe.effective_limits)
+    check_hazard(
+        plan,
+        limits,
+        station=recipe.station.name,
+        interlocked=recipe.station.interlocked_fixture,
+        acknowledged=recipe.hazardous_voltage_acknowledged or args.allow_hazardous_voltage,
+    )
+
+
+def _cautions(console: Console, recipe: Recipe, plan) -> None:
+    console.print(f"[yellow]{CAUTION}[/]", soft_wrap=True)
+    limits = recipe.effective_limits
+    if is_hazardous(plan, limits):
+        how = "in the recipe" if recipe.hazardous_voltage_acknowledged else "on the command line"
+        console.print(
+            f"[bold red]HAZARDOUS VOLTAGE:[/] this run applies up to {plan.peak_voltage_v:g} V "
+            f"(touch-safe limit {limits.touch_safe_v:g} V; acknowledged {how}). The fixture "
+            "lid must stay closed; the interlock is read before every such level and the run "
+            "stops if it opens.",
+            soft_wrap=True,
+        )
+
+
+def _manifest(recipe: Recipe, plan, args: argparse.Namespace, resource: str) -> dict[str, object]:
+    return {
+        "started": _now(),
+        "product": recipe.product,
+        "lot": recipe.lot,
+        "operator": args.operator or recipe.operator or getpass.getuser(),
+        "host": platform.node(),
+        "software_version": __version__,
+        "recipe_file": recipe.file,
+        "recipe_sha256": recipe.digest,
+        "recipe_text": recipe.text,
+        "station": recipe.station.name,
+        "station_text": recipe.station.text,
+        "resource": resource,
+        "simulator": json.dumps(recipe.station.simulator_options) if resource == "sim" else None,
+        "hazardous_voltage": _acknowledgement(recipe, plan, args),
+    }
+
+
+def _acknowledgement(recipe: Recipe, plan, args: argparse.Namespace) -> str | None:
+    """Who allowed levels above the touch-safe voltage, for the run record (None: no such
+    level is planned, or nobody needed to)."""
+    if not is_hazardous(plan, recipe.effective_limits):
+        return None
+    if recipe.hazardous_voltage_acknowledged:
+        return f"acknowledged in the recipe ({recipe.file})"
+    if getattr(args, "allow_hazardous_voltage", False):
+        return "acknowledged on the command line (--allow-hazardous-voltage)"
+    return None
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.UTC).isoformat(timespec="milliseconds")
+
+
+def cmd_sim(args: argparse.Namespace, console: Console) -> int:
+    console.print(
+        "simulated SMU: no real output. Put the resource below in a station file "
+        "(instrument.resource); Ctrl-C stops it."
+    )
+    command = [sys.executable, "-m", "simulator", "serve", "--port", str(args.port)]
+    command += ["--seed", str(args.seed), "--devices", str(args.devices), "--preset", args.preset]
+    child = subprocess.Popen(command, env=dict(os.environ))
+    try:
+        return child.wait()
+    except (KeyboardInterrupt, Terminated):
+        child.terminate()
+        child.wait(timeout=10)
+        return 0
+
+
+COMMANDS = {
+    "run": cmd_run,
+    "check": cmd_check,
+    "sim": cmd_sim,
+    **judgecmd.COMMANDS,
+    **reportcmd.COMMANDS,
+    "results": results.cmd_results,
+    "upload": shipper.cmd_upload,
+}
+
+
+if __name__ == "__main__":
+    entry()

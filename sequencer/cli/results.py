@@ -1,0 +1,149 @@
+"""`ccbench results`: list, filter and merge stored runs into one table, on screen or to a file.
+
+ccbench results runs/FK2611-07 runs/FK2611-08 --verdict fail
+ccbench results --under runs --lot 'FK2611-*' --since 2026-05-01 --parquet lots.parquet
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from rich import box
+from rich.console import Console
+from rich.table import Table
+
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.units import format_si
+from sequencer.store.yields import GROUPS, yield_table
+
+if TYPE_CHECKING:  # pandas is imported when the command runs, not on every ccbench start
+    import pandas as pd
+
+VERDICTS = ("pass", "fail", "guard-band", "aborted")
+SHOWN_FIGURES = (
+    ("regulated_current_A", "IP", "A"),
+    ("limiting_voltage_V", "VL", "V"),
+    ("dynamic_impedance_ohm", "ZT", "Ω"),
+    ("knee_impedance_ohm", "ZK", "Ω"),
+)
+
+
+def add_parser(sub: argparse._SubParsersAction) -> None:
+    res = sub.add_parser("results", help="list, filter and merge stored runs into one table")
+    res.add_argument("run_dirs", nargs="*", type=Path, metavar="RUN_DIR")
+    res.add_argument("--under", type=Path, metavar="DIR", help="every run folder below DIR")
+    res.add_argument("--lot", help="only this lot (wildcards allowed, e.g. 'FK2611-*')")
+    res.add_argument("--product", help="only this product (wildcards allowed, e.g. 'FLC-1.8*')")
+    res.add_argument("--since", metavar="DATE", help="only devices measured on or after DATE")
+    res.add_argument("--verdict", choices=VERDICTS, help="only devices with this verdict")
+    res.add_argument("--devices", action="store_true", help="list every device on screen")
+    res.add_argument(
+        "--database", metavar="URL", help="read the shared results database instead of folders"
+    )
+    res.add_argument("--by", choices=GROUPS, help="yield per station, lot or day")
+    out = res.add_mutually_exclusive_group()
+    out.add_argument("--csv", type=Path, metavar="OUT", help="write the merged table as CSV")
+    out.add_argument("--parquet", type=Path, metavar="OUT", help="write it as Parquet")
+
+
+def cmd_results(args: argparse.Namespace, console: Console) -> int:
+    from sequencer.store.export import Filter, find_runs, merge_runs, parse_since, write_table
+
+    if not args.run_dirs and args.under is None and args.database is None:
+        raise RecipeError(
+            "command line", None, "", "name run folders or give --under DIR (or --database URL)"
+        )
+    since = parse_since(args.since) if args.since else None
+    keep = Filter(args.lot, args.product, since, args.verdict)
+    if args.database is not None:
+        table, source = _shared(args, keep)
+    else:
+        folders = find_runs(args.run_dirs, args.under)
+        table = merge_runs(folders, keep)
+        source = f"of {len(folders)} runs"
+    console.print(runs_table(table, show_yield=args.verdict is None))
+    if args.devices:
+        console.print(devices_table(table))
+    if args.by:
+        console.print(yield_table(table, args.by))
+    target, kind = (args.parquet, "parquet") if args.parquet else (args.csv, "csv")
+    if target is not None:
+        write_table(table, target, kind)
+    runs = table["folder"].nunique() if len(table) else 0
+    saved = f"; written to {target}" if target is not None else ""
+    console.print(f"{len(table)} devices from {runs} {source}{saved}", soft_wrap=True)
+    return 0
+
+
+def _shared(args: argparse.Namespace, keep: object) -> tuple[pd.DataFrame, str]:
+    from sequencer.store.shared.query import load_shared
+    from sequencer.store.shared.shipper import database_option
+
+    if args.run_dirs or args.under is not None:
+        raise RecipeError("command line", None, "--database", "reads no run folders; name none")
+    database = database_option(args.database)
+    return load_shared(database, keep), f"runs in the shared database {database.shown}"
+
+
+def runs_table(frame: pd.DataFrame, *, show_yield: bool = True) -> Table:
+    """One line per run: where, what, when, and how its (selected) devices came out; the yield
+    is of the judged devices (pass and fail) and left out when a verdict filter is on."""
+    table = Table(
+        title="Runs",
+        title_justify="left",
+        box=box.SIMPLE_HEAD,
+        pad_edge=False,
+        collapse_padding=True,
+    )
+    longest = max((len(str(f)) for f in frame["folder"].unique()), default=6)
+    table.add_column("folder", overflow="fold", min_width=min(longest, 24))
+    for column in ("lot", "started (UTC)", "status"):
+        table.add_column(column, no_wrap=True)
+    for column in ("devices", "pass", "fail", "yield"):
+        table.add_column(column, justify="right", no_wrap=True)
+    if frame.empty:
+        return table
+    for folder, group in frame.groupby("folder", sort=False):
+        verdicts = group["verdict"].value_counts()
+        good, bad = int(verdicts.get("pass", 0)), int(verdicts.get("fail", 0))
+        passes = group["pass"].nunique()
+        table.add_row(
+            str(folder),
+            _text(group["lot"].iloc[0]),
+            _text(group["run_started"].iloc[0])[:16].replace("T", " "),
+            _text(group["run_status"].iloc[0]),
+            f"{len(group)}" + (f" in {passes} passes" if passes > 1 else ""),
+            str(good),
+            str(bad),
+            f"{100 * good / (good + bad):.1f}%" if good + bad and show_yield else "—",
+        )
+    return table
+
+
+def devices_table(frame: pd.DataFrame) -> Table:
+    table = Table(title="Devices", title_justify="left", box=box.SIMPLE_HEAD)
+    for column in ("folder", "device", "pass", "verdict", *(s for _, s, _ in SHOWN_FIGURES)):
+        table.add_column(column)
+    for values in frame.to_dict("records"):
+        figures = [_figure(values.get(col), unit) for col, _, unit in SHOWN_FIGURES]
+        table.add_row(
+            Path(values["folder"]).name,
+            str(values["device"]),
+            str(values["pass"]),
+            str(values["verdict"]),
+            *figures,
+        )
+    return table
+
+
+def _figure(value: object, unit: str) -> str:
+    if not isinstance(value, int | float) or math.isnan(value):
+        return "—"
+    return format_si(float(value), unit)
+
+
+def _text(value: object) -> str:
+    return "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)

@@ -1,0 +1,50 @@
+"""The effective limits as `ccbench check` shows them: each quantity, its value, which layer set
+it (station, recipe or device ratings), and what the plan asks of it."""
+
+from __future__ import annotations
+
+from rich.table import Table
+
+from sequencer.plan.make import Plan
+from sequencer.recipe.limits import Bound
+from sequencer.recipe.load import Recipe
+from sequencer.recipe.units import format_si
+from sequencer.safety.rules import is_hazardous
+
+LAYER = {
+    "station": "station",
+    "recipe": "recipe",
+    "peak operating voltage": "ratings (POV)",
+    "dissipation": "ratings (PD)",
+}
+
+
+def _layer(bound: Bound) -> str:
+    return LAYER.get(bound.source, bound.source)
+
+
+def limits_table(recipe: Recipe, plan: Plan) -> Table:
+    lim = recipe.effective_limits
+    table = Table(title="Effective limits (smallest of station, recipe, ratings)")
+    table.title_justify = "left"
+    for column in ("quantity", "limit", "set by", "plan peak"):
+        table.add_column(column)
+    device_peak = max(lim.device_power_w(s.peak_voltage_v, s.compliance_a) for s in plan.segments)
+    rows = [
+        ("voltage", lim.voltage, "V", plan.peak_voltage_v),
+        ("compliance", lim.current, "A", max(s.compliance_a for s in plan.segments)),
+        ("V x compliance", lim.power, "W", plan.peak_power_w),
+    ]
+    if lim.dissipation is not None:
+        rows.append(("dissipation", lim.dissipation, "W", device_peak))
+    for name, bound, unit, peak in rows:
+        table.add_row(name, format_si(bound.value, unit), _layer(bound), format_si(peak, unit))
+    hazardous = is_hazardous(plan, lim)
+    reason = recipe.station.limits.touch_safe_reason
+    table.add_row(
+        "touch-safe voltage",
+        format_si(lim.touch_safe_v, "V"),
+        f"station: {reason}" if reason else "station",
+        "above: interlock + ack" if hazardous else "not exceeded",
+    )
+    return table

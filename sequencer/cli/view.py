@@ -1,0 +1,113 @@
+"""What people see on the terminal. rich lives here and in the CLI only; the core yields events."""
+
+from __future__ import annotations
+
+import math
+
+from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+from rich.table import Table
+from rich.text import Text
+
+from sequencer.bench.lotrun import DeviceDone, RunSummary
+from sequencer.judge.engine import Figure, Judgement
+from sequencer.plan.make import Plan
+from sequencer.recipe.load import Recipe
+from sequencer.recipe.units import format_si
+from sequencer.run.estimate import Estimate, describe
+
+VERDICT_STYLE = {
+    "pass": "bold green",
+    "fail": "bold red",
+    "guard-band": "bold magenta",
+    "aborted": "bold yellow",
+}
+SHORT = (
+    ("regulated_current", "IP", "A"),
+    ("limiting_voltage", "VL", "V"),
+    ("dynamic_impedance", "ZT", "Ω"),
+    ("knee_impedance", "ZK", "Ω"),
+)
+
+
+def figure_text(fig: Figure, unit: str) -> str:
+    if not fig.known:
+        return "—"
+    return ("≥" if fig.at_least else "") + format_si(fig.value, unit)
+
+
+def device_line(done: DeviceDone) -> Text:
+    j: Judgement = done.judgement
+    line = Text(f"{done.curve.channel:>4}  {j.device:<16} ")
+    line.append(f"{j.verdict:<10}", style=VERDICT_STYLE[j.verdict])
+    for name, short, unit in SHORT:
+        line.append(f" {short} {figure_text(j.figures[name], unit):>10}")
+    if j.hard_bin is not None:
+        line.append(f"  bin {j.hard_bin}")
+    if j.notes:
+        line.append("   " + "; ".join(j.notes), style="dim")
+    return line
+
+
+def plan_table(recipe: Recipe, plan: Plan) -> Table:
+    table = Table(title=f"Plan for {recipe.product} (lot {recipe.lot})", title_justify="left")
+    for column in ("step", "kind", "points", "levels", "compliance", "settle", "peak power"):
+        table.add_column(column)
+    for seg in plan.segments:
+        levels = (
+            f"{seg.levels_v[0]:g} … {seg.levels_v[-1]:g} V"
+            if seg.kind == "sweep"
+            else (f"{seg.levels_v[0]:g} V")
+        )
+        searched = seg.search is not None  # levels chosen at run time, within the range shown
+        table.add_row(
+            seg.step,
+            "search" if searched else seg.kind,
+            f"~{seg.expected_points}" if searched else str(len(seg.levels_v)),
+            levels,
+            format_si(seg.compliance_a, "A"),
+            format_si(seg.settle_s, "s"),
+            format_si(seg.peak_power_w, "W"),
+        )
+    return table
+
+
+def plan_summary(recipe: Recipe, plan: Plan, estimate: Estimate | None = None) -> str:
+    count = len(recipe.station.instruments)
+    on = f"station {recipe.station.name}" + (f" ({count} instruments at once)" if count > 1 else "")
+    timed = describe(estimate) if estimate else f"estimated {plan.estimated_seconds():.1f} s"
+    return (
+        f"{len(plan.channels)} devices x {plan.points_per_device} points, aperture "
+        f"{format_si(plan.aperture_s, 's')}; peak {plan.peak_voltage_v:g} V, peak power "
+        f"{format_si(plan.peak_power_w, 'W')}; {timed} on {on}"
+    )
+
+
+def summary_table(summary: RunSummary) -> Table:
+    table = Table(title="Lot summary", title_justify="left", show_header=False)
+    table.add_column(justify="right")
+    table.add_column()
+    y = summary.yield_fraction
+    table.add_row("devices", f"{summary.done} of {summary.total}")
+    table.add_row("pass", str(summary.passed))
+    table.add_row("fail", str(summary.failed))
+    if summary.guarded:
+        table.add_row("guard band", str(summary.guarded))
+    if summary.aborted:
+        table.add_row("aborted", str(summary.aborted))
+    table.add_row("yield", "—" if math.isnan(y) else f"{100 * y:.1f} %")
+    table.add_row("time", f"{summary.seconds:.1f} s")
+    for reason, count in sorted(summary.reasons.items(), key=lambda kv: -kv[1]):
+        table.add_row(f"{count} x", reason)
+    return table
+
+
+def progress_bar(console: Console) -> Progress:
+    return Progress(
+        TextColumn("measuring"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        TimeElapsedColumn(),
+        console=console,
+        transient=True,
+    )

@@ -1,0 +1,119 @@
+"""Repeated passes over the tray, as a recipe or the command line asks for them.
+
+    repeat: {every: 10 min, for: 8 h}     a pass every 10 minutes, for 8 hours from the start
+    repeat: {every: 10 min}               ... until the run is stopped (Ctrl-C or SIGTERM)
+    repeat: {every: 0 s, passes: 3}       three passes, one straight after the other
+
+`every` counts from the start of one pass to the start of the next; a pass that takes longer
+is followed at once by the next. `for` is measured from the run's first start (a resumed run
+keeps its end time); a pass begun before the end is measured to its last device. With both
+`for` and `passes`, whichever comes first ends the run.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+from sequencer.model.errors import RecipeError
+from sequencer.recipe.units import UnitProblem, format_si, parse_quantity
+from sequencer.recipe.yamlsource import Source
+
+KEYS = ("every", "for", "passes")
+
+
+@dataclass(frozen=True)
+class Repeat:
+    every_s: float
+    for_s: float | None = None
+    passes: int | None = None
+
+    def __post_init__(self) -> None:
+        if not (math.isfinite(self.every_s) and self.every_s >= 0):
+            raise ValueError(f"every must be 0 s or more (got {self.every_s} s)")
+        if self.for_s is not None and not self.for_s > 0:
+            raise ValueError(f"for must be positive (got {self.for_s} s)")
+        if self.passes is not None and self.passes < 1:
+            raise ValueError(f"passes must be 1 or more (got {self.passes})")
+
+    @property
+    def until_stopped(self) -> bool:
+        return self.for_s is None and self.passes is None
+
+    def describe(self) -> str:
+        every = f"a pass every {_duration(self.every_s)}"
+        parts = [every if self.every_s else "one pass straight after another"]
+        if self.for_s is not None:
+            parts.append(f"for {_duration(self.for_s)}")
+        if self.passes is not None:
+            parts.append(f"at most {self.passes} passes")
+        if self.until_stopped:
+            parts.append("until stopped (Ctrl-C or SIGTERM)")
+        return ", ".join(parts)
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"every_s": self.every_s, "for_s": self.for_s, "passes": self.passes}
+
+
+def _duration(seconds: float) -> str:
+    if seconds == 0:
+        return "0 s"
+    for unit, size in (("h", 3600.0), ("min", 60.0)):
+        if seconds >= size and (seconds / size) == round(seconds / size, 3):
+            return f"{seconds / size:g} {unit}"
+    return format_si(seconds, "s")
+
+
+def parse_repeat(source: Source, value: Any) -> Repeat | None:
+    """The recipe's `repeat:` mapping (None when the recipe has none: one pass)."""
+    if value is None:
+        return None
+    if not isinstance(value, dict):
+        raise source.error("repeat", "must be a mapping, e.g. {every: 10 min, for: 8 h}")
+    for key in value:
+        if key not in KEYS:
+            known = ", ".join(KEYS)
+            raise source.error(f"repeat.{key}", f"is not a known setting here (known: {known})")
+    if "every" not in value:
+        raise source.error("repeat", "needs 'every', e.g. {every: 10 min, for: 8 h}")
+
+    def time(key: str) -> float | None:
+        if key not in value:
+            return None
+        try:
+            return parse_quantity(value[key], "time")
+        except UnitProblem as exc:
+            raise source.error(f"repeat.{key}", str(exc)) from None
+
+    passes = value.get("passes")
+    if passes is not None and (isinstance(passes, bool) or not isinstance(passes, int)):
+        raise source.error("repeat.passes", f"must be a whole number (got {passes!r})")
+    every_s, for_s = time("every") or 0.0, time("for")
+    try:
+        return Repeat(every_s, for_s, passes)
+    except ValueError as exc:
+        raise source.error("repeat", str(exc)) from None
+
+
+def repeat_from_options(
+    every: str | None, for_: str | None, passes: int | None, recipe: Repeat | None
+) -> Repeat | None:
+    """The command line's --every / --for / --passes, which replace the recipe's `repeat`."""
+    if every is None and for_ is None and passes is None:
+        return recipe
+    if every is None and for_ is not None:
+        raise RecipeError("command line", None, "--for", "needs --every as well")
+    every_s = _option("--every", every) if every is not None else 0.0
+    for_s = _option("--for", for_) if for_ is not None else None
+    try:
+        return Repeat(every_s, for_s, passes)
+    except ValueError as exc:
+        raise RecipeError("command line", None, "", str(exc)) from None
+
+
+def _option(name: str, text: str) -> float:
+    try:
+        return parse_quantity(text, "time")
+    except UnitProblem as exc:
+        raise RecipeError("command line", None, name, str(exc)) from None

@@ -1,0 +1,81 @@
+"""The station file's `results_database:`: a shared PostgreSQL results store besides the run folder.
+
+    results_database: postgresql://ccbench@results.factory.example:5432/ccbench
+    results_database: {url: "postgresql://ccbench@db.example/ccbench", wait_at_end: 15 s}
+
+The run folder stays the record of truth (journal, SQLite, CSV); the shared database is fed from
+the journal in the background (sequencer.store.shared.shipper). The URL may not carry a password: the station
+text is copied into every run record, so the password belongs in ~/.pgpass or PGPASSWORD.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+from urllib.parse import urlsplit
+
+from sequencer.recipe.fields import Fields
+from sequencer.recipe.yamlsource import Source
+
+SCHEMES = ("postgresql", "postgres")
+WAIT_AT_END_S = 15.0  # how long the end of a run waits for the last results to reach the database
+
+
+@dataclass(frozen=True)
+class SharedDatabase:
+    url: str
+    wait_at_end_s: float = WAIT_AT_END_S
+
+    def __post_init__(self) -> None:
+        problem = url_problem(self.url)
+        if problem:
+            raise ValueError(problem)
+        if not 0 <= self.wait_at_end_s <= 600:
+            raise ValueError(f"wait_at_end must be 0 to 600 s (got {self.wait_at_end_s})")
+
+    @property
+    def shown(self) -> str:
+        """The URL without user and query, for the screen."""
+        parts = urlsplit(self.url)
+        host = parts.hostname or "local socket"
+        port = f":{parts.port}" if parts.port else ""
+        return f"{host}{port}{parts.path}"
+
+
+def url_problem(url: str) -> str:
+    """What is wrong with a results-database URL ('' when nothing)."""
+    try:
+        parts = urlsplit(url)
+        parts.port  # noqa: B018 - raises ValueError on a port that is not a number
+    except ValueError as exc:
+        return f"is not a URL ({exc})"
+    if parts.scheme not in SCHEMES:
+        return f"must be a postgresql:// URL (got {url!r})"
+    if parts.password:
+        return (
+            "must not carry a password (the station text is copied into every run record); "
+            "put it in ~/.pgpass or PGPASSWORD"
+        )
+    if not parts.path.strip("/"):
+        return f"must name the database, e.g. postgresql://ccbench@host/ccbench (got {url!r})"
+    return ""
+
+
+def parse_results_database(source: Source, value: Any) -> SharedDatabase | None:
+    """The station's optional `results_database:`, a URL or {url, wait_at_end}."""
+    if value is None:
+        return None
+    where = "results_database"
+    if isinstance(value, str):
+        problem = url_problem(value)
+        if problem:
+            raise source.error(where, problem)
+        return SharedDatabase(value)
+    f = Fields.at(source, where, value)
+    url = f.text("url")
+    problem = url_problem(url)
+    f.check(not problem, "url", problem)
+    wait = f.quantity("wait_at_end", "time", WAIT_AT_END_S)
+    f.check(0 <= wait <= 600, "wait_at_end", f"must be 0 to 600 s (got {wait:g} s)")
+    f.finish()
+    return SharedDatabase(url, wait)
