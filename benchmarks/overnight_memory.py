@@ -37,8 +37,8 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from instruments.dialect import load_dialect  # noqa: E402
+from instruments.loopback import CallableTransport, SpyTransport  # noqa: E402
 from instruments.smu import ScpiSmu  # noqa: E402
-from instruments.transport import CallableTransport, SpyTransport  # noqa: E402
 from sequencer.bench.lotrun import run_lot  # noqa: E402
 from sequencer.bench.schedule import run_passes  # noqa: E402
 from sequencer.plan.make import make_plan  # noqa: E402

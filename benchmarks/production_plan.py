@@ -39,8 +39,8 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from instruments.dialect import load_dialect  # noqa: E402
+from instruments.loopback import CallableTransport  # noqa: E402
 from instruments.smu import ScpiSmu  # noqa: E402
-from instruments.transport import CallableTransport  # noqa: E402
 from sequencer.bench.lotrun import device_name, make_guard  # noqa: E402
 from sequencer.judge.engine import Judgement, judge_curve  # noqa: E402
 from sequencer.plan.make import Plan, make_plan  # noqa: E402

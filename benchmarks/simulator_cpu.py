@@ -75,8 +75,8 @@ def _run_lot(smu, recipe, devices: int) -> None:
 def _in_process(recipe, devices: int) -> dict:
     """CPU seconds inside the handler, the messages and every reply."""
     from instruments.dialect import load_dialect
+    from instruments.loopback import CallableTransport
     from instruments.smu import ScpiSmu
-    from instruments.transport import CallableTransport
     from simulator.options import SimOptions, build_instrument
     from simulator.session import Session
 

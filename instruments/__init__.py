@@ -23,8 +23,10 @@ from instruments.errors import (
     ReplyError,
     ScpiError,
 )
+from instruments.loopback import SpyTransport
+from instruments.protocol import Transport
 from instruments.smu import Reading, ScpiSmu
-from instruments.transport import SpyTransport, Transport, open_visa
+from instruments.transport import open_visa
 
 logging.getLogger(__name__).addHandler(logging.NullHandler())
 log = logging.getLogger(__name__)

@@ -1,6 +1,6 @@
 """Transports without a wire: an in-process loop for unit tests, and a spy that records exchanges.
 
-Both satisfy `instruments.transport.Transport`; import them from there. They carry the same SCPI
+Both satisfy `instruments.protocol.Transport`. They carry the same SCPI
 text a VISA connection would, so a driver tested through them is the driver that runs.
 """
 
@@ -10,7 +10,7 @@ import logging
 import time
 from collections.abc import Callable
 from datetime import UTC, datetime
-from typing import TYPE_CHECKING, TextIO, TypeVar
+from typing import TextIO, TypeVar
 
 import numpy as np
 
@@ -20,10 +20,8 @@ from instruments.errors import (
     InstrumentTimeout,
     ReplyError,
 )
+from instruments.protocol import Transport
 from instruments.scpi import check_message, parse_block
-
-if TYPE_CHECKING:
-    from instruments.transport import Transport
 
 log = logging.getLogger(__name__)
 T = TypeVar("T")

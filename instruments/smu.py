@@ -21,6 +21,7 @@ import numpy as np
 
 from instruments.dialect import Dialect
 from instruments.errors import ReplyError, ScpiError
+from instruments.protocol import Transport
 from instruments.scpi import (
     flat_fields,
     format_number,
@@ -30,7 +31,6 @@ from instruments.scpi import (
     parse_number,
     special_values,
 )
-from instruments.transport import Transport
 
 log = logging.getLogger(__name__)
 T = TypeVar("T")

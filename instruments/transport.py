@@ -2,9 +2,9 @@
 
 A driver sees the small `Transport` protocol and nothing else. `open_visa` opens any VISA resource
 through pyvisa's pure-Python backend and turns everything pyvisa, the OS or pyserial can raise into
-our typed errors at one chokepoint (`VisaTransport._mapped`). Two more transports live in
-`instruments.loopback` (re-exported here): an in-process one for unit tests and a spy that records
-every exchange.
+our typed errors at one chokepoint (`VisaTransport._mapped`). The protocol itself lives in
+`instruments.protocol` (no pyvisa); two more transports live in `instruments.loopback`: an
+in-process one for unit tests and a spy that records every exchange.
 
 pyvisa-py facts this module works around (measured, see SCPI.md):
 - a reply's timeout restarts with every chunk that arrives (pyvisa-py checks its deadline only when
@@ -35,7 +35,7 @@ import socket
 import time
 from collections.abc import Iterator
 from contextlib import contextmanager
-from typing import Any, Protocol, runtime_checkable
+from typing import Any
 
 import numpy as np
 import pyvisa
@@ -48,6 +48,7 @@ from instruments.errors import (
     InstrumentTimeout,
     ReplyError,
 )
+from instruments.protocol import PROBE, Transport, check_timeout
 from instruments.scpi import (
     block_dtype,
     check_message,
@@ -66,48 +67,9 @@ except ImportError:  # pragma: no cover - pyserial is installed in development
 
 log = logging.getLogger(__name__)
 
-# IEEE 488.2 makes *IDN? mandatory, so it is the one query every instrument can answer: the probe
-# that tells a fresh reply from a stale one when resynchronising.
-PROBE = "*IDN?"
 _QUIET_S = 0.1  # silence that ends a drain (what pyvisa-py's clear() waits for, too)
 _MAX_STALE = 4  # late replies discarded while resynchronising before giving up
 RESYNC_WAIT_S = 5.0  # how long a resync waits for its probe's answer (at least the timeout)
-
-
-@runtime_checkable
-class Transport(Protocol):
-    """What a driver may do with an instrument connection. Messages carry no terminator.
-
-    `resource` is the resource string; `timeout_s` the reply timeout in seconds (finite, > 0).
-    """
-
-    @property
-    def resource(self) -> str: ...
-
-    @property
-    def timeout_s(self) -> float: ...
-
-    @timeout_s.setter
-    def timeout_s(self, value: float) -> None: ...
-
-    def write(self, message: str) -> None: ...
-
-    def query(self, message: str) -> str: ...
-
-    def query_block(
-        self, message: str, *, datatype: str = "f", big_endian: bool = False
-    ) -> np.ndarray: ...
-
-    def clear(self) -> None: ...
-
-    def close(self) -> None: ...
-
-
-def check_timeout(timeout_s: float) -> float:
-    """The timeout if finite and positive; an infinite one would hang pyvisa-py at 100 % CPU."""
-    if timeout_s is None or not math.isfinite(timeout_s) or timeout_s <= 0:
-        raise ValueError(f"timeout must be a finite number of seconds > 0 (got {timeout_s!r})")
-    return float(timeout_s)
 
 
 @functools.cache
@@ -532,12 +494,8 @@ def _tcp_socket(session: Any) -> socket.socket | None:
     return sock if isinstance(sock, socket.socket) and has_buffer else None
 
 
-from instruments.loopback import CallableTransport, SpyTransport  # noqa: E402
-
 __all__ = [
     "PROBE",
-    "CallableTransport",
-    "SpyTransport",
     "Transport",
     "VisaTransport",
     "check_message",

@@ -13,8 +13,8 @@ import pytest
 from rich.console import Console
 
 from instruments.dialect import load_dialect
+from instruments.loopback import CallableTransport
 from instruments.smu import ScpiSmu
-from instruments.transport import CallableTransport
 from sequencer.bench.lotrun import make_guard
 from sequencer.bench.parts import PartBench, run_parts
 from sequencer.bench.prompts import InterlockLid, Scanner, SimulatedHands

@@ -11,8 +11,8 @@ from collections.abc import Callable, Iterator
 import pytest
 
 from instruments.dialect import Dialect, load_dialect
+from instruments.loopback import CallableTransport
 from instruments.smu import ScpiSmu
-from instruments.transport import CallableTransport
 
 NO_ERROR = '0,"No error"'
 

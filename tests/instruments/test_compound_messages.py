@@ -14,9 +14,9 @@ import pytest
 
 from instruments.dialect import Dialect, load_dialect
 from instruments.errors import DialectError, ScpiError
+from instruments.loopback import CallableTransport
 from instruments.scpi import message_units
 from instruments.smu import ScpiSmu
-from instruments.transport import CallableTransport
 from sequencer.bench.lotrun import make_guard
 from sequencer.plan.make import make_plan
 from sequencer.run.device import Recorder, measure_device

@@ -11,9 +11,10 @@ import pytest
 
 from instruments.dialect import Dialect, load_dialect
 from instruments.errors import DialectError, ReplyError, ScpiError
+from instruments.loopback import CallableTransport
 from instruments.scpi import make_block
 from instruments.smu import ScpiSmu
-from instruments.transport import CallableTransport, open_visa
+from instruments.transport import open_visa
 from simulator import ServerHandle, SimOptions, start_server
 from tests.instruments.test_dialect_files import PACKAGED, _write_variant
 

@@ -10,8 +10,9 @@ import numpy as np
 import pytest
 
 from instruments.errors import InstrumentDisconnected, InstrumentError, InstrumentTimeout
+from instruments.loopback import CallableTransport, SpyTransport
+from instruments.protocol import Transport
 from instruments.scpi import make_block
-from instruments.transport import CallableTransport, SpyTransport, Transport
 
 LINE = re.compile(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{6}Z\t\d+\.\d{3}\t(>>|<<|!!)\t.*")
 

@@ -10,8 +10,8 @@ import pytest
 
 from instruments.dialect import Dialect
 from instruments.errors import DialectError, InstrumentDisconnected, ReplyError, ScpiError
+from instruments.loopback import CallableTransport
 from instruments.smu import MAX_ERROR_READS, Reading, ScpiSmu
-from instruments.transport import CallableTransport
 
 MEASURE = "READ?;:STAT:QUES:COND?;:SYST:ERR:COUN?"
 

@@ -17,8 +17,9 @@ from instruments.errors import (
     InstrumentTimeout,
     ReplyError,
 )
+from instruments.protocol import PROBE, Transport
 from instruments.scpi import make_block
-from instruments.transport import PROBE, Transport, open_visa, resource_problem
+from instruments.transport import open_visa, resource_problem
 
 IDN = b"TEST,SOCKET-SMU,0001,1.0\n"
 LF_RICH = np.full(10_000, 0x0A0A0A0A, dtype="<u4").view("<f4")  # 40 kB, all bytes 0x0A

@@ -18,8 +18,9 @@ import numpy as np
 import pytest
 
 from instruments.errors import InstrumentTimeout
+from instruments.protocol import PROBE
 from instruments.scpi import make_block
-from instruments.transport import PROBE, open_visa
+from instruments.transport import open_visa
 
 IDN = b"TEST,DRIPPING-SMU,0001,1.0\n"
 READING = b"+1.234567E+01,+1.800000E-03\n"  # 28 bytes: 1.4 s at one byte per 50 ms

@@ -17,8 +17,9 @@ from typing import Any
 import yaml
 
 from instruments import Connection, ScpiSmu, load_dialect
+from instruments.loopback import CallableTransport
 from instruments.scpi import message_units
-from instruments.transport import CallableTransport, open_visa
+from instruments.transport import open_visa
 from simulator import Session, SimOptions, build_instrument
 from simulator.instrument import Instrument
 

@@ -9,9 +9,9 @@ from pathlib import Path
 import numpy as np
 
 from instruments.dialect import load_dialect
+from instruments.loopback import CallableTransport
 from instruments.scpi import message_units
 from instruments.smu import ScpiSmu
-from instruments.transport import CallableTransport
 from sequencer.bench.lotrun import device_name, make_guard
 from sequencer.judge.engine import Judgement, judge_curve
 from sequencer.plan.make import make_plan

@@ -84,8 +84,8 @@ def test_a_station_whose_dialect_cannot_be_read_is_refused_by_the_estimate(tmp_p
 @pytest.mark.parametrize("joined", [None, 4096, 400])
 def test_the_estimate_counts_the_messages_a_device_really_sends(lists, joined):
     from instruments.dialect import load_dialect
+    from instruments.loopback import CallableTransport
     from instruments.smu import ScpiSmu
-    from instruments.transport import CallableTransport
 
     recipe = dataclasses.replace(recipes()[0], lists=lists)  # no search: a fixed count
     _, base = lot_smu(recipe, 2)

@@ -10,8 +10,8 @@ from pathlib import Path
 import pytest
 
 from instruments.dialect import load_dialect
+from instruments.loopback import CallableTransport
 from instruments.smu import ScpiSmu
-from instruments.transport import CallableTransport
 from sequencer.bench.lotrun import RunSummary, run_lot
 from sequencer.plan.make import Plan, make_plan
 from sequencer.recipe.load import Recipe, load_recipe
