@@ -8,12 +8,11 @@ Public API:
 Command line: python -m simulator serve --help
 """
 
-__version__ = "0.1.0"
-
 from simulator.lot import Lot, LotDevice, make_lot
 from simulator.options import SimOptions, build_instrument
 from simulator.server import ServerHandle, start_server
 from simulator.session import Session
+from simulator.version import __version__
 
 __all__ = [
     "Lot",

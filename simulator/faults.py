@@ -46,15 +46,13 @@ import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field, fields
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 import yaml
 
 from simulator.errors import OptionError, ScpiError, error_texts
-
-if TYPE_CHECKING:
-    from simulator.scpi_parser import Command, CommandTree
+from simulator.scpi_parser import Command, CommandTree, parse_header
 
 WIRE_KINDS = ("no-reply", "late-reply", "close", "garbage")
 INSTRUMENT_KINDS = ("error", "lid-open", "device-open", "device-short")
@@ -251,7 +249,11 @@ class _Armed:
 
 @dataclass
 class FaultSchedule:
-    """The armed faults of one instrument. Shared by all connections; call under its lock."""
+    """The armed faults of one instrument. Shared by all connections; call under its lock.
+
+    `tree` is the command tree that `on:` patterns are resolved against; it is handed in (by
+    `simulator.options` or the first `Session` that serves the instrument) rather than imported,
+    since the tree's commands themselves arm faults."""
 
     seed: int = 1
     tree: CommandTree | None = None
@@ -260,8 +262,10 @@ class FaultSchedule:
     _next: int = 0
 
     @classmethod
-    def of(cls, specs: Iterable[FaultSpec], seed: int = 1) -> FaultSchedule:
-        schedule = cls(seed)
+    def of(
+        cls, specs: Iterable[FaultSpec], seed: int = 1, tree: CommandTree | None = None
+    ) -> FaultSchedule:
+        schedule = cls(seed, tree)
         for spec in specs:
             schedule.arm(spec)
         return schedule
@@ -316,10 +320,9 @@ class FaultSchedule:
         return firings
 
     def _targets(self, spec: FaultSpec) -> frozenset[tuple[int, bool | None]]:
-        from simulator.scpi_parser import parse_header
-        from simulator.session import command_tree
-
-        tree = self.tree or command_tree()
+        tree = self.tree
+        if tree is None:
+            raise _fault_error(f"on {spec.on!r} needs the command tree: arm it through a session")
         found = set()
         for pattern in spec.alternatives():
             try:

@@ -6,15 +6,16 @@ from dataclasses import dataclass
 
 import numpy as np
 
-import simulator
 from simulator.clock import make_clock
 from simulator.errors import OptionError
 from simulator.faults import FaultSchedule, FaultSpec
 from simulator.instrument import HOT_SWITCH_V, TOUCH_SAFE_V, Instrument
 from simulator.lot import make_lot
 from simulator.presets import preset
+from simulator.session import command_tree
 from simulator.smu_model import Smu
 from simulator.thermal import Thermal, celsius_to_kelvin
+from simulator.version import __version__
 
 NOISE_STREAM = 0x5EED  # keeps the noise stream apart from the lot's streams of the same seed
 
@@ -76,9 +77,9 @@ def build_instrument(options: SimOptions | None = None) -> Instrument:
     return Instrument(
         lot,
         smu,
-        version=simulator.__version__,
+        version=__version__,
         touch_safe_v=o.touch_safe_v,
         hot_switch_v=o.hot_switch_v,
-        faults=FaultSchedule.of(o.faults, o.seed),
+        faults=FaultSchedule.of(o.faults, o.seed, command_tree()),
         thermal=thermal,
     )

@@ -54,6 +54,8 @@ class Session:
     def __init__(self, instrument: Instrument) -> None:
         self.instrument = instrument
         self.tree = command_tree()
+        if instrument.faults.tree is None:  # faults armed later resolve their `on:` here
+            instrument.faults.tree = self.tree
 
     def handle(self, message: str) -> str | None:
         return self.respond(message).delivered
