@@ -36,7 +36,8 @@ from sequencer.judge.figures import Layout  # noqa: E402
 from sequencer.model.curve import Curve  # noqa: E402
 from sequencer.plan.make import make_plan  # noqa: E402
 from sequencer.recipe.load import Recipe, load_recipe  # noqa: E402
-from sequencer.run.device import Recorder, measure_device  # noqa: E402
+from sequencer.run.device import measure_device  # noqa: E402
+from sequencer.run.recorder import Recorder  # noqa: E402
 
 TARGET_MS = 1.0  # production curve
 

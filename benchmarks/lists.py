@@ -31,7 +31,8 @@ from instruments import connect  # noqa: E402
 from sequencer.bench.lotrun import make_guard  # noqa: E402
 from sequencer.plan.make import Plan, Segment  # noqa: E402
 from sequencer.recipe.load import load_recipe  # noqa: E402
-from sequencer.run.device import Recorder, measure_device  # noqa: E402
+from sequencer.run.device import measure_device  # noqa: E402
+from sequencer.run.recorder import Recorder  # noqa: E402
 from sequencer.run.shutdown import start_safe  # noqa: E402
 
 TARGET = 5.0

@@ -45,7 +45,8 @@ from sequencer.bench.lotrun import device_name, make_guard  # noqa: E402
 from sequencer.judge.engine import Judgement, judge_curve  # noqa: E402
 from sequencer.plan.make import Plan, make_plan  # noqa: E402
 from sequencer.recipe.load import Recipe, load_recipe  # noqa: E402
-from sequencer.run.device import Recorder, measure_device  # noqa: E402
+from sequencer.run.device import measure_device  # noqa: E402
+from sequencer.run.recorder import Recorder  # noqa: E402
 from simulator import smu_model  # noqa: E402
 from simulator.options import SimOptions, build_instrument  # noqa: E402
 from simulator.session import Session  # noqa: E402

@@ -64,7 +64,8 @@ def _lot(recipe, devices: int) -> dict:
 def _run_lot(smu, recipe, devices: int) -> None:
     from sequencer.bench.lotrun import make_guard
     from sequencer.plan.make import make_plan
-    from sequencer.run.device import Recorder, measure_device
+    from sequencer.run.device import measure_device
+    from sequencer.run.recorder import Recorder
 
     plan = dataclasses.replace(make_plan(recipe), channels=tuple(range(1, devices + 1)))
     guard = make_guard(recipe, smu)

@@ -28,7 +28,6 @@ import errno
 import functools
 import ipaddress
 import logging
-import math
 import re
 import select
 import socket

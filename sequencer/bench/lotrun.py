@@ -14,7 +14,8 @@ from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import FIGURES
 from sequencer.plan.make import Plan
 from sequencer.recipe.load import Recipe
-from sequencer.run.device import Recorder, Smu, measure_device
+from sequencer.run.device import measure_device
+from sequencer.run.recorder import Recorder, Smu
 from sequencer.safety.rules import Guard, Trip, no_clamp_steps
 from sequencer.store.runstore import RunStore
 

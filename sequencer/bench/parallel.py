@@ -27,7 +27,8 @@ from sequencer.bench.lotrun import DeviceDone, RunSummary, aborted, device_name,
 from sequencer.judge.engine import judge_curve, with_bin
 from sequencer.plan.make import Plan
 from sequencer.recipe.load import Recipe
-from sequencer.run.device import Recorder, Smu, measure_device
+from sequencer.run.device import measure_device
+from sequencer.run.recorder import Recorder, Smu
 from sequencer.safety.rules import Guard
 from sequencer.store.runstore import RunStore
 

@@ -41,7 +41,8 @@ from sequencer.plan.make import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.repeat import Repeat
 from sequencer.recipe.retest import Attempt, admit, stands
-from sequencer.run.device import Recorder, Smu, measure_device
+from sequencer.run.device import measure_device
+from sequencer.run.recorder import Recorder, Smu
 from sequencer.safety.rules import Guard
 from sequencer.store.runstore import RunStore
 

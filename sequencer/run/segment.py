@@ -22,16 +22,14 @@ from __future__ import annotations
 from collections.abc import Callable
 from contextlib import AbstractContextManager, nullcontext
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
 from sequencer.plan.kneesearch import knee_reference, next_level
 from sequencer.plan.make import Plan, Segment
+from sequencer.run.recorder import Recorder, Smu
 from sequencer.safety.rules import Guard
-
-if TYPE_CHECKING:
-    from sequencer.run.device import Recorder, Smu
 
 MIN_LIST_POINTS = 2  # one reading is no faster as a list
 

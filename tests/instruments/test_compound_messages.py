@@ -19,7 +19,8 @@ from instruments.scpi import message_units
 from instruments.smu import ScpiSmu
 from sequencer.bench.lotrun import make_guard
 from sequencer.plan.make import make_plan
-from sequencer.run.device import Recorder, measure_device
+from sequencer.run.device import measure_device
+from sequencer.run.recorder import Recorder
 from tests.instruments.test_dialect_files import _write_variant
 from tests.speed.helpers import lot_smu, recipes
 

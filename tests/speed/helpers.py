@@ -16,7 +16,8 @@ from sequencer.bench.lotrun import device_name, make_guard
 from sequencer.judge.engine import Judgement, judge_curve
 from sequencer.plan.make import make_plan
 from sequencer.recipe.load import Recipe, load_recipe
-from sequencer.run.device import Recorder, measure_device
+from sequencer.run.device import measure_device
+from sequencer.run.recorder import Recorder
 from simulator.options import SimOptions, build_instrument
 from simulator.session import Session
 from simulator.smu_model import noiseless  # noqa: F401 - the speed tests import it from here

@@ -10,8 +10,9 @@ import pytest
 
 from sequencer.bench.lotrun import make_guard
 from sequencer.plan.make import make_plan
-from sequencer.run.device import Recorder, measure_device
+from sequencer.run.device import measure_device
 from sequencer.run.estimate import Timing, after_run, estimate, predict
+from sequencer.run.recorder import Recorder
 from tests.speed.helpers import lot_smu, recipes
 
 

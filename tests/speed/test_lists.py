@@ -12,7 +12,8 @@ from sequencer.bench.lotrun import make_guard
 from sequencer.plan.make import Segment, make_plan
 from sequencer.recipe.limits import Ratings, effective_limits
 from sequencer.recipe.load import Limits
-from sequencer.run.device import Recorder, measure_device
+from sequencer.run.device import measure_device
+from sequencer.run.recorder import Recorder
 from sequencer.run.segment import list_is_safe
 from sequencer.safety.rules import Guard
 from simulator.smu_model import CURRENT_RESOLUTION_OF_RANGE, VOLTAGE_RESOLUTION_V
