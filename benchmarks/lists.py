@@ -29,7 +29,7 @@ sys.path.insert(0, str(ROOT))
 
 from instruments import connect  # noqa: E402
 from sequencer.bench.lotrun import make_guard  # noqa: E402
-from sequencer.plan.make import Plan, Segment  # noqa: E402
+from sequencer.plan.segments import Plan, Segment  # noqa: E402
 from sequencer.recipe.load import load_recipe  # noqa: E402
 from sequencer.run.device import measure_device  # noqa: E402
 from sequencer.run.recorder import Recorder  # noqa: E402

@@ -43,7 +43,8 @@ from instruments.loopback import CallableTransport  # noqa: E402
 from instruments.smu import ScpiSmu  # noqa: E402
 from sequencer.bench.lotrun import device_name, make_guard  # noqa: E402
 from sequencer.judge.engine import Judgement, judge_curve  # noqa: E402
-from sequencer.plan.make import Plan, make_plan  # noqa: E402
+from sequencer.plan.make import make_plan  # noqa: E402
+from sequencer.plan.segments import Plan  # noqa: E402
 from sequencer.recipe.load import Recipe, load_recipe  # noqa: E402
 from sequencer.run.device import measure_device  # noqa: E402
 from sequencer.run.recorder import Recorder  # noqa: E402

@@ -20,7 +20,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, TextIO
 
 from sequencer.bench.lotrun import RunSummary, make_guard
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.safety.rules import Guard, is_hazardous
 

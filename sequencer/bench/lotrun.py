@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 from sequencer.judge.engine import Judgement, judge_curve, with_bin
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import FIGURES
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.run.device import measure_device
 from sequencer.run.recorder import Recorder, Smu

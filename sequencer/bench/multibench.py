@@ -22,7 +22,7 @@ from sequencer.bench.benchrun import NOTHING_SENT, UNTOUCHED, SignalGate, exchan
 from sequencer.bench.lotrun import RunSummary, make_guard
 from sequencer.bench.parallel import Lane, LaneGuard, lane_guards, run_parallel
 from sequencer.cli.view import device_line, progress_bar
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.instrumentspec import InstrumentSpec
 from sequencer.recipe.load import Recipe
 from sequencer.safety.rules import is_hazardous

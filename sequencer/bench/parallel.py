@@ -25,7 +25,7 @@ from dataclasses import dataclass, field
 
 from sequencer.bench.lotrun import DeviceDone, RunSummary, aborted, device_name, skips
 from sequencer.judge.engine import judge_curve, with_bin
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.run.device import measure_device
 from sequencer.run.recorder import Recorder, Smu

@@ -37,7 +37,7 @@ from sequencer.bench.prompts import (
 from sequencer.cli.verdictview import verdict_panel
 from sequencer.judge.engine import Judgement, judge_curve, with_bin
 from sequencer.model.errors import RecipeError
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.repeat import Repeat
 from sequencer.recipe.retest import Attempt, admit, stands

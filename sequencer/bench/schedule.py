@@ -14,7 +14,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, fields, replace
 
 from sequencer.bench.lotrun import RunSummary
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.repeat import Repeat
 from sequencer.store.resume import Progress
 from sequencer.store.runstore import RunStore

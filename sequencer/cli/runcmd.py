@@ -17,7 +17,7 @@ from rich.console import Console
 from sequencer.bench.lotrun import RunSummary
 from sequencer.bench.schedule import Wait, run_passes, work_left
 from sequencer.model.errors import RecipeError
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.repeat import Repeat, repeat_from_options
 from sequencer.store.runstore import RunStore

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from rich.table import Table
 
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.limits import Bound
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.units import format_si

@@ -16,14 +16,10 @@ judge, the store and `ccbench rejudge` treat it exactly as they treat a full swe
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 from sequencer.model.judgesettings import JudgeSettings
 from sequencer.plan.kneesearch import KneeSearch
+from sequencer.plan.segments import Segment
 from sequencer.recipe.figuresstep import FiguresStep
-
-if TYPE_CHECKING:
-    from sequencer.plan.make import Segment
 
 LEVEL_DIGITS = 9
 
@@ -71,8 +67,6 @@ def knee_search(step: FiguresStep, judge: JudgeSettings) -> KneeSearch:
 
 def production_segments(step: FiguresStep, judge: JudgeSettings) -> list[Segment]:
     """The step as segments: the fixed readings, spot repeats at VT, then the VL search."""
-    from sequencer.plan.make import Segment  # plan.py builds its segments with this module
-
     args = (step.compliance_a, step.settle_s)
     out = [Segment(step.name, "sweep", fixed_levels(step, judge), *args)]
     if step.repeats:

@@ -10,7 +10,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 from sequencer.run.recorder import Recorder, Smu
 from sequencer.run.segment import SegmentRun
 from sequencer.safety.rules import Guard

@@ -26,7 +26,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from instruments.scpi import format_number
-from sequencer.plan.make import Plan, Segment
+from sequencer.plan.segments import Plan, Segment
 from sequencer.run.device import ramp_levels
 from sequencer.run.segment import MIN_LIST_POINTS, list_is_safe
 from sequencer.safety.rules import Guard, no_clamp_steps

@@ -9,7 +9,7 @@ from typing import Protocol
 import numpy as np
 
 from sequencer.model.curve import Curve
-from sequencer.plan.make import Plan
+from sequencer.plan.segments import Plan
 
 
 class Reading(Protocol):

@@ -27,7 +27,7 @@ from typing import Any
 import numpy as np
 
 from sequencer.plan.kneesearch import knee_reference, next_level
-from sequencer.plan.make import Plan, Segment
+from sequencer.plan.segments import Plan, Segment
 from sequencer.run.recorder import Recorder, Smu
 from sequencer.safety.rules import Guard
 

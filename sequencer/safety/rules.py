@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from typing import Protocol
 
 from sequencer.model.errors import SafetyError
-from sequencer.plan.make import Plan, Segment
+from sequencer.plan.segments import Plan, Segment
 from sequencer.recipe.limits import EffectiveLimits, as_effective
 from sequencer.recipe.load import Limits
 from sequencer.recipe.units import format_si

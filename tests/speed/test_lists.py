@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 
 from sequencer.bench.lotrun import make_guard
-from sequencer.plan.make import Segment, make_plan
+from sequencer.plan.make import make_plan
+from sequencer.plan.segments import Segment
 from sequencer.recipe.limits import Ratings, effective_limits
 from sequencer.recipe.load import Limits
 from sequencer.run.device import measure_device

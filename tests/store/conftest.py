@@ -13,7 +13,8 @@ from instruments.dialect import load_dialect
 from instruments.loopback import CallableTransport
 from instruments.smu import ScpiSmu
 from sequencer.bench.lotrun import RunSummary, run_lot
-from sequencer.plan.make import Plan, make_plan
+from sequencer.plan.make import make_plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe, load_recipe
 from sequencer.store.runstore import RunStore
 from simulator.options import SimOptions, build_instrument
