@@ -1,7 +1,8 @@
 """Part-by-part testing (`ccbench run RECIPE --part-by-part`): scan, insert, test, verdict, next.
 
 Each loop: ask for a serial; decide under the recipe's retest policy whether the part may be
-tested (sequencer.recipe.retest); wait for the part in the socket (sequencer.bench.prompts); measure it on
+tested (sequencer.recipe.retest); wait for the part in the socket (sequencer.bench.prompts);
+measure it on
 its socket's channel; judge, bin and store it (device = the serial, pass = the attempt); then
 show the verdict big. Between parts the output is off (the runner switches it off after every
 device), so quitting at the prompt leaves nothing on and everything stored.
@@ -15,31 +16,15 @@ serials meet the simulated lot in the order they are first scanned (the 21st new
 
 from __future__ import annotations
 
-import argparse
-import sqlite3
-import sys
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
-from rich.console import Console
-
 from sequencer.bench.lotrun import RunSummary, aborted, skips
-from sequencer.bench.prompts import (
-    EnterKey,
-    InterlockLid,
-    Lid,
-    NoHands,
-    Quit,
-    Scanner,
-    SimulatedHands,
-)
-from sequencer.cli.verdictview import verdict_panel
+from sequencer.bench.prompts import Lid, Quit, Scanner
 from sequencer.judge.engine import Judgement, judge_curve, with_bin
-from sequencer.model.errors import RecipeError
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
-from sequencer.recipe.repeat import Repeat
 from sequencer.recipe.retest import Attempt, admit, stands
 from sequencer.run.device import measure_device
 from sequencer.run.recorder import Recorder, Smu
@@ -47,23 +32,6 @@ from sequencer.safety.rules import Guard
 from sequencer.store.runstore import RunStore
 
 PROMPT = "[bold]scan the next part[/] (or type quit)"
-FLAG_HELP = (
-    "test parts one at a time: scan or type each serial, put the part in and close the lid, "
-    "read the verdict; retests follow the recipe's part_by_part section"
-)
-
-
-def manifest_extras(recipe: Recipe, args: argparse.Namespace, repeat: Repeat | None) -> dict:
-    """The run record's `schedule` for part-by-part testing (which has no passes to repeat)."""
-    if not args.part_by_part:
-        return {}
-    if repeat is not None:
-        option = "--every/--for/--passes" if args.every or args.passes else "the recipe's repeat"
-        raise RecipeError("command line", None, "--part-by-part", f"cannot be used with {option}")
-    if len(recipe.station.instruments) > 1:
-        problem = f"needs a station with one instrument ({recipe.station.file} names several)"
-        raise RecipeError("command line", None, "--part-by-part", problem)
-    return {"schedule": recipe.part_by_part.describe()}
 
 
 @dataclass
@@ -83,18 +51,23 @@ class Parts:
         self.attempts.setdefault(serial, []).append(attempt)
 
 
-def stored_parts(db: sqlite3.Connection, run_id: int, channels: tuple[int, ...]) -> Parts:
+def stored_parts(store: RunStore, channels: tuple[int, ...]) -> Parts:
     """The parts a resumed run holds already, so that retests count across sessions."""
     parts = Parts(channels)
-    rows = db.execute(
-        "SELECT device, pass, verdict, bin_class, standing, channel FROM device "
-        "WHERE run_id = ? ORDER BY seq",
-        (run_id,),
-    )
-    for serial, number, verdict, klass, standing, channel in rows:
+    for serial, number, verdict, klass, standing, channel in store.attempt_rows():
         parts.add(serial, Attempt(int(number), verdict, klass or "", standing != 0))
         parts.sockets.setdefault(serial, int(channel))
     return parts
+
+
+@dataclass(frozen=True)
+class PartResult:
+    """One attempt's outcome for the screen: the judgement, its attempt number and, when an
+    earlier attempt stays the part's result, a note saying so."""
+
+    judgement: Judgement
+    attempt: int
+    note: str = ""
 
 
 @dataclass
@@ -113,7 +86,7 @@ def run_parts(
     station: PartBench, scanner: Scanner, lid: Lid, show: Callable[[object], None]
 ) -> RunSummary:
     """Test parts one by one until the operator quits; returns the count of attempts."""
-    parts = stored_parts(station.store.db, station.store.run_id, station.plan.channels)
+    parts = stored_parts(station.store, station.plan.channels)
     summary = RunSummary(total=0)
     multi = len(station.plan.channels) > 1
     start = station.clock()
@@ -125,7 +98,7 @@ def run_parts(
         except Quit:
             break
         judgement = measure_part(station, parts, serial, socket, attempt, summary, show)
-        show(verdict_panel(judgement, attempt, _standing_note(parts, serial)))
+        show(PartResult(judgement, attempt, _standing_note(parts, serial)))
     summary.total, summary.seconds = summary.done, station.clock() - start
     summary.status = "completed"
     show(f"quit between parts: output off; {summary.done} tests stored in {station.store.folder}")
@@ -165,7 +138,7 @@ def measure_part(
         judgement = with_bin(aborted(serial, exc), recipe.judge)
         _store(station, parts, serial, recorder, channel, attempt, judgement, summary)
         if not skips(exc, recipe):
-            show(verdict_panel(judgement, attempt))
+            show(PartResult(judgement, attempt))
             raise
         return judgement
     curve = recorder.curve(serial, channel, station.plan)
@@ -199,25 +172,3 @@ def _standing_note(parts: Parts, serial: str) -> str:
         return ""
     kept = next(a for a in reversed(attempts) if a.standing)
     return f"the part's result stays attempt {kept.number} ({kept.verdict})"
-
-
-def from_command_line(
-    console: Console, station: PartBench, simulated: bool, write: Callable[[str], None]
-) -> RunSummary:
-    """`ccbench run --part-by-part`: serials from the terminal (or whatever feeds stdin), the
-    lid from the interlock; on the simulator the lid is moved by `SimulatedHands` (`write`
-    sends its SCPI)."""
-
-    def say(item: object) -> None:
-        console.print(item, soft_wrap=isinstance(item, str))  # panels keep their layout
-
-    recipe = station.recipe
-    console.print(recipe.part_by_part.describe(), soft_wrap=True)
-    scanner = Scanner(sys.stdin.readline, say, recipe.part_by_part.serial_pattern)
-    lid: Lid
-    if recipe.station.interlocked_fixture:
-        hands = SimulatedHands(write) if simulated else NoHands()
-        lid = InterlockLid(station.smu.interlock_closed, say, hands)
-    else:
-        lid = EnterKey(sys.stdin.readline, say)
-    return run_parts(station, scanner, lid, say)

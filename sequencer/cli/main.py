@@ -18,10 +18,10 @@ from rich.console import Console
 
 from sequencer import __version__
 from sequencer.bench import multibench
-from sequencer.bench import parts as operator
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
-from sequencer.cli import judgecmd, reportcmd, results
+from sequencer.bench.parts import PartBench
+from sequencer.cli import judgecmd, partcmd, reportcmd, results
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
@@ -64,7 +64,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
-    run.add_argument("--part-by-part", action="store_true", help=operator.FLAG_HELP)
+    run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
     run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
     runsession.add_run_options(run)
 
@@ -141,7 +141,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     repeat = runsession.repeat_for(recipe, args)
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
-    manifest |= operator.manifest_extras(recipe, args, repeat)
+    manifest |= partcmd.manifest_extras(recipe, args, repeat)
     shipper.check_driver(recipe.station.results_database)
     store = runsession.open_store(out, manifest, args, console)
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
@@ -229,9 +229,9 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
         def measure(guard):
             store.set_identity(conn.resource, conn.identity)
             if part_by_part:
-                tester = operator.PartBench(recipe, plan, conn.smu, store, guard)
+                tester = PartBench(recipe, plan, conn.smu, store, guard)
                 write, sim = conn.smu.transport.write, resource == "sim"
-                return operator.from_command_line(console, tester, sim, write)
+                return partcmd.from_command_line(console, tester, sim, write)
 
             def one_pass(part):
                 return _measure(console, recipe, part, conn.smu, store, guard)

@@ -31,7 +31,8 @@ import numpy as np
 
 from sequencer.judge.slopes import masked_mean, window_fit
 
-SPOT_MATCH_V = 1e-3  # as sequencer.judge.figures: a reading belongs to a level programmed within this
+# as sequencer.judge.figures: a reading belongs to a level programmed within this
+SPOT_MATCH_V = 1e-3
 WINDOW_EDGE_V = 1e-9
 LEVEL_DIGITS = 6  # levels are rounded to the microvolt: plain numbers on the wire and in the log
 BISECT_AFTER = 3  # from the fourth reading on, a wide bracket is halved: at worst bisection

@@ -83,7 +83,8 @@ class Station:
     text: str = ""
     accuracy: Accuracy = DEFAULT_ACCURACY
     results_database: SharedDatabase | None = None  # a shared store besides the run folder
-    # Every SMU with its channels (sequencer.recipe.instrumentspec); the fields above name the first.
+    # Every SMU with its channels (sequencer.recipe.instrumentspec); the fields above name the
+    # first.
     instruments: tuple[InstrumentSpec, ...] = ()
 
     @property

@@ -4,8 +4,9 @@
     results_database: {url: "postgresql://ccbench@db.example/ccbench", wait_at_end: 15 s}
 
 The run folder stays the record of truth (journal, SQLite, CSV); the shared database is fed from
-the journal in the background (sequencer.store.shared.shipper). The URL may not carry a password: the station
-text is copied into every run record, so the password belongs in ~/.pgpass or PGPASSWORD.
+the journal in the background (sequencer.store.shared.shipper). The URL may not carry a
+password: the station text is copied into every run record, so the password belongs in
+~/.pgpass or PGPASSWORD.
 """
 
 from __future__ import annotations

@@ -1,8 +1,8 @@
 """Limits checked before the wire: the whole plan before the output is ever switched on, and
 every level and reading again, through one guard, as the runner sends and receives them.
 
-The limits are the effective ones (sequencer.recipe.limits): the smallest of station, recipe and device
-ratings. A refusal names the step, the numbers and the layer whose limit it hit.
+The limits are the effective ones (sequencer.recipe.limits): the smallest of station, recipe and
+device ratings. A refusal names the step, the numbers and the layer whose limit it hit.
 
 Every comparison is written so that NaN fails it (`not (value <= limit)`, never
 `value > limit`, which is false for NaN), and every level, compliance and reading must be

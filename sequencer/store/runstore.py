@@ -276,6 +276,15 @@ class RunStore:
         ).fetchone()
         return int(row[0]), int(row[1])
 
+    def attempt_rows(self) -> list[tuple]:
+        """(device, pass, verdict, bin_class, standing, channel) of every stored device of the
+        run, in the order they were stored: the attempts a part-by-part run resumes with."""
+        return self.db.execute(
+            "SELECT device, pass, verdict, bin_class, standing, channel FROM device "
+            "WHERE run_id = ? ORDER BY seq",
+            (self.run_id,),
+        ).fetchall()
+
     def set_identity(self, resource: str, identity: str) -> None:
         """The instrument this session talks to (resource string and *IDN? reply)."""
         self.manifest.update(resource=resource, identity=identity)

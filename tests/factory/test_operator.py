@@ -18,6 +18,7 @@ from instruments.smu import ScpiSmu
 from sequencer.bench.lotrun import make_guard
 from sequencer.bench.parts import PartBench, run_parts
 from sequencer.bench.prompts import InterlockLid, Scanner, SimulatedHands
+from sequencer.cli.partcmd import render
 from sequencer.plan.make import make_plan
 from sequencer.recipe.load import load_recipe
 from sequencer.store.runstore import RunStore
@@ -71,7 +72,7 @@ class Bench:
     def text(self) -> str:
         console = Console(width=100, record=True, color_system=None, file=io.StringIO())
         for item in self.shown:
-            console.print(item)
+            console.print(render(item))
         return console.export_text()
 
 

@@ -1,5 +1,6 @@
 """Property-based: random station limits, recipe limits, device ratings and steps. An oracle
-written here from the raw numbers (not from sequencer.recipe.limits) says whether the plan is possible;
+written here from the raw numbers (not from sequencer.recipe.limits) says whether the plan is
+possible;
 an impossible one must be refused before the first command, and a possible one, run on the
 simulator, must never put a level, a compliance or a power beyond the effective limit on the
 wire, nor leave the output on."""

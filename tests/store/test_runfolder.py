@@ -37,7 +37,8 @@ def test_the_lock_is_held_across_processes_and_freed_when_its_holder_dies(tmp_pa
     folder = tmp_path / "run"
     holder = subprocess.Popen(
         [sys.executable, "-c", "import sys, time; from pathlib import Path; "
-         "from sequencer.store.runfolder import FolderLock; held = FolderLock.take(Path(sys.argv[1])); "
+         "from sequencer.store.runfolder import FolderLock; "
+         "held = FolderLock.take(Path(sys.argv[1])); "
          "print('held', flush=True); time.sleep(60)", str(folder)],
         stdout=subprocess.PIPE, text=True, env={**os.environ, "PYTHONPATH": os.getcwd()},
     )  # fmt: skip

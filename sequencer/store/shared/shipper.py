@@ -2,7 +2,8 @@
 
 The station writes every result to its own run folder first (journal, SQLite, CSV), exactly as
 without a shared database; a `Shipper` thread then reads the journal's new complete lines and
-sends them to PostgreSQL (sequencer.store.shared.pgstore), with the run and its sessions from manifest.json.
+sends them to PostgreSQL (sequencer.store.shared.pgstore), with the run and its sessions from
+manifest.json.
 When the database cannot be reached it waits (0.2 s, doubling to 5 s) and tries again, so the
 station never waits for the network. Nothing is lost (the journal holds it all) and nothing is
 stored twice (writes are keyed by run, pass and device, and replaced only by a later entry).
