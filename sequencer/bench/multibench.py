@@ -11,17 +11,14 @@ to its own log, `scpi-<name>.log`, so that every line can be traced to one instr
 from __future__ import annotations
 
 from collections.abc import Callable
-from contextlib import ExitStack
+from contextlib import AbstractContextManager, ExitStack
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from rich.console import Console
-
 from sequencer.bench.benchrun import NOTHING_SENT, UNTOUCHED, SignalGate, exchange_log
-from sequencer.bench.lotrun import RunSummary, make_guard
+from sequencer.bench.lotrun import DeviceDone, RunSummary, make_guard
 from sequencer.bench.parallel import Lane, LaneGuard, lane_guards, run_parallel
-from sequencer.cli.view import device_line, progress_bar
 from sequencer.plan.segments import Plan
 from sequencer.recipe.instrumentspec import InstrumentSpec
 from sequencer.recipe.load import Recipe
@@ -31,6 +28,10 @@ from sequencer.store.runstore import RunStore
 if TYPE_CHECKING:
     from instruments import Connection
     from sequencer.run.shutdown import Shutdown
+
+
+# For one pass over `total` devices: the callback that shows each device as it is stored.
+Showing = Callable[[int], AbstractContextManager[Callable[[DeviceDone], None]]]
 
 
 @dataclass
@@ -70,12 +71,15 @@ def measure_on_benches(
     out: Path,
     store: RunStore,
     measure_passes: Callable[[Callable[[Plan], RunSummary]], RunSummary],
-    console: Console,
+    announce: Callable[[str], None],
+    showing: Showing,
     benches: Benches,
     gate: SignalGate,
 ) -> RunSummary:
     """Connect every instrument of the station, run `measure_passes(one_pass)` on all of them,
-    then switch every output off. Call it from the CLI with the run's store open."""
+    then switch every output off. Call it from the CLI with the run's store open. `announce`
+    takes a line for the screen; `showing(total)` gives, for one pass, the callback that shows
+    each device as it is stored."""
     specs = recipe.station.instruments
     conns: list[Connection] = []
     guards: list[LaneGuard] = []
@@ -87,7 +91,7 @@ def measure_on_benches(
             conns.append(_connect(recipe, spec, sim, log))
             benches.names.append(spec.name)
         guards += lane_guards([make_guard(recipe, conn.smu) for conn in conns])
-        _start_all_safe(recipe, plan, conns, specs, console)
+        _start_all_safe(recipe, plan, conns, specs, announce)
         store.set_identity(
             "; ".join(c.resource for c in conns), "; ".join(c.identity for c in conns)
         )
@@ -97,7 +101,7 @@ def measure_on_benches(
         ]
 
         def one_pass(part: Plan) -> RunSummary:
-            return _measure(console, recipe, part, lanes, store)
+            return _measure(showing, recipe, part, lanes, store)
 
         with gate.raising():
             return measure_passes(one_pass)
@@ -113,15 +117,14 @@ def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection
     )
 
 
-def _start_all_safe(recipe, plan, conns, specs, console: Console) -> None:
+def _start_all_safe(recipe, plan, conns, specs, announce: Callable[[str], None]) -> None:
     from sequencer.run.shutdown import require_interlock, start_safe
 
     for spec, conn in zip(specs, conns, strict=True):
         start_safe(conn.smu)  # the first commands after *IDN?
-        console.print(
+        announce(
             f"instrument {spec.name}: {conn.identity} at {conn.resource}, channels "
-            f"{_channels(spec.channels)}",
-            soft_wrap=True,
+            f"{_channels(spec.channels)}"
         )
     if is_hazardous(plan, recipe.effective_limits):
         for conn in conns:
@@ -144,12 +147,6 @@ def _switch_all_off(conns, guards, specs, benches: Benches) -> None:
         conn.close()
 
 
-def _measure(console: Console, recipe: Recipe, plan: Plan, lanes, store) -> RunSummary:
-    with progress_bar(console) as progress:
-        task = progress.add_task("devices", total=len(plan.channels))
-
-        def shown(done) -> None:
-            progress.console.print(device_line(done), soft_wrap=True)
-            progress.advance(task)
-
+def _measure(showing: Showing, recipe: Recipe, plan: Plan, lanes, store) -> RunSummary:
+    with showing(len(plan.channels)) as shown:
         return run_parallel(recipe, plan, lanes, store, shown)

@@ -25,7 +25,7 @@ from sequencer.cli import judgecmd, partcmd, reportcmd, results
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
-from sequencer.cli.view import device_line, plan_summary, plan_table, progress_bar, summary_table
+from sequencer.cli.view import plan_summary, plan_table, showing_devices, summary_table
 from sequencer.model.errors import CcbenchError, RunError
 from sequencer.plan.make import make_plan
 from sequencer.recipe.load import Recipe, load_recipe
@@ -155,7 +155,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             summary = multibench.measure_on_benches(
                 recipe, plan, args.sim, out, store,
                 lambda one: runsession.measure_passes(console, store, plan, repeat, one),
-                console, bench, GATE,
+                lambda text: console.print(text, soft_wrap=True),
+                lambda total: showing_devices(console, total), bench, GATE,
             )  # fmt: skip
         else:
             summary = _on_one_bench(
@@ -245,13 +246,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
 
 
 def _measure(console, recipe, plan, smu, store, guard):
-    with progress_bar(console) as progress:
-        task = progress.add_task("devices", total=len(plan.channels))
-
-        def shown(done):
-            progress.console.print(device_line(done), soft_wrap=True)
-            progress.advance(task)
-
+    with showing_devices(console, len(plan.channels)) as shown:
         return run_lot(recipe, plan, smu, store, shown, guard=guard)
 
 

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
@@ -111,3 +113,16 @@ def progress_bar(console: Console) -> Progress:
         console=console,
         transient=True,
     )
+
+
+@contextmanager
+def showing_devices(console: Console, total: int) -> Iterator[Callable[[DeviceDone], None]]:
+    """A progress bar over `total` devices and the callback that prints each device's line."""
+    with progress_bar(console) as progress:
+        task = progress.add_task("devices", total=total)
+
+        def shown(done: DeviceDone) -> None:
+            progress.console.print(device_line(done), soft_wrap=True)
+            progress.advance(task)
+
+        yield shown
