@@ -21,7 +21,7 @@ from sequencer.bench import multibench
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import judgecmd, partcmd, reportcmd, results
+from sequencer.cli import judgecmd, partcmd, reportcmd, results, uploadcmd
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
@@ -77,7 +77,7 @@ def build_parser() -> argparse.ArgumentParser:
     reportcmd.add_parser(sub)
 
     results.add_parser(sub)
-    shipper.add_parser(sub)
+    uploadcmd.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -150,7 +150,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     bench = multibench.Benches() if several else Bench()
     status, error, uploads = "failed", None, None
     try:
-        uploads = shipper.start_for(recipe.station.results_database, store, console)
+        uploads = uploadcmd.start_for(recipe.station.results_database, store, console)
         if several:  # one worker per instrument; sequencer/multibench.py
             summary = multibench.measure_on_benches(
                 recipe, plan, args.sim, out, store,
@@ -170,7 +170,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         GATE.settle()  # measuring is over: a late signal cannot cut the record or the last line
         ended = error.message if error else f"{status}; {bench.ending()}"
         _finish(console, store, status, ended)
-        shipper.finish(uploads, console)
+        uploadcmd.finish(uploads, console)
     if error is not None:
         if bench.may_be_on():
             error.exit_code = EXIT_OUTPUT_MAY_BE_ON
@@ -334,7 +334,7 @@ COMMANDS = {
     **judgecmd.COMMANDS,
     **reportcmd.COMMANDS,
     "results": results.cmd_results,
-    "upload": shipper.cmd_upload,
+    "upload": uploadcmd.cmd_upload,
 }
 
 

@@ -79,8 +79,8 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
 
 
 def _shared(args: argparse.Namespace, keep: object) -> tuple[pd.DataFrame, str]:
+    from sequencer.cli.uploadcmd import database_option
     from sequencer.store.shared.query import load_shared
-    from sequencer.store.shared.shipper import database_option
 
     if args.run_dirs or args.under is not None:
         raise RecipeError("command line", None, "--database", "reads no run folders; name none")
