@@ -17,7 +17,7 @@ from rich.table import Table
 
 from sequencer.model.errors import RecipeError
 from sequencer.recipe.units import format_si
-from sequencer.store.yields import GROUPS, yield_table
+from sequencer.store.yields import GROUPS, yield_by
 
 if TYPE_CHECKING:  # pandas is imported when the command runs, not on every ccbench start
     import pandas as pd
@@ -147,3 +147,29 @@ def _figure(value: object, unit: str) -> str:
 
 def _text(value: object) -> str:
     return "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)
+
+
+SHORT = {"guard-band": "guard", "first-test yield": "1st yield"}  # fits 80 columns
+
+
+def yield_table(frame: pd.DataFrame, by: str) -> Table:
+    """The yield summary of `ccbench results --by` as a table that fits 80 columns."""
+    table = Table(
+        title=f"Yield per {by}",
+        title_justify="left",
+        box=box.SIMPLE_HEAD,
+        show_edge=False,
+        padding=(0, 0),  # the box puts one space between columns: fits 80 columns
+    )
+    summary = yield_by(frame, by)
+    for column in summary.columns:
+        header = SHORT.get(column, column)
+        table.add_column(header, justify="left" if column == by else "right", no_wrap=True)
+    for row in summary.itertuples(index=False):
+        *counts, first, final = row
+        table.add_row(*(str(v) for v in counts), _percent(first), _percent(final))
+    return table
+
+
+def _percent(value: float) -> str:
+    return "—" if math.isnan(value) else f"{100 * value:.1f}%"

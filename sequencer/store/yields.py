@@ -10,12 +10,9 @@ first test did. The day is the UTC date the result was measured.
 from __future__ import annotations
 
 import pandas as pd
-from rich import box
-from rich.table import Table
 
 GROUPS = ("station", "lot", "day")
 COUNTED = ("pass", "fail", "guard-band", "aborted")
-SHORT = {"guard-band": "guard", "first-test yield": "1st yield"}  # fits 80 columns
 
 
 def final_mask(frame: pd.DataFrame, key: pd.Series | None = None) -> pd.Series:
@@ -47,24 +44,6 @@ def yield_by(frame: pd.DataFrame, by: str) -> pd.DataFrame:
     final[by] = final[by].fillna("—").astype(str)
     rows = [_row(name, group) for name, group in final.groupby(by, sort=True)]
     return pd.DataFrame(rows, columns=columns)
-
-
-def yield_table(frame: pd.DataFrame, by: str) -> Table:
-    table = Table(
-        title=f"Yield per {by}",
-        title_justify="left",
-        box=box.SIMPLE_HEAD,
-        show_edge=False,
-        padding=(0, 0),  # the box puts one space between columns: fits 80 columns
-    )
-    summary = yield_by(frame, by)
-    for column in summary.columns:
-        header = SHORT.get(column, column)
-        table.add_column(header, justify="left" if column == by else "right", no_wrap=True)
-    for row in summary.itertuples(index=False):
-        *counts, first, final = row
-        table.add_row(*(str(v) for v in counts), _percent(first), _percent(final))
-    return table
 
 
 def _row(name: str, group: pd.DataFrame) -> list[object]:
@@ -114,7 +93,3 @@ def _when(frame: pd.DataFrame) -> pd.Series:
 
 def _day(frame: pd.DataFrame) -> pd.Series:
     return _when(frame).dt.strftime("%Y-%m-%d").fillna("—")
-
-
-def _percent(value: float) -> str:
-    return "—" if pd.isna(value) else f"{100 * value:.1f}%"
