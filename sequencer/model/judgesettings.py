@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 from functools import cached_property
 from typing import Any, TypeVar
 
-from sequencer.judge.uncertainty import DEFAULT_ACCURACY, Accuracy
+from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy
 
 T = TypeVar("T")
 

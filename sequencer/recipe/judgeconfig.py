@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from sequencer.judge.uncertainty import DEFAULT_ACCURACY, Accuracy, AccuracyTable, RangeAccuracy
+from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy, AccuracyTable, RangeAccuracy
 from sequencer.model.judgesettings import (
     CLASSIFICATIONS,
     DECISIONS,

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sequencer.judge.uncertainty import DEFAULT_ACCURACY, Accuracy
+from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy
 from sequencer.model.judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
 from sequencer.recipe.fields import Fields as _Fields
 from sequencer.recipe.fields import positive as _positive

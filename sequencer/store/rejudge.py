@@ -22,7 +22,7 @@ import numpy as np
 
 from sequencer.judge.engine import MISSING, Judgement, with_bin
 from sequencer.judge.lotjudge import judge_lot
-from sequencer.judge.uncertainty import DEFAULT_ACCURACY, Accuracy
+from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy
 from sequencer.model.curve import Curve
 from sequencer.model.errors import RecipeError, StoreError
 from sequencer.model.judgesettings import FIGURES, JudgeSettings

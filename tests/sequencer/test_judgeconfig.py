@@ -161,7 +161,7 @@ def test_a_decimal_comma_in_an_accuracy_fraction_says_what_to_write(tmp_path):
 
 
 def test_station_without_accuracy_uses_the_defaults(tmp_path):
-    from sequencer.judge.uncertainty import DEFAULT_ACCURACY
+    from sequencer.model.accuracy import DEFAULT_ACCURACY
 
     text = STATION[: STATION.index("# What the SMU measures to")]
     path = tmp_path / "s.yaml"

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from sequencer.judge.engine import judge_curve
-from sequencer.judge.uncertainty import Accuracy, AccuracyTable, RangeAccuracy
+from sequencer.model.accuracy import Accuracy, AccuracyTable, RangeAccuracy
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import JudgeSettings
 from sequencer.recipe.load import load_recipe

@@ -16,7 +16,7 @@ from sequencer.judge.decide import FAILING, GUARDED, IS_FAILING, IS_GUARDED
 from sequencer.judge.engine import judge_arrays, judge_curve
 from sequencer.judge.figures import Layout
 from sequencer.judge.lotjudge import judge_lot
-from sequencer.judge.uncertainty import DEFAULT_CURRENT, DEFAULT_VOLTAGE
+from sequencer.model.accuracy import DEFAULT_CURRENT, DEFAULT_VOLTAGE
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import CLASSIFICATIONS, VERDICTS
 from tests.sequencer.test_lotjudge import _same
