@@ -22,7 +22,7 @@ from sequencer.plan.make import make_plan
 from sequencer.run.device import measure_device
 from sequencer.run.recorder import Recorder
 from tests.instruments.test_dialect_files import _write_variant
-from tests.speed.helpers import lot_smu, recipes
+from tests.support.lots import lot_smu, recipes
 
 JOINED = load_dialect("scpi1999")
 SEPARATE = dataclasses.replace(JOINED, max_message_bytes=None)

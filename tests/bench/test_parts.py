@@ -25,7 +25,7 @@ from sequencer.store.runstore import RunStore
 from simulator.devices import open_circuit
 from simulator.options import SimOptions, build_instrument
 from simulator.session import Session
-from tests.factory.conftest import write_recipe, write_station
+from tests.support.stations import write_recipe, write_station
 
 POLICY = "part_by_part: {retests: 1, serial_pattern: 'FK2611-07-[0-9]{4}'}"
 

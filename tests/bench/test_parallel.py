@@ -14,7 +14,7 @@ from sequencer.bench.lotrun import make_guard, run_lot
 from sequencer.bench.parallel import Halted, Lane, lane_guards, run_parallel
 from sequencer.plan.make import make_plan
 from sequencer.safety.rules import Trip
-from tests.speed.helpers import lot_smu, recipes
+from tests.support.lots import lot_smu, recipes
 
 DEVICES = 9
 

@@ -14,7 +14,7 @@ import pytest
 from sequencer.judge.figures import Layout, Readings, compute
 from sequencer.plan.kneesearch import knee_reference
 from sequencer.plan.make import make_plan
-from tests.speed.helpers import ROOT, measure_lot, noiseless, recipes
+from tests.support.lots import ROOT, measure_lot, noiseless, recipes
 
 DEVICES = 40
 # The agreement the production plan must reach (issue 7: IP 0.1 %, VL 2 %, ZT 5 %); a

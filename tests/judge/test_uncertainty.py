@@ -13,7 +13,7 @@ from sequencer.model.accuracy import Accuracy, AccuracyTable, RangeAccuracy
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import JudgeSettings
 from sequencer.recipe.load import load_recipe
-from tests.sequencer.textbook import curve
+from tests.support.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 

@@ -19,8 +19,8 @@ from sequencer.judge.engine import judge_curve
 from sequencer.judge.lotjudge import judge_lot
 from sequencer.recipe.load import load_recipe
 from sequencer.store.runstore import RunStore
-from tests.sequencer.test_lotjudge import mixed_lot
-from tests.sequencer.textbook import curve
+from tests.judge.test_lotjudge import mixed_lot
+from tests.support.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 GRID = np.arange(0.0, 40.0001, 0.25)

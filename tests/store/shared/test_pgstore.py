@@ -10,7 +10,7 @@ from pathlib import Path
 
 import pytest
 
-from tests.factory.conftest import needs_psycopg
+from tests.support.postgres import needs_psycopg
 
 psycopg = needs_psycopg()
 
@@ -20,8 +20,8 @@ from sequencer.store.database import open_database  # noqa: E402
 from sequencer.store.runstore import RunStore  # noqa: E402
 from sequencer.store.shared import pgstore  # noqa: E402 - needs psycopg
 from sequencer.store.shared.shipper import Shipper  # noqa: E402
-from tests.factory.pgserver import free_port  # noqa: E402
 from tests.store.conftest import load, manifest_of, measure_into, write_recipe  # noqa: E402
+from tests.support.pgserver import free_port  # noqa: E402
 
 TYPES = {"REAL": "double precision", "INTEGER": ("integer", "bigint"), "TEXT": "text"}
 

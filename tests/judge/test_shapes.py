@@ -10,7 +10,7 @@ import pytest
 from sequencer.judge.engine import judge_curve
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import FigureLimit, JudgeSettings, Shape
-from tests.sequencer.textbook import closed_form_vl, curve
+from tests.support.textbook import closed_form_vl, curve
 
 GRID = np.arange(0.0, 40.0001, 0.25)
 GOOD = curve(GRID, lam=0.01, rs=1000.0)

@@ -19,7 +19,7 @@ from sequencer.plan.production import fixed_levels, knee_search, window_levels
 from sequencer.recipe.figuresstep import FiguresStep
 from sequencer.recipe.load import load_recipe
 from sequencer.safety.rules import preflight
-from tests.speed.helpers import PRODUCTION, regulator_current
+from tests.support.lots import PRODUCTION, regulator_current
 
 
 @pytest.mark.parametrize(

@@ -11,7 +11,7 @@ from sequencer.judge.engine import MISSING, Judgement, judge_curve, with_bin
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import FIGURES, BinRule, FigureLimit, FigureRange, JudgeSettings
 from sequencer.recipe.load import load_recipe
-from tests.sequencer.textbook import curve
+from tests.support.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 GRID = np.arange(0.0, 40.0001, 0.5)

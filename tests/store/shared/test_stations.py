@@ -14,13 +14,14 @@ from pathlib import Path
 
 import pytest
 
-from tests.factory.conftest import needs_psycopg, write_recipe, write_station
+from tests.support.postgres import needs_psycopg
+from tests.support.stations import write_recipe, write_station
 
 psycopg = needs_psycopg()
 
 pytestmark = [pytest.mark.sim, pytest.mark.robustness]
 
-ROOT = Path(__file__).resolve().parents[2]
+ROOT = Path(__file__).resolve().parents[3]
 CHANNELS = 20  # the embedded simulator holds 20 devices
 SLOW_SWEEP = (
     "  - sweep: {name: slow, start: 1 V, stop: 30 V, points: 30, compliance: 5 mA, settle: 5 ms}"

@@ -22,7 +22,7 @@ from sequencer.judge.figures import FigureArrays
 from sequencer.judge.uncertainty import acceptance_zone
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import VERDICTS, FigureLimit, JudgeSettings
-from tests.sequencer.textbook import curve
+from tests.support.textbook import curve
 
 IP_LIMIT = FigureLimit("regulated_current", 1.62e-3, 1.98e-3)
 

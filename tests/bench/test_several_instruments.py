@@ -13,7 +13,7 @@ import pytest
 
 from sequencer.model.errors import RecipeError
 from sequencer.recipe.load import load_recipe, load_station
-from tests.speed.helpers import ROOT
+from tests.support.lots import ROOT
 
 DEMO_STATION = (ROOT / "recipes" / "demo-station.yaml").read_text()
 

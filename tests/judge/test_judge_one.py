@@ -19,8 +19,8 @@ from sequencer.judge.lotjudge import judge_lot
 from sequencer.model.accuracy import DEFAULT_CURRENT, DEFAULT_VOLTAGE
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import CLASSIFICATIONS, VERDICTS
-from tests.sequencer.test_lotjudge import _same
-from tests.speed.helpers import measure_lot, recipes
+from tests.judge.test_lotjudge import _same
+from tests.support.lots import measure_lot, recipes
 
 DEVICES = 60
 

@@ -9,7 +9,7 @@ from scipy import stats
 from sequencer.judge.engine import fit_slope, impedance_from_slope, judge_curve
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import FigureLimit, JudgeSettings
-from tests.sequencer.textbook import closed_form_current, closed_form_vl, curve
+from tests.support.textbook import closed_form_current, closed_form_vl, curve
 
 GRID = np.arange(0.0, 40.0001, 0.05)
 

@@ -18,7 +18,7 @@ from sequencer.run.recorder import Recorder
 from sequencer.run.segment import list_is_safe
 from sequencer.safety.rules import Guard
 from simulator.smu_model import CURRENT_RESOLUTION_OF_RANGE, VOLTAGE_RESOLUTION_V
-from tests.speed.helpers import lot_smu, recipes
+from tests.support.lots import lot_smu, recipes
 
 
 class RecordingGuard(Guard):

@@ -12,7 +12,7 @@ from sequencer.judge.engine import MISSING, Judgement
 from sequencer.model.errors import RecipeError
 from sequencer.model.judgesettings import FIGURES
 from sequencer.recipe.load import load_station
-from tests.factory.conftest import write_station
+from tests.support.stations import write_station
 
 URL = "postgresql://ccbench@results.example.internal:5433/ccbench"
 

@@ -13,7 +13,7 @@ from sequencer.plan.make import make_plan
 from sequencer.run.device import measure_device
 from sequencer.run.estimate import Timing, after_run, estimate, predict
 from sequencer.run.recorder import Recorder
-from tests.speed.helpers import lot_smu, recipes
+from tests.support.lots import lot_smu, recipes
 
 
 def _guard(recipe):
@@ -71,7 +71,7 @@ def test_after_a_run_the_prediction_and_the_time_taken_stand_side_by_side():
 def test_a_station_whose_dialect_cannot_be_read_is_refused_by_the_estimate(tmp_path):
     from sequencer.model.errors import RecipeError
     from sequencer.recipe.load import load_recipe
-    from tests.speed.helpers import ROOT
+    from tests.support.lots import ROOT
 
     text = (ROOT / "recipes" / "demo-station.yaml").read_text()
     station = tmp_path / "station.yaml"

@@ -13,7 +13,7 @@ import pytest
 from rich.console import Console
 
 from sequencer.cli.main import main
-from tests.factory.conftest import write_recipe, write_station
+from tests.support.stations import write_recipe, write_station
 
 ROOT = Path(__file__).resolve().parents[2]
 COUNTS = ["3", "4", "2", "1", "0", "0", "1", "66.7%", "66.7%"]

@@ -14,7 +14,7 @@ from sequencer.judge.engine import Judgement, judge_curve
 from sequencer.judge.lotjudge import judge_lot, stack
 from sequencer.model.curve import Curve
 from sequencer.recipe.load import load_recipe
-from tests.sequencer.textbook import curve
+from tests.support.textbook import curve
 
 RECIPES = Path(__file__).resolve().parents[2] / "recipes"
 SWEEP = np.linspace(0.0, 40.0, 81)  # the demo plan: a sweep, then 5 spots at 25 V
