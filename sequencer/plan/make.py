@@ -14,6 +14,7 @@ from sequencer.plan.segments import Plan, Segment
 from sequencer.recipe.figuresstep import FiguresStep
 from sequencer.recipe.load import Recipe, SpotStep, SweepStep
 
+
 def sweep_levels(step: SweepStep) -> tuple[float, ...]:
     levels = np.linspace(step.start_v, step.stop_v, step.points)
     return tuple(float(v) for v in np.round(levels, 12))
