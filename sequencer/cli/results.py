@@ -16,7 +16,7 @@ from rich.console import Console
 from rich.table import Table
 
 from sequencer.model.errors import RecipeError
-from sequencer.recipe.units import format_si
+from sequencer.model.units import format_si
 from sequencer.store.yields import GROUPS, yield_by
 
 if TYPE_CHECKING:  # pandas is imported when the command runs, not on every ccbench start

@@ -5,10 +5,10 @@ from __future__ import annotations
 
 from rich.table import Table
 
+from sequencer.model.units import format_si
 from sequencer.plan.segments import Plan
 from sequencer.recipe.limits import Bound
 from sequencer.recipe.load import Recipe
-from sequencer.recipe.units import format_si
 from sequencer.safety.rules import is_hazardous
 
 LAYER = {

@@ -13,9 +13,9 @@ from rich.text import Text
 
 from sequencer.bench.lotrun import DeviceDone, RunSummary
 from sequencer.judge.engine import Figure, Judgement
+from sequencer.model.units import format_si
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
-from sequencer.recipe.units import format_si
 from sequencer.run.estimate import Estimate, describe
 
 VERDICT_STYLE = {

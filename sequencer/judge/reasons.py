@@ -8,7 +8,7 @@ import math
 from sequencer.judge import decide
 from sequencer.judge import figures as fig
 from sequencer.model.judgesettings import FIGURE_INFO, SHAPES, FigureLimit, JudgeSettings
-from sequencer.recipe.units import format_si
+from sequencer.model.units import format_si
 
 Reason = tuple[str, str]
 SYMBOL = {"A": "A", "V": "V", "ohm": "Ω", "W": "W"}

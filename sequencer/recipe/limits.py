@@ -16,8 +16,9 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from sequencer.model.errors import RecipeError
+from sequencer.model.units import format_si
 from sequencer.recipe.fields import Fields, positive
-from sequencer.recipe.units import UnitProblem, format_si, parse_quantity
+from sequencer.recipe.units import UnitProblem, parse_quantity
 from sequencer.recipe.yamlsource import Source
 
 if TYPE_CHECKING:  # recipe.py imports this module; the station's Limits is only read here

@@ -17,7 +17,8 @@ from dataclasses import dataclass
 from typing import Any
 
 from sequencer.model.errors import RecipeError
-from sequencer.recipe.units import UnitProblem, format_si, parse_quantity
+from sequencer.model.units import format_si
+from sequencer.recipe.units import UnitProblem, parse_quantity
 from sequencer.recipe.yamlsource import Source
 
 KEYS = ("every", "for", "passes")

@@ -200,25 +200,3 @@ def _suggest(name: str, kind: str) -> str:
         if name.lower() == (prefix + symbol).lower() and name != prefix + symbol:
             return f" (did you mean '{prefix + symbol}'?)"
     return ""
-
-
-def format_si(value: float, unit: str, digits: int = 4) -> str:
-    """Engineering notation for people: 0.0018403 A -> '1.840 mA'."""
-    if value != value:  # NaN
-        return "—"
-    if value in (float("inf"), float("-inf")):
-        return f"{'-' if value < 0 else ''}∞ {unit}"
-    prefixes = [
-        (1e9, "G"),
-        (1e6, "M"),
-        (1e3, "k"),
-        (1.0, ""),
-        (1e-3, "m"),
-        (1e-6, "µ"),
-        (1e-9, "n"),
-    ]
-    magnitude = abs(value)
-    for scale, prefix in prefixes:
-        if magnitude >= scale * 0.9995:
-            return f"{value / scale:.{digits}g} {prefix}{unit}"
-    return f"{value / 1e-12:.{digits}g} p{unit}"

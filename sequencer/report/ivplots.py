@@ -13,7 +13,7 @@ import numpy as np
 from matplotlib.patches import Rectangle
 
 from sequencer.model.judgesettings import FIGURE_UNIT
-from sequencer.recipe.units import format_si
+from sequencer.model.units import format_si
 from sequencer.report.data import Lot, bound_column, u_column, value_column
 from sequencer.report.lotsummary import label, reported_figures
 from sequencer.report.plotstyle import (

@@ -10,7 +10,7 @@ import numpy as np
 from matplotlib.ticker import MaxNLocator
 
 from sequencer.model.judgesettings import FIGURE_UNIT
-from sequencer.recipe.units import format_si
+from sequencer.model.units import format_si
 from sequencer.report.capability import Capability
 from sequencer.report.data import Lot
 from sequencer.report.ivplots import device_plot, iv_overlay

@@ -9,7 +9,7 @@ import math
 import pytest
 
 from sequencer.model.errors import SafetyError
-from sequencer.plan.make import Plan, Segment
+from sequencer.plan.segments import Plan, Segment
 from sequencer.recipe.limits import effective_limits
 from sequencer.recipe.load import Limits
 from sequencer.run.segment import Point
