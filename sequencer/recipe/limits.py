@@ -13,16 +13,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from sequencer.model.errors import RecipeError
 from sequencer.model.units import format_si
 from sequencer.recipe.fields import Fields, positive
 from sequencer.recipe.units import UnitProblem, parse_quantity
 from sequencer.recipe.yamlsource import Source
-
-if TYPE_CHECKING:  # recipe.py imports this module; the station's Limits is only read here
-    from sequencer.recipe.load import Limits
 
 # Ceilings no station may set a limit above: (key, kind, attribute, unit, ceiling). ccbench
 # drives bench SMUs for two-terminal regulators; a source beyond these is another kind of bench
@@ -40,6 +37,32 @@ HAZARDOUS_DC_V = 70.0
 ON_TRIP = ("stop", "skip")
 ON_COMPLIANCE = ("flag", "trip")
 ACKNOWLEDGED = "acknowledged"
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Absolute limits of a station: what the fixture, wiring and SMU may ever carry.
+
+    Every value is finite and positive and within the ceilings of sequencer.recipe.limits; the
+    touch-safe voltage is at most `max_voltage` and, unless `touch_safe_reason` says why, at
+    most the d.c. level IEC 61010-1 calls hazardous live. The loader refuses a file that breaks
+    a rule with file:line; this check is the backstop for limits built in code.
+    """
+
+    max_voltage_v: float
+    max_current_a: float
+    max_power_w: float
+    # Above this a level is hazardous: interlocked fixture, closed lid and an acknowledgement.
+    # 42 V is common practice, no source. Beside it, IEC 61010-1 calls accessible parts
+    # hazardous live above 33 V rms, 46.7 V peak or 70 V d.c. (from memory; verify against the
+    # standard, REFERENCES.md s4).
+    touch_safe_v: float = 42.0
+    touch_safe_reason: str = ""  # why this station's touch-safe voltage is above 70 V d.c.
+
+    def __post_init__(self) -> None:
+        problem = station_limits_problem(self)
+        if problem:
+            raise ValueError(problem)
 
 
 @dataclass(frozen=True)

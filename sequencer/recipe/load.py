@@ -24,6 +24,7 @@ from sequencer.recipe.limits import (
     ON_COMPLIANCE,
     ON_TRIP,
     EffectiveLimits,
+    Limits,
     Ratings,
     RecipeLimits,
     effective_limits,
@@ -32,7 +33,6 @@ from sequencer.recipe.limits import (
     parse_ratings,
     parse_recipe_limits,
     parse_station_limits,
-    station_limits_problem,
 )
 from sequencer.recipe.repeat import Repeat, parse_repeat
 from sequencer.recipe.resultsdb import SharedDatabase, parse_results_database
@@ -40,32 +40,6 @@ from sequencer.recipe.retest import RetestPolicy, parse_part_by_part
 from sequencer.recipe.yamlsource import Source, load_yaml
 
 __all__ = ["FIGURES", "FIGURE_KIND", "FigureLimit", "JudgeSettings", "Recipe", "Station"]
-
-
-@dataclass(frozen=True)
-class Limits:
-    """Absolute limits of a station: what the fixture, wiring and SMU may ever carry.
-
-    Every value is finite and positive and within the ceilings of sequencer.recipe.limits; the
-    touch-safe voltage is at most `max_voltage` and, unless `touch_safe_reason` says why, at
-    most the d.c. level IEC 61010-1 calls hazardous live. The loader refuses a file that breaks
-    a rule with file:line; this check is the backstop for limits built in code.
-    """
-
-    max_voltage_v: float
-    max_current_a: float
-    max_power_w: float
-    # Above this a level is hazardous: interlocked fixture, closed lid and an acknowledgement.
-    # 42 V is common practice, no source. Beside it, IEC 61010-1 calls accessible parts
-    # hazardous live above 33 V rms, 46.7 V peak or 70 V d.c. (from memory; verify against the
-    # standard, REFERENCES.md s4).
-    touch_safe_v: float = 42.0
-    touch_safe_reason: str = ""  # why this station's touch-safe voltage is above 70 V d.c.
-
-    def __post_init__(self) -> None:
-        problem = station_limits_problem(self)
-        if problem:
-            raise ValueError(problem)
 
 
 @dataclass(frozen=True)

@@ -20,8 +20,7 @@ from typing import Protocol
 from sequencer.model.errors import SafetyError
 from sequencer.model.units import format_si
 from sequencer.plan.segments import Plan, Segment
-from sequencer.recipe.limits import EffectiveLimits, as_effective
-from sequencer.recipe.load import Limits
+from sequencer.recipe.limits import EffectiveLimits, Limits, as_effective
 
 CAUTION = (
     "Caution: an SMU output can carry hazardous voltage. Keep the fixture closed and interlocked, "

@@ -9,7 +9,8 @@ import pytest
 
 from sequencer.model.errors import SafetyError
 from sequencer.plan.make import make_plan
-from sequencer.recipe.load import Limits, load_recipe
+from sequencer.recipe.limits import Limits
+from sequencer.recipe.load import load_recipe
 from sequencer.run.device import ramp_levels
 from sequencer.safety.rules import Guard, preflight
 

@@ -11,8 +11,7 @@ import pytest
 from sequencer.bench.lotrun import make_guard
 from sequencer.plan.make import make_plan
 from sequencer.plan.segments import Segment
-from sequencer.recipe.limits import Ratings, effective_limits
-from sequencer.recipe.load import Limits
+from sequencer.recipe.limits import Limits, Ratings, effective_limits
 from sequencer.run.device import measure_device
 from sequencer.run.recorder import Recorder
 from sequencer.run.segment import list_is_safe

@@ -11,8 +11,8 @@ from rich.console import Console
 
 from sequencer.cli.main import main
 from sequencer.model.errors import RecipeError
-from sequencer.recipe.limits import Bound, Ratings, RecipeLimits, effective_limits
-from sequencer.recipe.load import Limits, load_recipe
+from sequencer.recipe.limits import Bound, Limits, Ratings, RecipeLimits, effective_limits
+from sequencer.recipe.load import load_recipe
 from tests.safety.bench import write_bench
 
 

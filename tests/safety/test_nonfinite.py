@@ -10,8 +10,7 @@ import pytest
 
 from sequencer.model.errors import SafetyError
 from sequencer.plan.segments import Plan, Segment
-from sequencer.recipe.limits import effective_limits
-from sequencer.recipe.load import Limits
+from sequencer.recipe.limits import Limits, effective_limits
 from sequencer.run.segment import Point
 from sequencer.safety.rules import Guard, Trip, check_hazard, is_hazardous, preflight
 
