@@ -15,6 +15,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from rich.console import Console
+from rich.markup import escape
 
 from sequencer import __version__
 from sequencer.bench import multibench
@@ -101,7 +102,8 @@ def main(
         with GATE.installed(ignore_after=exiting):  # the first signal raises; more cannot
             return COMMANDS[args.command](args, console)  # cut a shutdown short
     except CcbenchError as exc:
-        console.print(f"[bold red]ccbench:[/] {exc}", soft_wrap=True)
+        # The message may quote a file: shown as written, never read as markup or emoji codes.
+        console.print(f"[bold red]ccbench:[/] {escape(str(exc))}", soft_wrap=True, emoji=False)
         return exc.exit_code
     except (KeyboardInterrupt, Terminated) as exc:
         console.print(f"[bold yellow]ccbench:[/] {_why_stopped(exc)}", soft_wrap=True)

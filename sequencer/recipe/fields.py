@@ -13,6 +13,10 @@ from typing import Any
 from sequencer.recipe.units import UnitProblem, parse_quantity
 from sequencer.recipe.yamlsource import Source
 
+# Names, lots and reasons are short; a longer text is a mistake (or an attack on every record
+# and screen the text is copied into).
+MAX_TEXT = 500
+
 
 @dataclass
 class Fields:
@@ -64,10 +68,11 @@ class Fields:
             raise self.source.error(self.where(key), f"must be a finite number (got {value!r})")
         return value
 
-    def text(self, key: str, default: Any = ...) -> str:
+    def text(self, key: str, default: Any = ..., *, longest: int = MAX_TEXT) -> str:
         value = self.raw(key, default)
         if not isinstance(value, str | int | float) or isinstance(value, bool):
             raise self.source.error(self.where(key), f"must be text (got {show(value)})")
+        self.check(len(str(value)) <= longest, key, f"is longer than {longest} characters")
         return str(value)
 
     def choice(self, key: str, options: tuple[str, ...], default: str) -> str:
@@ -88,8 +93,11 @@ class Fields:
                 )
 
 
-def show(value: Any) -> str:
-    return repr(value) if not isinstance(value, dict | list) else type(value).__name__
+def show(value: Any, longest: int = 60) -> str:
+    """A value as a message quotes it: never a whole file (a station path naming some other
+    file would otherwise echo it into the screen and every log)."""
+    text = repr(value) if not isinstance(value, dict | list) else type(value).__name__
+    return text if len(text) <= longest else text[: longest - 1] + "…"
 
 
 def positive(fields: Fields, key: str, kind: str, default: Any = ...) -> float:

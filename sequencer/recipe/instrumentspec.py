@@ -132,25 +132,37 @@ def _timing(f: Fields) -> tuple[float | None, float | None]:
     return out[0], out[1]
 
 
+# A tray or switch matrix of a bench has tens to a few thousand positions.
+MAX_CHANNELS = 10_000
+
+
 def parse_channels(source: Source, path: str, value: Any) -> tuple[int, ...]:
     """`{channels: ...}` at `path`: a count, a list of channels or a range '1-20'."""
     tray = Fields.at(source, path, value)
     raw = tray.raw("channels")
     tray.finish()
     where = f"{path}.channels" if not path.endswith("channels") else path
+    channels = _channels(raw)
+    if channels is None:
+        problem = f"must be a count, a list of channels or a range '1-20' (got {raw!r})"
+        raise source.error(where, problem)
+    if len(channels) > MAX_CHANNELS:
+        raise source.error(where, f"names {len(channels)} channels; at most {MAX_CHANNELS}")
+    if len(set(channels)) != len(channels):
+        raise source.error(where, "lists a channel twice")
+    return tuple(channels)
+
+
+def _channels(raw: Any) -> tuple[int, ...] | range | None:
     if isinstance(raw, int) and not isinstance(raw, bool) and raw > 0:
-        return tuple(range(1, raw + 1))
+        return range(1, raw + 1)
     if isinstance(raw, list) and raw and all(_channel(c) for c in raw):
-        if len(set(raw)) != len(raw):
-            raise source.error(where, "lists a channel twice")
         return tuple(raw)
     if isinstance(raw, str) and "-" in raw:
         first, _, last = raw.partition("-")
         if first.strip().isdigit() and last.strip().isdigit() and 0 < int(first) <= int(last):
-            return tuple(range(int(first), int(last) + 1))
-    raise source.error(
-        where, f"must be a count, a list of channels or a range '1-20' (got {raw!r})"
-    )
+            return range(int(first), int(last) + 1)
+    return None
 
 
 def _channel(value: Any) -> bool:

@@ -151,7 +151,7 @@ def load_station(path: Path) -> Station:
     accuracy = parse_accuracy(source, top.raw("accuracy", None))
     shared = parse_results_database(source, top.raw("results_database", None))
     top.finish()
-    text = path.read_text(encoding="utf-8")
+    text = source.text
     return Station(
         name,
         str(path),
@@ -250,7 +250,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     lists = top.raw("lists", False)
     top.check(isinstance(lists, bool), "lists", f"must be true or false (got {lists!r})")
     top.finish()
-    text = path.read_text(encoding="utf-8")
+    text = source.text
     return Recipe(
         str(path),
         product,
@@ -320,6 +320,8 @@ def _sweep(f: _Fields, index: int) -> SweepStep:
         f.check(step > 0, "step", f"must be positive (got {step} V)")
         span = abs(stop - start)
         points = round(span / step) + 1
+        many = f"gives {points} points; at most 100000 (got {step:g} V)"
+        f.check(points <= 100_000, "step", many)
         f.check(
             abs((points - 1) * step - span) < 1e-9 * max(span, 1),
             "step",
