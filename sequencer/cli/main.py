@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import datetime as dt
 import getpass
 import json
@@ -27,11 +28,13 @@ from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
 from sequencer.cli.view import plan_summary, plan_table, showing_devices, summary_table
-from sequencer.model.errors import CcbenchError, RunError
+from sequencer.model.errors import CcbenchError, RecipeError, RunError
 from sequencer.plan.make import make_plan
+from sequencer.recipe.fields import MAX_TEXT
 from sequencer.recipe.load import Recipe, load_recipe
 from sequencer.run.estimate import after_run, predict
 from sequencer.safety.rules import CAUTION, check_hazard, is_hazardous, preflight
+from sequencer.store.runfolder import folder_name
 from sequencer.store.shared import shipper
 
 EXIT_INTERRUPTED = 130
@@ -63,6 +66,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("recipe", type=Path)
     run.add_argument("--sim", action="store_true", help="use the embedded simulated SMU")
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
+    run.add_argument("--lot", help="the lot under test (default: the recipe's lot); recorded")
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
     run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
@@ -131,15 +135,31 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     return 0
 
 
+def _default_folder(lot: str, console: Console) -> Path:
+    name = folder_name(lot)
+    if name != lot:
+        console.print(f"the lot {lot!r} is not a folder name; its run folder is named {name!r}")
+    return Path("runs") / f"{name}-{dt.datetime.now():%Y%m%d-%H%M%S}"
+
+
+def _lot_option(recipe: Recipe, lot: str | None) -> Recipe:
+    """`--lot`: the same recipe for another lot, so each lot needs no edit (and no new hash)."""
+    if lot is None:
+        return recipe
+    if not lot.strip() or len(lot) > MAX_TEXT or not lot.isprintable():
+        raise RecipeError("command line", None, "--lot", "must be a short printable name")
+    return dataclasses.replace(recipe, lot=lot.strip())
+
+
 def cmd_run(args: argparse.Namespace, console: Console) -> int:
-    recipe = load_recipe(args.recipe, station_path=args.station)
+    recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
     _cautions(console, recipe, plan)
     prediction = predict(recipe, plan)
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
-    out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
+    out = args.out or _default_folder(recipe.lot, console)
     repeat = runsession.repeat_for(recipe, args)
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from typing import Any
-from urllib.parse import urlsplit
+from urllib.parse import parse_qsl, urlsplit
 
 from sequencer.recipe.fields import Fields
 from sequencer.recipe.yamlsource import Source
@@ -43,6 +43,11 @@ class SharedDatabase:
         return f"{host}{port}{parts.path}"
 
 
+# libpq reads these from a URL's query as well as from its user part (from memory: the libpq
+# connection-parameter list); any of them would be copied into every run record.
+SECRET_PARAMETERS = {"password", "sslpassword"}
+
+
 def url_problem(url: str) -> str:
     """What is wrong with a results-database URL ('' when nothing)."""
     try:
@@ -52,7 +57,8 @@ def url_problem(url: str) -> str:
         return f"is not a URL ({exc})"
     if parts.scheme not in SCHEMES:
         return f"must be a postgresql:// URL (got {url!r})"
-    if parts.password:
+    asked = {key.lower() for key, _ in parse_qsl(parts.query, keep_blank_values=True)}
+    if parts.password or asked & SECRET_PARAMETERS:
         return (
             "must not carry a password (the station text is copied into every run record); "
             "put it in ~/.pgpass or PGPASSWORD"

@@ -33,6 +33,9 @@ STYLE = {
     "ytick.color": "#444444",
     "legend.frameon": False,
     "legend.fontsize": 8,
+    # Lot names, serials and soft bins are drawn as written: '$...$' is text, not mathematics
+    # (matplotlib would parse it, and a lone '$' would end the report in an error).
+    "text.parse_math": False,
 }
 SYMBOL = {"A": "A", "V": "V", "ohm": "Ω", "W": "W"}
 PREFIXES = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"))

@@ -41,7 +41,13 @@ class Progress:
 
 
 def check_recipe(folder: Path, stored: dict[str, Any], new: dict[str, Any], accept: bool) -> str:
-    """Refuse to continue under another recipe or station unless `accept`; returns a note."""
+    """Refuse to continue under another recipe or station unless `accept`, or for another lot
+    at all (a lot is what the results are filed under); returns a note."""
+    old_lot, new_lot = stored.get("lot"), new.get("lot")
+    if old_lot is not None and new_lot is not None and old_lot != new_lot:
+        raise FolderRefused(
+            folder, f"holds lot {old_lot!r}, not {new_lot!r}; resume it with --lot {old_lot!r}"
+        )
     old_digest, new_digest = stored.get("recipe_sha256"), new.get("recipe_sha256")
     if old_digest == new_digest:
         return ""

@@ -23,6 +23,7 @@ import fcntl
 import json
 import os
 import platform
+import re
 import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
@@ -167,6 +168,17 @@ def _inode_of(fd: int) -> tuple[int, int]:
 
 def _inode(st: os.stat_result) -> tuple[int, int]:
     return st.st_dev, st.st_ino
+
+
+_UNSAFE = re.compile(r"[^A-Za-z0-9._+-]+")
+
+
+def folder_name(name: str) -> str:
+    """A lot (or other name) as one folder name inside its parent: separators and anything a
+    shell or another system reads specially become '_', and it cannot start with a dot, so
+    `../../x` or `/etc` can never put a run folder outside `runs/`."""
+    safe = _UNSAFE.sub("_", name).lstrip(".") or "_"
+    return safe[:120]
 
 
 def utc_now() -> str:

@@ -22,6 +22,9 @@ URL = "postgresql://ccbench@results.example.internal:5433/ccbench"
     [
         ("mysql://ccbench@db/ccbench", "7: results_database must be a postgresql:// URL"),
         ("postgresql://ccbench:secret@db/ccbench", "7: results_database must not carry a password"),
+        ("postgresql://ccbench@db/x?password=s2", "7: results_database must not carry a password"),
+        ("postgres://a@db/x?sslmode=require&Password=s", "7: results_database must not carry a"),
+        ("postgresql://a@db/x?sslpassword=s", "7: results_database must not carry a password"),
         ("postgresql://ccbench@db", "7: results_database must name the database"),
         ("postgresql://ccbench@db:port/x", "7: results_database is not a URL"),
         ("{url: 'postgres://a@db/x', wait_at_end: 2 h}", "9: results_database.wait_at_end must be"),

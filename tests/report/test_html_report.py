@@ -99,3 +99,15 @@ def test_tables_state_the_lots_yield_and_capability(lot_folder, report):
     assert "regulated current (IP)" in page.cells
     assert "Cpk (95 %)" in page.cells
     assert "FK2611-07-016" in page.cells
+
+
+def test_dollar_signs_in_names_are_drawn_as_text(tmp_path):
+    # A lot or serial such as '$\frac{$' once ended the report in a math-parser error.
+    from tests.report.conftest import lot_parts, write_run
+
+    lot = "$\\frac{$"
+    folder = write_run(tmp_path / "lot", lot, lot_parts(lot), "2026-11-02T10:00:00+00:00")
+    console = Console(file=io.StringIO(), width=120)
+    argv = ["report", str(folder), "--out", str(tmp_path / "r"), "--device", f"{lot}-002"]
+    assert main(argv, console=console) == 0, console.file.getvalue()
+    assert (tmp_path / "r" / "report.html").stat().st_size > 0
