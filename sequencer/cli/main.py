@@ -67,6 +67,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--sim", action="store_true", help="use the embedded simulated SMU")
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
     run.add_argument("--lot", help="the lot under test (default: the recipe's lot); recorded")
+    run.add_argument("--send-dry-run", action="store_true", help=uploadcmd.SEND_DRY_RUN_HELP)
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
     run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
@@ -172,7 +173,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     bench = multibench.Benches() if several else Bench()
     status, error, uploads = "failed", None, None
     try:
-        uploads = uploadcmd.start_for(recipe.station.results_database, store, console)
+        database = recipe.station.results_database
+        dry = bool(manifest["dry_run"])
+        uploads = uploadcmd.start_for(database, store, console, dry_run=dry, send=args.send_dry_run)
         if several:  # one worker per instrument; sequencer/multibench.py
             summary = multibench.measure_on_benches(
                 recipe, plan, args.sim, out, store,
@@ -313,6 +316,9 @@ def _manifest(recipe: Recipe, plan, args: argparse.Namespace, resource: str) -> 
         "station_text": recipe.station.text,
         "resource": resource,
         "simulator": json.dumps(recipe.station.simulator_options) if resource == "sim" else None,
+        # A simulated instrument (--sim, or a station whose resources are `sim`): never a
+        # production result.
+        "dry_run": all(part == "sim" for part in resource.split("; ")),
         "hazardous_voltage": _acknowledgement(recipe, plan, args),
     }
 

@@ -41,6 +41,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     res.add_argument("--verdict", choices=VERDICTS, help="only devices with this verdict")
     res.add_argument("--devices", action="store_true", help="list every device on screen")
     res.add_argument(
+        "--dry-runs", action="store_true", help="--database: include runs on the simulator"
+    )
+    res.add_argument(
         "--database", metavar="URL", help="read the shared results database instead of folders"
     )
     res.add_argument("--by", choices=GROUPS, help="yield per station, lot or day")
@@ -58,7 +61,7 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
             "command line", None, "", "name run folders or give --under DIR (or --database URL)"
         )
     since = parse_since(args.since) if args.since else None
-    keep = Filter(args.lot, args.product, since, args.verdict)
+    keep = Filter(args.lot, args.product, since, args.verdict, dry_runs=args.dry_runs)
     if args.database is not None:
         table, source = _shared(args, keep)
     else:

@@ -143,8 +143,19 @@ def load_lot(folders: list[Path]) -> Lot:
     devices = _devices([e[1].assign(run=k, lot=e[0]["lot"]) for k, e in enumerate(entries)])
     points = _points([e[2].assign(run=k) for k, e in enumerate(entries)], devices)
     settings, notes = _settings(runs)
-    notes += _status_notes(runs)
+    notes += _status_notes(runs) + _dry_run_notes(runs)
     return Lot(runs, devices, points, settings, _step_kinds(points), tuple(notes))
+
+
+def _dry_run_notes(runs: pd.DataFrame) -> list[str]:
+    """A run on the simulator is said first thing, so nobody files its yield as production."""
+    if "simulator" not in runs:
+        return []
+    dry = int(runs["simulator"].notna().sum())
+    if not dry:
+        return []
+    which = "every run" if dry == len(runs) else f"{dry} of {len(runs)} runs"
+    return [f"DRY RUN: {which} measured the simulated instrument, not real parts"]
 
 
 Entry = tuple[dict, pd.DataFrame, pd.DataFrame]

@@ -40,6 +40,7 @@ class Filter:
     product: str | None = None
     since: dt.datetime | None = None
     verdict: str | None = None
+    dry_runs: bool = False  # the shared database: runs on the simulator only when asked for
 
 
 def find_runs(folders: Iterable[Path], under: Path | None = None) -> list[Path]:

@@ -4,6 +4,7 @@ them, the simulated lid, the verdicts on screen; then `ccbench results --by` on 
 from __future__ import annotations
 
 import io
+import json
 import os
 import subprocess
 import sys
@@ -27,8 +28,8 @@ def ccbench(*args: str) -> tuple[int, str]:
     return code, out.getvalue()
 
 
-def run_parts(recipe: Path, out: Path, script: str) -> subprocess.CompletedProcess:
-    command = [sys.executable, "-m", "sequencer.cli", "run", str(recipe), "--sim"]
+def run_parts(recipe: Path, out: Path, script: str, *flags: str) -> subprocess.CompletedProcess:
+    command = [sys.executable, "-m", "sequencer.cli", "run", str(recipe), "--sim", *flags]
     command += ["--out", str(out), "--part-by-part", "--operator", "ann"]
     env = dict(os.environ, PYTHONPATH=str(ROOT), COLUMNS="100")
     return subprocess.run(
@@ -36,14 +37,14 @@ def run_parts(recipe: Path, out: Path, script: str) -> subprocess.CompletedProce
     )
 
 
-def operator_session(tmp_path: Path, extra: str = "") -> tuple[Path, str]:
+def operator_session(tmp_path: Path, extra: str = "", *flags: str) -> tuple[Path, str]:
     """The scripted session on a six-socket simulated station whose second part is open."""
     station = write_station(tmp_path / "recipes", channels=6, extra=extra)
     fault = "clock: virtual, faults: [{kind: device-open, on: point, channel: 2}]}"
     station.write_text(station.read_text().replace("clock: virtual}", fault))
     recipe = write_recipe(tmp_path / "recipes", station, extra="part_by_part: {retests: 1}")
     out = tmp_path / "run"
-    done = run_parts(recipe, out, SCRIPT)
+    done = run_parts(recipe, out, SCRIPT, *flags)
     assert done.returncode == 0, done.stdout + done.stderr
     return out, done.stdout
 
@@ -72,17 +73,35 @@ def test_an_operator_session_through_the_command_line_and_both_stores(tmp_path):
 @pytest.mark.sim
 def test_the_shared_database_answers_as_the_run_folder_does(tmp_path, pg_url):
     shared = f'results_database: "{pg_url}"'
-    out, screen = operator_session(tmp_path, extra=shared)
+    out, screen = operator_session(tmp_path, shared, "--send-dry-run")
     assert "every result of the run is stored (4 sent by this session)" in screen
     for by, name in (("lot", "FK2611-07"), ("station", "FLC-bench-P1")):
-        code, text = ccbench("results", "--database", pg_url, "--by", by)
+        code, text = ccbench("results", "--database", pg_url, "--dry-runs", "--by", by)
         assert code == 0 and yield_row(text, name) == [name, *COUNTS], text
         code, local = ccbench("results", str(out), "--by", by)
         assert yield_row(local, name) == yield_row(text, name)
-    code, text = ccbench("results", "--database", pg_url, "--by", "day", "--verdict", "fail")
+    code, text = ccbench("results", "--database", pg_url, "--dry-runs", "--by", "day",
+                         "--verdict", "fail")  # fmt: skip
     assert code == 0 and "2 devices from 1 runs in the shared database" in text
-    code, text = ccbench("upload", str(out))  # the station named the database: nothing left
+    code, text = ccbench("upload", str(out), "--send-dry-run")  # sent already: nothing left
     assert code == 0 and "(0 sent by this session)" in text
+
+
+@pytest.mark.sim
+def test_a_dry_run_stays_out_of_the_shared_database(tmp_path, pg_url):
+    out, screen = operator_session(tmp_path, f'results_database: "{pg_url}"')
+    assert "a dry run (simulated instrument): results are not sent" in screen
+    assert json.loads((out / "manifest.json").read_text())["dry_run"] is True
+    code, text = ccbench("upload", str(out))
+    assert code == 0 and "a dry run (simulated instrument); skipped" in text
+    code, text = ccbench("results", "--database", pg_url, "--dry-runs")
+    assert code == 0 and "0 devices" in text, text  # nothing was sent
+    code, text = ccbench("upload", str(out), "--send-dry-run")
+    assert code == 0 and "(4 sent by this session)" in text
+    code, text = ccbench("results", "--database", pg_url)  # sent, and still left out of yields
+    assert code == 0 and "0 devices" in text, text
+    code, text = ccbench("results", "--database", pg_url, "--dry-runs")
+    assert code == 0 and "4 devices from 1 runs in the shared database" in text, text
 
 
 def test_part_by_part_refuses_a_schedule(tmp_path):

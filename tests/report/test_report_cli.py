@@ -83,4 +83,7 @@ def test_demo_run_then_every_report(tmp_path):
     assert code == 0, said
     assert (out / "report" / "report.html").is_file()
     assert (out / "report" / "device-FK2611-07-001.png").is_file()
+    banner = "DRY RUN: every run measured the simulated instrument, not real parts"
+    assert banner in (out / "report" / "report.html").read_text(encoding="utf-8")
+    assert banner in run(["report", str(out), "--text"])[1]
     assert stdf.read_bytes()[:6] == bytes.fromhex("0200000a0204")

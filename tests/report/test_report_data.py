@@ -12,6 +12,8 @@ import pytest
 from sequencer.model.errors import StoreError
 from sequencer.report.data import ReportError, load_lot, value_column
 
+DRY = "DRY RUN: every run measured the simulated instrument, not real parts"
+
 
 def _csv(folder):
     with open(folder / "devices.csv", newline="") as f:
@@ -29,7 +31,9 @@ def test_devices_and_points_match_the_store(lot_folder):
     db = sqlite3.connect(lot_folder / "results.sqlite")
     assert len(lot.points) == db.execute("SELECT COUNT(*) FROM point").fetchone()[0]
     assert lot.step_kinds == {"iv": "sweep", "at-test-voltage": "spot"}
-    assert lot.name == "FK2611-07" and lot.notes == ()
+    assert lot.name == "FK2611-07" and lot.notes == (
+        DRY,
+    )  # the demo folders stand for simulator runs
 
 
 def test_limits_come_from_the_stored_recipe(lot_folder, tmp_path):

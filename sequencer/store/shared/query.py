@@ -40,6 +40,8 @@ def load_shared(database: SharedDatabase, keep: Filter | None = None) -> pd.Data
 def _conditions(keep: Filter) -> tuple[str, list[object]]:
     clauses: list[str] = []
     params: list[object] = []
+    if not keep.dry_runs:  # a dry run's yield is not a production yield
+        clauses.append("run.simulator IS NULL")  # a dry run names its simulator's settings
     for column, pattern in (("lot", keep.lot), ("product", keep.product)):
         if pattern is not None:
             clauses.append(f"run.{column} ILIKE %s")

@@ -67,7 +67,17 @@ def start_station(tmp_path: Path, number: int, url: str) -> tuple[subprocess.Pop
     env = dict(os.environ, PYTHONPATH=str(ROOT), COLUMNS="120")
     log = open(folder / "screen.txt", "w")  # noqa: SIM115 - closed when the process is reaped
     process = subprocess.Popen(
-        [sys.executable, "-m", "sequencer.cli", "run", str(recipe), "--sim", "--out", str(out)],
+        [
+            sys.executable,
+            "-m",
+            "sequencer.cli",
+            "run",
+            str(recipe),
+            "--sim",
+            "--send-dry-run",
+            "--out",
+            str(out),
+        ],
         cwd=ROOT,
         env=env,
         stdin=subprocess.DEVNULL,
