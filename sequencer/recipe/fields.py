@@ -6,10 +6,12 @@ Shared by the recipe, station and judge-section loaders so that every message ha
 
 from __future__ import annotations
 
+import difflib
 import math
 from dataclasses import dataclass, field
 from typing import Any
 
+from sequencer.model.errors import RecipeError
 from sequencer.recipe.units import UnitProblem, parse_quantity
 from sequencer.recipe.yamlsource import Source
 
@@ -42,6 +44,9 @@ class Fields:
             return self.data[key]
         if default is not ...:
             return default
+        for written in self.data:  # 'complance: 5 mA' is a misspelling, not a missing key
+            if written not in self.used and close_to(written, [key]):
+                raise self.unknown(written, [key])
         raise self.source.error(self.path or key, f"needs '{key}'" if self.path else "is missing")
 
     def quantity(self, key: str, kind: str, default: Any = ...) -> float:
@@ -87,10 +92,19 @@ class Fields:
     def finish(self) -> None:
         for key in self.data:
             if key not in self.used:
-                known = ", ".join(sorted(self.used))
-                raise self.source.error(
-                    self.where(key), f"is not a known setting here (known: {known})"
-                )
+                raise self.unknown(key, sorted(self.used))
+
+    def unknown(self, key: str, known: list[str]) -> RecipeError:
+        """An unknown key, at its own line, with the nearest known one."""
+        near = close_to(key, known)
+        hint = f"did you mean '{near[0]}'?" if near else f"known here: {', '.join(known)}"
+        return self.source.error(self.where(key), f"is not a known setting; {hint}")
+
+
+def close_to(word: str, known: list[str]) -> list[str]:
+    """Known keys a misspelt or mis-cased key was probably meant to be."""
+    by_case = [k for k in known if k.lower() == str(word).lower()]
+    return by_case or difflib.get_close_matches(str(word), known, n=1, cutoff=0.75)
 
 
 def show(value: Any, longest: int = 60) -> str:

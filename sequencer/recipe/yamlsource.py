@@ -135,6 +135,12 @@ def _convert(node: yaml.Node, path: str, source: Source, depth: int = 0) -> Any:
         items = enumerate(node.value)
         return [_convert(item, f"{path}[{i}]", source, depth + 1) for i, item in items]
     value = _construct(node, path, source)
+    if isinstance(value, bool) and str(node.value).lower() not in ("true", "false"):
+        problem = (
+            f"reads as {str(value).lower()} in YAML (written {node.value!r}); write true or "
+            "false, or put it in quotes if it is text"
+        )
+        raise RecipeError(source.file, node.start_mark.line + 1, path, problem)
     if isinstance(value, int | float) and not isinstance(value, bool):
         _check_plain_number(node, value, path, source)
     return value

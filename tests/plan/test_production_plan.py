@@ -77,7 +77,7 @@ def _write(tmp_path, figures: str) -> object:
         ("compliance: 5 mA, typical_limiting_voltage: 6 V", "typical_limiting_voltage must lie"),
         ("compliance: 5 mA, test_window_readings: 2", "test_window_readings must be 3 to 50"),
         ("compliance: 5 mA, knee_resolution: 0 V", "knee_resolution must be positive"),
-        ("compliance: 5 mA, window: 3", "window is not a known setting here"),
+        ("compliance: 5 mA, window: 3", "window is not a known setting"),
         ("settle: 1 ms", "needs 'compliance'"),
     ],
 )  # fmt: skip

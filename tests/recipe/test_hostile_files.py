@@ -119,3 +119,27 @@ def test_a_station_naming_another_file_does_not_echo_it(tmp_path):
     assert run.returncode == 2 and "Traceback" not in said
     assert len(said) < 300  # one line, the file quoted only in part
     assert "root:x:0" in said  # as written: no ':x:' read as an emoji code
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "said"),
+    [
+        ("      compliance: 5 mA\n      settle: 1 ms", "      complance: 5 mA\n      settle: 1 ms",
+         "15: steps[0].sweep.complance is not a known setting; did you mean 'compliance'?"),
+        ("nplc: 0.1", "nplcc: 0.1", "7: nplcc is not a known setting; did you mean 'nplc'?"),
+        ("nplc: 0.1", "NPLC: 0.1", "7: NPLC is not a known setting; did you mean 'nplc'?"),
+    ],
+)  # fmt: skip
+def test_an_unknown_key_is_named_at_its_own_line_with_the_nearest_known(tmp_path, old, new, said):
+    assert old in DEMO
+    with pytest.raises(RecipeError) as err:
+        load_recipe(_recipe(tmp_path, DEMO.replace(old, new, 1)))
+    assert str(err.value) == f"{tmp_path / 'r.yaml'}:{said}"
+
+
+@pytest.mark.parametrize("written", ["yes", "on", "No", "OFF"])
+def test_a_boolean_is_echoed_as_written(written):
+    with pytest.raises(RecipeError) as err:
+        parse_yaml(f"a: 1\nlists: {written}\n", "b.yaml")
+    assert err.value.line == 2 and f"(written {written!r})" in str(err.value)
+    assert parse_yaml("lists: true\nx: False\n", "b.yaml").data == {"lists": True, "x": False}
