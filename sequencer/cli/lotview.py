@@ -20,6 +20,8 @@ from sequencer.report.lotsummary import (
     bin_cells,
     bins,
     capability_cells,
+    lot_yield,
+    percent,
     reported_figures,
     standing,
     standing_cells,
@@ -72,7 +74,15 @@ def capability_table(lot: Lot) -> Table:
 
 
 def print_after_run(console: Console, lot: Lot) -> None:
-    """What follows the run's own summary: bins and the worst figures."""
+    """What follows the run's own summary: the lot's one yield (each part once, its standing
+    result, in a pass-class bin: the same as `report` and `results`), bins, worst figures."""
+    row = lot_yield(lot)
+    console.print(
+        f"lot yield: {row.shipped} of {row.devices} parts in pass-class bins "
+        f"({percent(row.fraction)})",
+        soft_wrap=True,
+        highlight=False,
+    )
     console.print(bins_table(lot))
     console.print(worst_table(lot))
 

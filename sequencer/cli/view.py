@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 
@@ -86,21 +85,21 @@ def plan_summary(recipe: Recipe, plan: Plan, estimate: Estimate | None = None) -
 
 
 def summary_table(summary: RunSummary) -> Table:
-    table = Table(title="Lot summary", title_justify="left", show_header=False)
+    """This session's tests. The lot's yield is not here: it counts each part once, with the
+    result that stands (store.yields, report.lotsummary), and is printed from the store."""
+    table = Table(title="This session", title_justify="left", show_header=False)
     table.add_column(justify="right")
     table.add_column()
-    y = summary.yield_fraction
-    table.add_row("devices", f"{summary.done} of {summary.total}")
+    table.add_row("tests", f"{summary.done} of {summary.total}")
     table.add_row("pass", str(summary.passed))
     table.add_row("fail", str(summary.failed))
     if summary.guarded:
         table.add_row("guard band", str(summary.guarded))
     if summary.aborted:
         table.add_row("aborted", str(summary.aborted))
-    table.add_row("yield", "—" if math.isnan(y) else f"{100 * y:.1f} %")
     table.add_row("time", f"{summary.seconds:.1f} s")
     for reason, count in sorted(summary.reasons.items(), key=lambda kv: -kv[1]):
-        table.add_row(f"{count} x", reason)
+        table.add_row(f"{count} failed on", reason)
     return table
 
 
