@@ -38,15 +38,21 @@ def figure_text(fig: Figure, unit: str) -> str:
 
 
 def device_line(done: DeviceDone) -> Text:
+    """One device in 80 columns (a demo line is 77 wide); its reasons go on a second line by
+    design, indented, so neither is cut or wrapped mid-word on a narrow terminal. Names longer
+    than the column are written whole, never shortened."""
     j: Judgement = done.judgement
-    line = Text(f"{done.curve.channel:>4}  {j.device:<16} ")
-    line.append(f"{j.verdict:<10}", style=VERDICT_STYLE[j.verdict])
+    line = Text(f"{done.curve.channel:>3} {j.device:<13} ")
+    line.append(f"{j.verdict:<4}", style=VERDICT_STYLE[j.verdict])
     for name, short, unit in SHORT:
-        line.append(f" {short} {figure_text(j.figures[name], unit):>10}")
-    if j.hard_bin is not None:
-        line.append(f"  bin {j.hard_bin}")
-    if j.notes:
-        line.append("   " + "; ".join(j.notes), style="dim")
+        line.append(f" {short} {figure_text(j.figures[name], unit):>8}")
+    second = "; ".join(j.notes)
+    if j.hard_bin is not None and len(j.verdict) <= 4:
+        line.append(f" bin {j.hard_bin}")
+    elif j.hard_bin is not None:  # 'guard-band' takes the bin's room: the bin leads line two
+        second = f"bin {j.hard_bin}" + (f"; {second}" if second else "")
+    if second:
+        line.append("\n    " + second, style="dim")
     return line
 
 
@@ -121,7 +127,8 @@ def showing_devices(console: Console, total: int) -> Iterator[Callable[[DeviceDo
         task = progress.add_task("devices", total=total)
 
         def shown(done: DeviceDone) -> None:
-            progress.console.print(device_line(done), soft_wrap=True)
+            # Wrapped at words by rich (never cut): a long reason folds under its device.
+            progress.console.print(device_line(done))
             progress.advance(task)
 
         yield shown
