@@ -59,6 +59,13 @@ class StoreError(CcbenchError, OSError):
     exit_code = 5
 
 
+class StoreReadError(StoreError):
+    """Stored results that cannot be read (an empty, damaged or foreign file): bad input to the
+    command that reads them, not a failed write, so the exit code is 2, not 5."""
+
+    exit_code = 2
+
+
 class CurveFileError(CcbenchError, ValueError):
     """A curve file (CSV) is unreadable or malformed: names the file and line."""
 

@@ -21,7 +21,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from sequencer.model.errors import CcbenchError, RecipeError, StoreError
+from sequencer.model.errors import CcbenchError, RecipeError, StoreError, StoreReadError
 from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, JudgeSettings
 from sequencer.recipe.judgeconfig import parse_judge
 from sequencer.recipe.yamlsource import parse_yaml
@@ -172,7 +172,7 @@ def _read_folder(folder: Path) -> list[Entry]:
         devices = pd.read_sql_query("SELECT * FROM device ORDER BY rowid", db)
         points = pd.read_sql_query("SELECT * FROM point ORDER BY rowid", db)
     except (sqlite3.Error, pd.errors.DatabaseError) as exc:
-        raise StoreError(f"{path}: cannot be read ({exc})") from None
+        raise StoreReadError(f"{path}: cannot be read ({exc})") from None
     finally:
         db.close()
     if runs.empty:

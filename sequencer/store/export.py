@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from sequencer.model.errors import RecipeError, StoreError
+from sequencer.model.errors import RecipeError, StoreError, StoreReadError
 
 DATABASE_FILE = "results.sqlite"
 RUN_COLUMNS = {  # column of the run table -> its name in the merged table
@@ -66,14 +66,17 @@ def load_run(folder: Path) -> pd.DataFrame:
             return _query(db, folder)
         finally:
             db.close()
-    except sqlite3.Error as exc:
-        raise StoreError(f"{path}: cannot be read ({exc})") from None
+    except (sqlite3.Error, pd.errors.DatabaseError) as exc:
+        raise StoreReadError(f"{path}: cannot be read ({exc})") from None
 
 
 def _query(db: sqlite3.Connection, folder: Path) -> pd.DataFrame:
     run_cols = {row[1] for row in db.execute("PRAGMA table_info(run)")}
     picked = [f"run.{c} AS {name}" for c, name in RUN_COLUMNS.items() if c in run_cols]
     device_cols = [row[1] for row in db.execute("PRAGMA table_info(device)")]
+    if not run_cols or not device_cols:  # an empty file, or a killed run's WAL lost
+        missing = "run" if not run_cols else "device"
+        raise sqlite3.DatabaseError(f"no {missing} table: the file is empty or damaged")
     order = "device.pass, device.seq" if "seq" in device_cols else "device.rowid"
     wanted = [f'device."{c}"' for c in device_cols if c != "run_id"]
     frame = pd.read_sql_query(

@@ -24,7 +24,7 @@ from sequencer.judge.engine import MISSING, Judgement, with_bin
 from sequencer.judge.lotjudge import judge_lot
 from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy
 from sequencer.model.curve import Curve
-from sequencer.model.errors import RecipeError, StoreError
+from sequencer.model.errors import RecipeError, StoreError, StoreReadError
 from sequencer.model.judgesettings import FIGURES, JudgeSettings
 from sequencer.recipe.judgeconfig import parse_accuracy
 from sequencer.recipe.load import Recipe
@@ -103,7 +103,7 @@ def load_run(folder: Path) -> StoredRun:
             (run_id,),
         ).fetchall()
     except sqlite3.Error as exc:
-        raise StoreError(f"{folder}/results.sqlite: cannot be read ({exc})") from None
+        raise StoreReadError(f"{folder}/results.sqlite: cannot be read ({exc})") from None
     finally:
         db.close()
     curves = _curves([row[1:] for row in devices], points, [row[0] for row in devices])

@@ -29,7 +29,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import IO, Any
 
-from sequencer.model.errors import StoreError
+from sequencer.model.errors import StoreError, StoreReadError
 
 LOCK_FILE = "run.lock"
 MANIFEST_FILE = "manifest.json"
@@ -284,7 +284,7 @@ def read_manifest(folder: Path) -> dict[str, Any]:
             "with `ccbench results` but not resumed",
         ) from None
     except (OSError, ValueError) as exc:
-        raise StoreError(f"{path}: cannot be read ({exc})") from None
+        raise StoreReadError(f"{path}: cannot be read ({exc})") from None
     if not isinstance(data, dict) or data.get("manifest_format") != MANIFEST_FORMAT:
         raise StoreError(f"{path}: is not a ccbench run manifest (format {MANIFEST_FORMAT})")
     data.pop("manifest_format")
