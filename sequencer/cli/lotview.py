@@ -30,7 +30,14 @@ from sequencer.report.lotsummary import (
     yields,
 )
 
-KEEP_WHOLE = ("worst device", "Cpk (95 %)", "value", "mean", "ppm", "counted")  # never folded
+KEEP_WHOLE = (
+    "worst device",
+    "Cpk (95 %)",
+    "value",
+    "mean",
+    "model ppm",
+    "seen ppm",
+)  # never folded
 
 
 def _table(title: str, head: Sequence[str], rows: list[list[str]], styles: list[str]) -> Table:
@@ -67,7 +74,7 @@ def capability_table(lot: Lot) -> Table:
     rows, styles = _rows(items, capability_cells, lambda r: r.capability.cpk < 1.33)
     table = _table("Capability (Cpk 95 % interval: Bissell)", CAPABILITY_HEAD, rows, styles)
     table.caption = (
-        "ppm: fallout of the normal model; counted: outside the limits in this lot, per "
+        "model ppm: fallout of the normal model; seen ppm: outside the limits in this lot, per "
         "million; red: Cpk below 1.33 (a common acceptance rule)"
     )
     return table

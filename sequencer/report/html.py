@@ -59,7 +59,7 @@ Cpk = min(USL &minus; mean, mean &minus; LSL)/3s, one side only where the recipe
 s is the sample standard deviation (NIST/SEMATECH e-Handbook of Statistical Methods, 6.1.6).
 The 95 % interval of Cpk is Bissell's normal approximation,
 Cpk &plusmn; z&middot;sqrt(1/(9n) + Cpk&sup2;/(2(n &minus; 1))). The fallout in ppm is what a normal
-distribution with the lot's mean and s puts outside the limits; "counted" is what the lot put
+distribution with the lot's mean and s puts outside the limits; "seen ppm" is what the lot put
 there. Both assume a stable, normal process: a handful of parts gives a wide interval.</p>
 <p>Yield counts the devices in pass-class hard bins, each device once with its last result.
 Under the guarded decision rule a result within U = k&middot;u of a limit is in the guard band,

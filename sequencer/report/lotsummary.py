@@ -156,15 +156,16 @@ def label(figure: str) -> str:
     return FIGURE_INFO[figure][2]
 
 
-# Short names for narrow tables (POV: the peak operating voltage).
+# Short names for narrow tables, each explained in the README's table of symbols ("@Vpk": at the
+# peak operating voltage; not "Ppk", which is a capability index).
 SYMBOLS = {
     "regulated_current": "IP",
     "limiting_voltage": "VL",
     "dynamic_impedance": "ZT",
     "knee_impedance": "ZK",
     "reverse_current": "IR",
-    "peak_current": "I(POV)",
-    "peak_dissipation": "P(POV)",
+    "peak_current": "I@Vpk",
+    "peak_dissipation": "P@Vpk",
 }
 
 
@@ -207,7 +208,7 @@ YIELD_HEAD = ("run", "devices", "pass", "guard band", "fail", "aborted", "yield"
 VERDICT_ORDER = ("pass", "guard-band", "fail", "aborted")
 BIN_HEAD = ("soft bin", "hard bin", "class", "soft bin number", "devices", "share")
 STANDING_HEAD = ("figure", "limits", "worst device", "value", "margin", "out", "guard", "Cpk")
-CAPABILITY_HEAD = ("figure", "n", "mean", "s", "Cp", "Cpk (95 %)", "ppm", "counted")
+CAPABILITY_HEAD = ("figure", "n", "mean", "s", "Cp", "Cpk (95 %)", "model ppm", "seen ppm")
 
 
 def yield_cells(r: YieldRow) -> list[str]:
