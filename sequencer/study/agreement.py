@@ -40,6 +40,8 @@ class Agreement:
     lower_limit: float  # limits of agreement
     upper_limit: float
     tolerance: float | None
+    agrees: bool | None  # None: no tolerance given
+    differences: tuple[str, ...]  # what kind of disagreement the intervals show
     verdict: str
 
 
@@ -100,6 +102,8 @@ def compare(
         lower_limit=float(low),
         upper_limit=float(high),
         tolerance=tolerance,
+        agrees=None if tolerance is None else bool(-tolerance <= low and high <= tolerance),
+        differences=differences(slope, bias),
         verdict=verdict(low, high, slope, bias, tolerance),
     )
 
@@ -107,17 +111,22 @@ def compare(
 def verdict(low: float, high: float, slope: Interval, bias: Interval, tolerance) -> str:
     """The stations agree when 95 % of differences fall within +/- tolerance; the slope and the
     bias say what kind of disagreement it is."""
-    kinds = []
-    if not slope.contains(1.0):
-        kinds.append("a proportional difference (slope not 1)")
-    if not bias.contains(0.0):
-        kinds.append("a constant offset (bias not 0)")
+    kinds = differences(slope, bias)
     found = f"; found {' and '.join(kinds)}" if kinds else ""
     if tolerance is None:
         return f"no tolerance given{found}"
     if -tolerance <= low and high <= tolerance:
         return f"agree within +/-{tolerance:g}{found}"
     return f"do not agree within +/-{tolerance:g}{found}"
+
+
+def differences(slope: Interval, bias: Interval) -> tuple[str, ...]:
+    kinds = []
+    if not slope.contains(1.0):
+        kinds.append("a proportional difference (slope not 1)")
+    if not bias.contains(0.0):
+        kinds.append("a constant offset (bias not 0)")
+    return tuple(kinds)
 
 
 def _check(x: np.ndarray, y: np.ndarray, tolerance: float | None) -> None:
