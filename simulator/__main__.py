@@ -43,7 +43,9 @@ def build_parser() -> argparse.ArgumentParser:
     )
     serve.add_argument("--thermal-time", type=float, default=d.thermal_time, help="tau, s")
     serve.add_argument("--reading-gain", type=float, default=0.0, help="relative current error")
-    serve.add_argument("--reading-offset-a", type=float, default=0.0, help="current offset, A")
+    serve.add_argument(
+        "--range-offset", type=float, default=0.0, help="current offset, fraction of range"
+    )
     serve.add_argument(
         "--contact-spread", type=float, default=0.0, help="relative spread drawn per contact"
     )
@@ -81,7 +83,7 @@ def options_from(args: argparse.Namespace) -> SimOptions:
         thermal_resistance=args.thermal_resistance,
         thermal_time=args.thermal_time,
         reading_gain=args.reading_gain,
-        reading_offset_a=args.reading_offset_a,
+        range_offset=args.range_offset,
         contact_spread=args.contact_spread,
         noise_seed=args.noise_seed,
     )

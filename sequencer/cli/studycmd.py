@@ -101,18 +101,22 @@ def gauge_table(studies: list[grr.GaugeStudy], unit: str) -> Table:
     table.add_column("")
     for s in studies:
         table.add_column(s.method, justify="right")
+    table.add_column(f"{studies[0].method} 95 % interval", justify="right")
+    bounds = {name: (low, high) for name, low, high in studies[0].intervals}
     rows = (
-        ("repeatability (EV)", lambda s: format_si(s.repeatability, unit)),
-        ("reproducibility (AV)", lambda s: format_si(s.reproducibility, unit)),
-        ("gauge R&R (GRR)", lambda s: format_si(s.grr, unit)),
-        ("part to part (PV)", lambda s: format_si(s.part_to_part, unit)),
-        ("total (TV)", lambda s: format_si(s.total, unit)),
-        ("%GRR of total", lambda s: f"{s.pct_grr_of_total:.1f}%"),
-        ("%GRR of tolerance", lambda s: _pct(s.pct_grr_of_tolerance)),
-        ("distinct categories", lambda s: _ndc(s.distinct_categories)),
+        ("repeatability (EV)", lambda s: format_si(s.repeatability, unit), "repeatability"),
+        ("reproducibility (AV)", lambda s: format_si(s.reproducibility, unit), "reproducibility"),
+        ("gauge R&R (GRR)", lambda s: format_si(s.grr, unit), ""),
+        ("part to part (PV)", lambda s: format_si(s.part_to_part, unit), "part to part"),
+        ("total (TV)", lambda s: format_si(s.total, unit), ""),
+        ("%GRR of total", lambda s: f"{s.pct_grr_of_total:.1f}%", ""),
+        ("%GRR of tolerance", lambda s: _pct(s.pct_grr_of_tolerance), ""),
+        ("distinct categories", lambda s: _ndc(s.distinct_categories), ""),
     )
-    for label, shown in rows:
-        table.add_row(label, *(shown(s) for s in studies))
+    for label, shown, key in rows:
+        low, high = bounds.get(key, (None, None))
+        interval = "" if low is None else f"{format_si(low, unit)} to {format_si(high, unit)}"
+        table.add_row(label, *(shown(s) for s in studies), interval)
     return table
 
 

@@ -178,7 +178,7 @@ SIM_KEYS: dict[str, Callable[[Any], bool]] = {
     "clock": lambda v: v in ("real", "virtual"),
     "faults": lambda v: isinstance(v, list),
     "reading_gain": lambda v: isinstance(v, int | float) and -0.1 <= v <= 0.1,
-    "reading_offset_a": lambda v: isinstance(v, int | float) and abs(v) <= 1e-3,
+    "range_offset": lambda v: isinstance(v, int | float) and abs(v) <= 0.01,
     "contact_spread": lambda v: isinstance(v, int | float) and 0 <= v <= 0.1,
     "noise_seed": lambda v: isinstance(v, int) and 0 <= v <= 999_999,
 }

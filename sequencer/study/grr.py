@@ -60,6 +60,8 @@ class GaugeStudy:
     distinct_categories: int
     interaction_pooled: bool = False
     anova: tuple[AnovaRow, ...] = ()
+    # (component, low, high) standard deviations, 95 %; ANOVA method only
+    intervals: tuple[tuple[str, float, float], ...] = ()
 
     @property
     def verdict(self) -> str:
@@ -189,7 +191,49 @@ def anova_study(y: np.ndarray, *, tolerance: float | None = None) -> GaugeStudy:
         tolerance=tolerance,
         pooled=bool(v["pooled"]),
         anova=anova_table(y),
+        intervals=component_intervals(y, pooled=bool(v["pooled"])),
     )
+
+
+def component_intervals(
+    y: np.ndarray, *, pooled: bool, confidence: float = 0.95
+) -> tuple[tuple[str, float, float], ...]:
+    """Confidence intervals of the standard deviations: exact (chi-square) for repeatability;
+    Satterthwaite's approximate degrees of freedom for the components that are differences of
+    mean squares (Satterthwaite 1946; as in Burdick and Larsen, J. Qual. Technol. 1997; from
+    memory). Approximate: with 2 or 3 appraisers the reproducibility interval is wide."""
+    rows = {row.source: row for row in anova_table(y)}
+    p, o, r = y.shape
+    err, inter = rows["repeatability"], rows["part x appraiser"]
+    if pooled:
+        ms_e, df_e = (err.ss + inter.ss) / (err.df + inter.df), err.df + inter.df
+    else:
+        ms_e, df_e = err.ms, err.df
+    # Each component as sum of c * MS terms: (c, MS, df).
+    ms_i, df_i = (ms_e, df_e) if pooled else (inter.ms, inter.df)
+    terms = {
+        "repeatability": [(1.0, ms_e, df_e)],
+        "reproducibility": [(1 / (p * r), rows["appraiser"].ms, rows["appraiser"].df)]
+        + ([] if pooled else [(1 / r - 1 / (p * r), ms_i, df_i), (-1 / r, ms_e, df_e)])
+        + ([(-1 / (p * r), ms_i, df_i)] if pooled else []),
+        "part to part": [
+            (1 / (o * r), rows["part"].ms, rows["part"].df),
+            (-1 / (o * r), ms_i, df_i),
+        ],
+    }
+    return tuple((name, *_satterthwaite(t, confidence)) for name, t in terms.items())
+
+
+def _satterthwaite(terms: list[tuple[float, float, int]], confidence: float) -> tuple[float, float]:
+    var = sum(c * ms for c, ms, _ in terms)
+    if var <= 0:
+        return 0.0, float("nan")  # the estimate is zero: no upper bound from this method
+    df = var**2 / sum((c * ms) ** 2 / d for c, ms, d in terms)
+    tail = (1 - confidence) / 2
+    low = df * var / stats.chi2.ppf(1 - tail, df)
+    bottom = stats.chi2.ppf(tail, df)  # 0 for very few degrees of freedom: no upper bound
+    high = df * var / bottom if bottom > 0 else float("inf")
+    return float(np.sqrt(low)), float(np.sqrt(high))
 
 
 def _check_shape(y: np.ndarray) -> None:
@@ -200,7 +244,9 @@ def _check_shape(y: np.ndarray) -> None:
     _check_size(*y.shape)
 
 
-def _study(method, shape, *, ev, av, inter, pv, tolerance, pooled=False, anova=()) -> GaugeStudy:
+def _study(
+    method, shape, *, ev, av, inter, pv, tolerance, pooled=False, anova=(), intervals=()
+) -> GaugeStudy:
     grr = float(np.hypot(ev, av))
     tv = float(np.hypot(grr, pv))
     if tolerance is not None and not tolerance > 0:
@@ -223,6 +269,7 @@ def _study(method, shape, *, ev, av, inter, pv, tolerance, pooled=False, anova=(
         distinct_categories=distinct_categories(pv, grr),
         interaction_pooled=pooled,
         anova=tuple(anova),
+        intervals=tuple(intervals),
     )
 
 

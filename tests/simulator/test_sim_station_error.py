@@ -23,11 +23,11 @@ def current(s: Session, channel: int = 1) -> float:
 
 
 def test_gain_and_offset_move_every_current_reading():
-    plain, skewed = session(), session(reading_gain=0.01, reading_offset_a=5e-6)
+    plain, skewed = session(), session(reading_gain=0.01, range_offset=5e-4)
     a, b = current(plain), current(skewed)
-    # Same lot, same noise stream (no spread set): only the set error differs, to within the
-    # reading resolution and the noise scaled by the gain.
-    assert b == pytest.approx(a * 1.01 + 5e-6, abs=2e-8)  # 6 digits in the reply
+    # Same lot, same noise stream (no spread set): only the set error differs (the offset is
+    # a fraction of the 10 mA range).
+    assert b == pytest.approx(a * 1.01 + 5e-4 * 10e-3, abs=2e-8)  # 6 digits in the reply
 
 
 def test_contact_spread_is_drawn_anew_at_every_contact():
@@ -52,7 +52,7 @@ def test_noise_seed_changes_the_noise_not_the_lot():
     ("option", "value"),
     [
         ("reading_gain", 0.5),
-        ("reading_offset_a", 0.01),
+        ("range_offset", 0.02),
         ("contact_spread", -0.1),
         ("noise_seed", -1),
     ],

@@ -189,3 +189,30 @@ def test_range_method_refuses_sizes_without_constants():
 def test_a_reading_that_is_not_a_number_is_refused():
     with pytest.raises(StudyError, match="not a number"):
         grr.readings_table([("p1", "s1", float("nan"))])
+
+
+def test_component_intervals_cover_the_set_values_about_95_percent_of_the_time():
+    # Repeatability's interval is exact; the others are Satterthwaite's approximation.
+    truth = {"repeatability": 0.2, "reproducibility": 0.3, "part to part": 1.0}
+    covered = dict.fromkeys(truth, 0)
+    runs = 200
+    for seed in range(runs):
+        y = simulated(sd_part=1.0, sd_op=0.3, sd_int=0.0, sd_rep=0.2, seed=1000 + seed)
+        for name, low, high in grr.anova_study(y).intervals:
+            covered[name] += low <= truth[name] <= high
+    for name, n in covered.items():
+        assert 0.89 <= n / runs <= 0.99, (name, n)
+
+
+def test_repeatability_interval_is_the_chi_square_interval():
+    from scipy import stats
+
+    y = simulated(seed=21, sd_int=0.3)  # a real interaction: not pooled
+    study = grr.anova_study(y)
+    assert not study.interaction_pooled
+    ss = np.sum((y - y.mean(axis=2, keepdims=True)) ** 2)
+    df = 10 * 3 * 2
+    low, high = np.sqrt(ss / stats.chi2.ppf([0.975, 0.025], df))  # textbook chi-square interval
+    name, got_low, got_high = study.intervals[0]
+    assert name == "repeatability"
+    assert (got_low, got_high) == pytest.approx((low, high), rel=1e-9)
