@@ -13,6 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import stats
 
 from sequencer.model.errors import StudyError
@@ -59,7 +60,9 @@ def deming(x: np.ndarray, y: np.ndarray, error_ratio: float = 1.0) -> tuple[floa
     return float(slope), float(my - slope * mx)
 
 
-def jackknife(x, y, error_ratio: float, confidence: float) -> tuple[Interval, Interval]:
+def jackknife(
+    x: np.ndarray, y: np.ndarray, error_ratio: float, confidence: float
+) -> tuple[Interval, Interval]:
     n = len(x)
     full = np.array(deming(x, y, error_ratio))
     keep = ~np.eye(n, dtype=bool)
@@ -77,8 +80,8 @@ def jackknife(x, y, error_ratio: float, confidence: float) -> tuple[Interval, In
 
 
 def compare(
-    reference,
-    candidate,
+    reference: ArrayLike,
+    candidate: ArrayLike,
     *,
     tolerance: float | None = None,
     error_ratio: float = 1.0,
@@ -108,7 +111,9 @@ def compare(
     )
 
 
-def verdict(low: float, high: float, slope: Interval, bias: Interval, tolerance) -> str:
+def verdict(
+    low: float, high: float, slope: Interval, bias: Interval, tolerance: float | None
+) -> str:
     """The stations agree when 95 % of differences fall within +/- tolerance; the slope and the
     bias say what kind of disagreement it is."""
     kinds = differences(slope, bias)

@@ -11,6 +11,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from sequencer.model.errors import StudyError
 from sequencer.study.rules import RULE_SETS, Alarm, check_rules
@@ -47,7 +48,7 @@ class Chart:
 
 
 def xbar_r(
-    subgroups, baseline: slice | None = None, rules: str = "western-electric"
+    subgroups: ArrayLike, baseline: slice | None = None, rules: str = "western-electric"
 ) -> tuple[Chart, Chart]:
     """Subgroups as rows of equal size; limits from the rows in `baseline` (all rows if None)."""
     data = _rows(subgroups)
@@ -69,7 +70,7 @@ def xbar_r(
 
 
 def individuals(
-    values, baseline: slice | None = None, rules: str = "western-electric"
+    values: ArrayLike, baseline: slice | None = None, rules: str = "western-electric"
 ) -> tuple[Chart, Chart]:
     """Individual readings; sigma from the mean moving range of the baseline over d2(2)."""
     x = np.asarray(values, dtype=float)
@@ -95,7 +96,7 @@ def individuals(
     )
 
 
-def _rows(subgroups) -> np.ndarray:
+def _rows(subgroups: ArrayLike) -> np.ndarray:
     try:
         data = np.asarray(subgroups, dtype=float)
     except ValueError:

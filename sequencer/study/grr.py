@@ -77,7 +77,9 @@ def acceptance(pct_grr: float) -> str:
     return "not acceptable"
 
 
-def readings_table(records: Iterable[tuple[str, str, float]]) -> tuple[np.ndarray, list, list]:
+def readings_table(
+    records: Iterable[tuple[str, str, float]],
+) -> tuple[np.ndarray, list[str], list[str]]:
     """(part, appraiser, value) records -> array [part, appraiser, repeat], part and appraiser
     names in first-seen order. Refuses unbalanced or too small studies with what to measure."""
     cells: dict[tuple[str, str], list[float]] = {}

@@ -12,6 +12,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -105,7 +106,7 @@ RULE_SETS = {"western-electric": WESTERN_ELECTRIC, "nelson": NELSON, "beyond-lim
 
 
 def check_rules(
-    values, centre: float, sigma: float, rule_set: str, *, lower: float, upper: float
+    values: ArrayLike, centre: float, sigma: float, rule_set: str, *, lower: float, upper: float
 ) -> tuple[Alarm, ...]:
     """Every point outside [lower, upper], then every break of the chosen rule set's pattern
     rules (its one-point rule is the limits check itself, so it is not repeated)."""
