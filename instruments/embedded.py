@@ -26,6 +26,7 @@ from instruments.errors import InstrumentError
 OPTION_NAMES = frozenset(
     {"seed", "devices", "preset", "spread", "defect_rate", "clock", "line_frequency", "faults"}
     | {"temperature", "thermal_resistance", "thermal_time"}
+    | {"reading_gain", "range_offset", "contact_spread", "noise_seed"}
 )
 START_TIMEOUT_S = 20.0
 _RESOURCE_LINE = re.compile(r"TCPIP0::127\.0\.0\.1::\d+::SOCKET")

@@ -42,6 +42,16 @@ def build_parser() -> argparse.ArgumentParser:
         help="junction to ambient, K/W (self-heating; 0 = off)",
     )
     serve.add_argument("--thermal-time", type=float, default=d.thermal_time, help="tau, s")
+    serve.add_argument("--reading-gain", type=float, default=0.0, help="relative current error")
+    serve.add_argument(
+        "--range-offset", type=float, default=0.0, help="current offset, fraction of range"
+    )
+    serve.add_argument(
+        "--contact-spread", type=float, default=0.0, help="relative spread drawn per contact"
+    )
+    serve.add_argument(
+        "--noise-seed", type=int, default=0, help="own noise on the same lot (0: from --seed)"
+    )
     serve.add_argument("--exit-with-stdin", action="store_true", help="stop when stdin closes")
     serve.add_argument(
         "--serial", action="store_true", help="also serve on a pseudo-terminal (ASRL resource)"
@@ -72,6 +82,10 @@ def options_from(args: argparse.Namespace) -> SimOptions:
         temperature=args.temperature,
         thermal_resistance=args.thermal_resistance,
         thermal_time=args.thermal_time,
+        reading_gain=args.reading_gain,
+        range_offset=args.range_offset,
+        contact_spread=args.contact_spread,
+        noise_seed=args.noise_seed,
     )
 
 

@@ -194,7 +194,10 @@ class Instrument:
         count = self._closures.get(channel, 0)
         self._closures[channel] = count + 1
         seed = [CHANNEL_NOISE_STREAM, self.lot.seed, channel, count]
+        if self.smu.noise_seed:
+            seed.append(self.smu.noise_seed)
         self.smu.rng = np.random.default_rng(seed)
+        self.smu.new_contact()
 
     def open_all(self) -> None:
         self.tray.open_all()

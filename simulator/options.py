@@ -39,6 +39,16 @@ class SimOptions:
     temperature: float = 27.0  # ambient, Celsius (27 C is the SPICE nominal: no shift)
     thermal_resistance: float = 0.0  # junction to ambient, K/W; 0 turns self-heating off
     thermal_time: float = 1.0  # thermal time constant, s
+    # How this station's readings differ from the truth, for qualification studies whose answer
+    # must be checked against what was set: a gain and an offset (a fraction of the current
+    # range, as instrument offsets are specified) on every current reading (a
+    # station-to-station difference) and a spread drawn anew each time a part is contacted (the
+    # station's repeatability). noise_seed 0 keeps the noise streams of `seed` alone; another
+    # value gives each run its own noise on the same lot (a repeat of the measurement).
+    reading_gain: float = 0.0  # relative, e.g. 0.001 reads 0.1 % high
+    range_offset: float = 0.0  # of the current range, e.g. 0.0004 reads 4 uA high on 10 mA
+    contact_spread: float = 0.0  # relative standard deviation per contact
+    noise_seed: int = 0
 
     def __post_init__(self) -> None:
         checks = {
@@ -53,6 +63,10 @@ class SimOptions:
             "temperature": (-55 <= self.temperature <= 150, "must be -55..150 C"),
             "thermal_resistance": (0 <= self.thermal_resistance <= 1e4, "must be 0..10000 K/W"),
             "thermal_time": (1e-3 <= self.thermal_time <= 1e4, "must be 0.001..10000 s"),
+            "reading_gain": (-0.1 <= self.reading_gain <= 0.1, "must be -0.1..0.1"),
+            "range_offset": (abs(self.range_offset) <= 0.01, "must be -0.01..0.01"),
+            "contact_spread": (0 <= self.contact_spread <= 0.1, "must be 0..0.1"),
+            "noise_seed": (0 <= self.noise_seed <= 999_999, "must be 0..999999"),
         }
         for name, (ok, problem) in checks.items():
             if not ok:
@@ -68,6 +82,7 @@ def build_instrument(options: SimOptions | None = None) -> Instrument:
     lot = make_lot(o.seed, o.devices, o.preset, o.spread, o.defect_rate)
     rng = np.random.default_rng([NOISE_STREAM, o.seed])
     smu = Smu(make_clock(o.clock), rng, float(o.line_frequency))
+    smu.station_error(o.reading_gain, o.range_offset, o.contact_spread, o.noise_seed)
     thermal = Thermal(
         celsius_to_kelvin(o.temperature),
         o.thermal_resistance,

@@ -64,7 +64,24 @@ class Smu:
         self.rng = rng
         self.line_frequency_hz = line_frequency_hz
         self.applied_levels: list[float] = []  # every level the output carried, in order
+        self.station_error(0.0, 0.0, 0.0, 0)
         self.reset()
+
+    def station_error(self, gain: float, offset: float, spread: float, noise_seed: int) -> None:
+        """How this station reads currents (kept through *RST: it is the station, not a
+        setting): I_read = I (1 + gain + contact) + offset x range, contact drawn per contact
+        (an offset is a fraction of the range, as instrument offsets are specified)."""
+        self.gain, self.offset, self.contact_spread = gain, offset, spread
+        self.noise_seed = noise_seed
+        self.contact = 0.0
+
+    def new_contact(self) -> None:
+        # Drawn only when a spread is set, so that without one the noise stream is unchanged.
+        if self.contact_spread > 0:
+            self.contact = float(self.rng.normal(0.0, self.contact_spread))
+
+    def _as_read(self, amps, range_a):
+        return amps * (1.0 + self.gain + self.contact) + self.offset * range_a
 
     def reset(self) -> None:
         """*RST state: output off, 0 V, 1 mA limit, 1 NPLC, no delay, auto range."""
@@ -118,7 +135,7 @@ class Smu:
         scale = 1.0 / math.sqrt(self.nplc)
         v_noise, i_noise = (self.rng.normal(0.0, 1.0, 2) * scale).tolist()
         v = _round(volts + v_noise * VOLTAGE_NOISE_V, VOLTAGE_RESOLUTION_V)
-        i = amps + i_noise * CURRENT_NOISE_OF_RANGE * range_a
+        i = self._as_read(amps, range_a) + i_noise * CURRENT_NOISE_OF_RANGE * range_a
         i = _round(i, CURRENT_RESOLUTION_OF_RANGE * range_a)
         overflow = abs(i) > OVERRANGE * range_a
         if overflow:
@@ -159,7 +176,7 @@ class Smu:
         scale = 1.0 / math.sqrt(self.nplc)
         noise = self.rng.normal(0.0, 1.0, 2 * len(levels)) * scale  # (v, i) pairs, in turn
         v = _rounded(volts + noise[0::2] * VOLTAGE_NOISE_V, VOLTAGE_RESOLUTION_V)
-        i = amps + noise[1::2] * CURRENT_NOISE_OF_RANGE * ranges
+        i = self._as_read(amps, ranges) + noise[1::2] * CURRENT_NOISE_OF_RANGE * ranges
         i = _rounded(i, CURRENT_RESOLUTION_OF_RANGE * ranges)
         overflow = np.abs(i) > OVERRANGE * ranges
         i = np.where(overflow, np.copysign(OVERFLOW_READING, i), i)

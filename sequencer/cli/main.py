@@ -23,7 +23,7 @@ from sequencer.bench import multibench
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import judgecmd, partcmd, reportcmd, results, uploadcmd
+from sequencer.cli import judgecmd, partcmd, reportcmd, results, studycmd, uploadcmd
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
@@ -83,6 +83,7 @@ def build_parser() -> argparse.ArgumentParser:
     reportcmd.add_parser(sub)
 
     results.add_parser(sub)
+    studycmd.add_parser(sub)
     uploadcmd.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
@@ -363,6 +364,7 @@ COMMANDS = {
     **reportcmd.COMMANDS,
     "results": results.cmd_results,
     "upload": uploadcmd.cmd_upload,
+    "study": studycmd.cmd_study,
 }
 
 

@@ -15,6 +15,8 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
+from sequencer.cli import spcview
+from sequencer.cli.figurenames import SHOWN_FIGURES, figure_column
 from sequencer.model.errors import RecipeError
 from sequencer.model.units import format_si
 from sequencer.store.yields import GROUPS, yield_by
@@ -23,12 +25,6 @@ if TYPE_CHECKING:  # pandas is imported when the command runs, not on every ccbe
     import pandas as pd
 
 VERDICTS = ("pass", "fail", "guard-band", "aborted")
-SHOWN_FIGURES = (
-    ("regulated_current_A", "IP", "A"),
-    ("limiting_voltage_V", "VL", "V"),
-    ("dynamic_impedance_ohm", "ZT", "Ω"),
-    ("knee_impedance_ohm", "ZK", "Ω"),
-)
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
@@ -47,6 +43,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         "--database", metavar="URL", help="read the shared results database instead of folders"
     )
     res.add_argument("--by", choices=GROUPS, help="yield per station, lot or day")
+    spcview.add_options(res)
     out = res.add_mutually_exclusive_group()
     out.add_argument("--csv", type=Path, metavar="OUT", help="write the merged table as CSV")
     out.add_argument("--parquet", type=Path, metavar="OUT", help="write it as Parquet")
@@ -73,6 +70,9 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
         console.print(devices_table(table))
     if args.by:
         console.print(yield_table(table, args.by))
+    if args.spc:
+        column, unit = figure_column(table, args.spc, "--spc")
+        spcview.show(table, column, unit, args, console)
     target, kind = (args.parquet, "parquet") if args.parquet else (args.csv, "csv")
     if target is not None:
         write_table(table, target, kind)

@@ -75,3 +75,10 @@ class CurveFileError(CcbenchError, ValueError):
         where = f"{file}:{line}" if line else file
         super().__init__(f"{where}: {problem}")
         self.file, self.line, self.problem = file, line, problem
+
+
+class StudyError(CcbenchError, ValueError):
+    """A measurement study cannot be computed from the data given (too few parts or repeats,
+    unbalanced cells...): says what is missing and what to measure."""
+
+    exit_code = 2

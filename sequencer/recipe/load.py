@@ -177,6 +177,10 @@ SIM_KEYS: dict[str, Callable[[Any], bool]] = {
     "defect_rate": lambda v: isinstance(v, int | float) and 0 <= v <= 1,
     "clock": lambda v: v in ("real", "virtual"),
     "faults": lambda v: isinstance(v, list),
+    "reading_gain": lambda v: isinstance(v, int | float) and -0.1 <= v <= 0.1,
+    "range_offset": lambda v: isinstance(v, int | float) and abs(v) <= 0.01,
+    "contact_spread": lambda v: isinstance(v, int | float) and 0 <= v <= 0.1,
+    "noise_seed": lambda v: isinstance(v, int) and 0 <= v <= 999_999,
 }
 # The fault schedule's vocabulary (simulator/faults.py; a test keeps the two equal). Only the
 # shape is checked here, with file:line; the simulator checks the values when it starts.

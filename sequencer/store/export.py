@@ -24,6 +24,7 @@ RUN_COLUMNS = {  # column of the run table -> its name in the merged table
     "lot": "lot",
     "product": "product",
     "station": "station",
+    "operator": "operator",
     "started": "run_started",
     "status": "run_status",
     "identity": "identity",

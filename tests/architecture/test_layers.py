@@ -14,7 +14,19 @@ ROOT = Path(__file__).resolve().parents[2]
 PACKAGES = ("sequencer", "instruments", "simulator")
 
 # Bottom first. A module may import its own layer and the layers below it, never one above.
-LAYERS = ("model", "judge", "recipe", "plan", "safety", "run", "store", "report", "bench", "cli")
+LAYERS = (
+    "model",
+    "judge",
+    "study",
+    "recipe",
+    "plan",
+    "safety",
+    "run",
+    "store",
+    "report",
+    "bench",
+    "cli",
+)
 
 # Libraries that belong to one room each: (top-level import name, modules allowed to import it).
 ROOMS = {

@@ -1,0 +1,1 @@
+"""study: pure statistics for qualifying a station (gauge studies, agreement, control charts)"""
