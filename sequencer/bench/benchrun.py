@@ -176,6 +176,7 @@ def on_bench(
     so the safe start and the shutdown always run to their end. Call it inside `gate.held()`
     from the moment the connection is opened.
     """
+    # Start-up speed: run.shutdown imports `instruments`, which loads pyvisa.
     from sequencer.run.shutdown import make_safe, require_interlock, start_safe
 
     guard = bench.guard = make_guard(recipe, conn.smu)

@@ -9,7 +9,7 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
-from sequencer.judge.engine import Judgement, judge_curve, with_bin
+from sequencer.judge.engine import MISSING, Judgement, judge_curve, with_bin
 from sequencer.model.curve import Curve
 from sequencer.model.judgesettings import FIGURES
 from sequencer.plan.segments import Plan
@@ -124,8 +124,6 @@ def skips(exc: BaseException, recipe: Recipe) -> bool:
 
 
 def aborted(device: str, exc: BaseException) -> Judgement:
-    from sequencer.judge.engine import MISSING
-
     why = str(exc) or type(exc).__name__
     if isinstance(exc, KeyboardInterrupt):
         why = "interrupted by the operator"

@@ -108,7 +108,7 @@ def measure_on_benches(
 
 
 def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection:
-    from instruments import connect
+    from instruments import connect  # start-up speed: `instruments` loads pyvisa
 
     resource = "sim" if sim else spec.resource
     options = recipe.station.simulator_options if resource == "sim" else None
@@ -118,7 +118,7 @@ def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection
 
 
 def _start_all_safe(recipe, plan, conns, specs, announce: Callable[[str], None]) -> None:
-    from sequencer.run.shutdown import require_interlock, start_safe
+    from sequencer.run.shutdown import require_interlock, start_safe  # start-up speed (pyvisa)
 
     for spec, conn in zip(specs, conns, strict=True):
         start_safe(conn.smu)  # the first commands after *IDN?
@@ -139,7 +139,7 @@ def _channels(channels: tuple[int, ...]) -> str:
 
 def _switch_all_off(conns, guards, specs, benches: Benches) -> None:
     """Every connected instrument: ramp down from its own last level, off, read back."""
-    from sequencer.run.shutdown import make_safe
+    from sequencer.run.shutdown import make_safe  # start-up speed: loads pyvisa
 
     for k, conn in enumerate(conns):
         level = guards[k].level_v if k < len(guards) else 0.0

@@ -186,7 +186,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
 def _run_error(exc: BaseException, bench: Bench | multibench.Benches, out: Path) -> CcbenchError:
     """The one error a run ends with, its last line saying how the output was left. The first
     error wins: nothing that fails after it (a log file on a full disk) may take its place."""
-    from instruments import InstrumentError
+    from instruments import InstrumentError  # start-up speed: `instruments` loads pyvisa
 
     ending = bench.ending()
     if isinstance(exc, InstrumentError):
@@ -215,7 +215,7 @@ def _finish(console: Console, store, status: str, ended: str) -> None:
 
 def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
-    from instruments import connect
+    from instruments import connect  # start-up speed: `instruments` loads pyvisa
 
     with exchange_log(out / "scpi.log") as log, GATE.held():
         bench.connecting = True

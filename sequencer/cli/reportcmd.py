@@ -37,7 +37,7 @@ def cmd_report(args: argparse.Namespace, console: Console) -> int:
     lot = load_lot(args.run_dirs)
     rows = device_rows(lot, args.device)
     if args.text:
-        from sequencer.cli.lotview import print_lot
+        from sequencer.cli.lotview import print_lot  # start-up speed: each form loads its own
 
         print_lot(console, lot)
         for row in rows:
@@ -45,7 +45,7 @@ def cmd_report(args: argparse.Namespace, console: Console) -> int:
     elif not args.stdf or args.out or rows:
         _write_html(console, lot, rows, _out_folder(args))
     if args.stdf:
-        from sequencer.report.stdf import write_stdf
+        from sequencer.report.stdf import write_stdf  # start-up speed: each form loads its own
 
         parts = write_stdf(lot, args.stdf)
         console.print(f"STDF V4: {args.stdf} ({parts} part records)", soft_wrap=True)
@@ -61,8 +61,9 @@ def _out_folder(args: argparse.Namespace) -> Path:
 
 
 def _write_html(console: Console, lot: Lot, rows: list[int], out: Path) -> None:
+    # Start-up speed: the HTML page and its plots load matplotlib only when asked for.
     from sequencer.report.html import write_report
-    from sequencer.report.plots import lot_plots
+    from sequencer.report.plots import lot_plots  # start-up speed: matplotlib
 
     files = write_report(lot, lot_plots(lot, rows), out)
     console.print(f"report: {files.html} ({len(files.pngs)} PNG files beside it)", soft_wrap=True)
@@ -91,7 +92,7 @@ def device_table(lot: Lot, row: int) -> Table:
 def after_run(console: Console, folder: Path) -> None:
     """Bins and the worst figures of a finished run; a problem here never fails the run."""
     try:
-        from sequencer.cli.lotview import print_after_run
+        from sequencer.cli.lotview import print_after_run  # start-up speed
 
         print_after_run(console, load_lot([folder]))
         console.print(f"plots, HTML, STDF: ccbench report {folder}", soft_wrap=True)

@@ -50,6 +50,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def cmd_results(args: argparse.Namespace, console: Console) -> int:
+    # Start-up speed: the export module loads pandas.
     from sequencer.store.export import Filter, find_runs, merge_runs, parse_since, write_table
 
     if not args.run_dirs and args.under is None and args.database is None:
@@ -79,6 +80,7 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
 
 
 def _shared(args: argparse.Namespace, keep: object) -> tuple[pd.DataFrame, str]:
+    # Start-up speed: the shared store loads psycopg only when a database is asked for.
     from sequencer.cli.uploadcmd import database_option
     from sequencer.store.shared.query import load_shared
 

@@ -38,7 +38,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def cmd_upload(args: argparse.Namespace, console: Console) -> int:
-    from sequencer.store.export import find_runs  # pandas, only for this command
+    from sequencer.store.export import find_runs  # start-up speed: pandas, for this command only
 
     if not args.run_dirs and args.under is None:
         raise RecipeError("command line", None, "", "name run folders or give --under DIR")

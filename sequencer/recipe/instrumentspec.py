@@ -113,7 +113,8 @@ def _resource(f: Fields) -> str:
     value = f.raw("resource")
     if value == SIM_RESOURCE:
         return value
-    from instruments.transport import RESOURCE_HINT, resource_problem  # no I/O: reads the text
+    # Start-up speed: instruments.transport loads pyvisa; only a station with a resource needs it.
+    from instruments.transport import RESOURCE_HINT, resource_problem
 
     problem = resource_problem(value) if isinstance(value, str) else "is not text"
     hint = f"{RESOURCE_HINT}, or {SIM_RESOURCE} for the simulator"

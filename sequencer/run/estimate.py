@@ -26,6 +26,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from instruments.scpi import format_number
+from sequencer.model.errors import RecipeError
 from sequencer.plan.segments import Plan, Segment
 from sequencer.run.device import ramp_levels
 from sequencer.run.segment import MIN_LIST_POINTS, list_is_safe
@@ -133,8 +134,7 @@ def _last_level(plan: Plan) -> float:
 
 def predict(recipe, plan: Plan, lanes: Sequence[int] | None = None) -> Estimate:
     """The estimate for a recipe's run on its station (reads the instrument's dialect file)."""
-    from instruments import DialectError, load_dialect
-    from sequencer.model.errors import RecipeError
+    from instruments import DialectError, load_dialect  # start-up speed: `instruments` loads pyvisa
 
     station = recipe.station
     specs = station.instruments

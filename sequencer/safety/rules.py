@@ -185,7 +185,7 @@ class Guard:
             self._require_interlock(volts)
 
     def _require_interlock(self, volts: float) -> None:
-        from instruments import DialectError  # the guard reads the lid through the driver
+        from instruments import DialectError  # start-up speed: `instruments` loads pyvisa
 
         self.interlock_reads += 1
         try:

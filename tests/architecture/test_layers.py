@@ -194,3 +194,41 @@ def test_a_planted_circle_is_caught():
     edges["sequencer.model.errors"].add("sequencer.model.curve")
     edges["sequencer.model.curve"].add("sequencer.model.errors")
     assert ["sequencer.model.curve", "sequencer.model.errors"] in circles(edges)
+
+
+def late_imports_without_reason(name: str, text: str) -> list[str]:
+    """Imports inside a function that do not say, on their line or the one above, that they wait
+    for start-up speed. A late import is never a way round a circle (move the type down)."""
+    lines = text.splitlines()
+    found = []
+    for fn in ast.walk(ast.parse("\n".join(lines))):
+        if not isinstance(fn, ast.FunctionDef | ast.AsyncFunctionDef):
+            continue
+        for node in ast.walk(fn):
+            if isinstance(node, ast.Import | ast.ImportFrom):
+                top = node.lineno - 1
+                while top > 0 and lines[top - 1].strip().startswith(("import ", "from ")):
+                    top -= 1  # a block of late imports shares the one comment above it
+                said = " ".join(lines[max(top - 1, 0) : node.end_lineno]).lower()
+                if "start-up speed" not in said:
+                    found.append(f"{name}:{node.lineno}")
+    return found
+
+
+def test_every_late_import_says_it_is_for_start_up_speed():
+    files = [p for pkg in PACKAGES for p in (ROOT / pkg).rglob("*.py")]
+    late = [
+        where
+        for p in files
+        for where in late_imports_without_reason(module_name(p), p.read_text(encoding="utf-8"))
+    ]
+    assert late == []
+
+
+def test_a_late_import_without_its_reason_is_caught():
+    bare = "def f():\n    import json\n    return json\n"
+    said = "def f():\n    import json  # start-up speed\n    return json\n"
+    assert late_imports_without_reason("planted", bare) == ["planted:2"]
+    assert late_imports_without_reason("planted", said) == []
+    block = "def f():\n    # start-up speed\n    import json\n    import csv\n    return json\n"
+    assert late_imports_without_reason("planted", block) == []

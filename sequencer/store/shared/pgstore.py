@@ -23,6 +23,7 @@ from typing import Any
 import psycopg
 
 from sequencer.model.errors import StoreError
+from sequencer.recipe.resultsdb import SharedDatabase
 from sequencer.store.journal import decode_floats
 
 LOCK_KEY = 0x63636265  # advisory lock of schema changes ("ccbe")
@@ -305,8 +306,6 @@ def _plain(value: Any) -> Any:
 
 
 def _where(url: str) -> str:
-    from sequencer.recipe.resultsdb import SharedDatabase
-
     try:
         return SharedDatabase(url).shown
     except ValueError:

@@ -16,7 +16,7 @@ from sequencer.store.export import RUN_COLUMNS, Filter
 
 def load_shared(database: SharedDatabase, keep: Filter | None = None) -> pd.DataFrame:
     """Every device row of the shared database that passes the filter, in the order measured."""
-    from sequencer.store.shared import pgstore
+    from sequencer.store.shared import pgstore  # start-up speed: psycopg only when used
 
     with pgstore.connect(database.url) as conn:
         version = pgstore.version_or_none(conn)

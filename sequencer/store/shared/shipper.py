@@ -73,7 +73,7 @@ class Shipper:
                 delay = min(2 * delay, RETRY_MOST_S)
 
     def _try_sync(self) -> bool:
-        from sequencer.store.shared.pgstore import ERRORS
+        from sequencer.store.shared.pgstore import ERRORS  # start-up speed: psycopg when used
 
         try:
             self.sync()
@@ -90,7 +90,7 @@ class Shipper:
         """Send every complete journal line not yet in the database; returns how many."""
         conn = self._connection()
         self._ship_manifest(conn)
-        from sequencer.store.shared import pgstore
+        from sequencer.store.shared import pgstore  # start-up speed: psycopg only when used
 
         total = 0
         while True:
@@ -144,7 +144,7 @@ class Shipper:
         return self._run_id
 
     def _connection(self) -> Any:
-        from sequencer.store.shared import pgstore
+        from sequencer.store.shared import pgstore  # start-up speed: psycopg only when used
 
         if self._conn is not None:
             return self._conn
@@ -163,7 +163,7 @@ class Shipper:
         return conn
 
     def _ship_manifest(self, conn: Any) -> None:
-        from sequencer.store.shared import pgstore
+        from sequencer.store.shared import pgstore  # start-up speed: psycopg only when used
 
         stat = (self.folder / MANIFEST_FILE).stat()
         stamp = (stat.st_mtime_ns, stat.st_size)
@@ -238,7 +238,7 @@ def check_driver(database: SharedDatabase | None) -> None:
     if database is None:
         return
     try:
-        import psycopg  # noqa: F401 - only to know it is there
+        import psycopg  # noqa: F401 - start-up speed: loaded only to know it is there
     except ImportError:
         raise RecipeError(
             "station",
