@@ -30,6 +30,7 @@ from sequencer.model.errors import CcbenchError, RunError
 from sequencer.plan.make import make_plan
 from sequencer.recipe.load import Recipe, load_recipe
 from sequencer.run.estimate import after_run, predict
+from sequencer.safety.chamber import preflight_temperatures
 from sequencer.safety.rules import CAUTION, check_hazard, is_hazardous, preflight
 from sequencer.store.shared import shipper
 
@@ -251,8 +252,10 @@ def _measure(console, recipe, plan, smu, store, guard):
 
 
 def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:
-    """Every planned level against the effective limits, then the hazardous-voltage rules."""
+    """Every planned level against the effective limits, every set point against the station's
+    chamber range, then the hazardous-voltage rules."""
     limits = preflight(plan, recipe.effective_limits)
+    preflight_temperatures(recipe.temperatures, recipe.station.chamber)
     check_hazard(
         plan,
         limits,
