@@ -17,7 +17,7 @@ from pathlib import Path
 from rich.console import Console
 
 from sequencer import __version__
-from sequencer.bench import multibench
+from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
@@ -139,7 +139,13 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     prediction = predict(recipe, plan)
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
-    repeat = runsession.repeat_for(recipe, args)
+    repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
+    several = len(recipe.station.instruments) > 1
+    if recipe.temperatures and (several or args.part_by_part):
+        raise RunError(
+            f"{recipe.file}: 'temperatures:' runs on a station with one SMU and a tray only: "
+            "use a station with one instrument, without --part-by-part"
+        )
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
     manifest |= partcmd.manifest_extras(recipe, args, repeat)
@@ -147,7 +153,6 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     store = runsession.open_store(out, manifest, args, console)
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
         return 0
-    several = len(recipe.station.instruments) > 1
     bench = multibench.Benches() if several else Bench()
     status, error, uploads = "failed", None, None
     try:
@@ -218,7 +223,18 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect  # start-up speed: `instruments` loads pyvisa
 
-    with exchange_log(out / "scpi.log") as log, GATE.held():
+    def chamber_left(line):
+        bench.chamber = line
+
+    def announce(text):
+        console.print(text, soft_wrap=True)
+
+    sim = resource == "sim"
+    with (
+        exchange_log(out / "scpi.log") as log,
+        GATE.held(),
+        temperaturerun.chamber_in_the_loop(recipe, sim, announce, chamber_left) as chamber,
+    ):
         bench.connecting = True
         conn = connect(
             resource,
@@ -236,12 +252,12 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
                 return partcmd.from_command_line(console, tester, sim, write)
 
             def one_pass(part):
+                if chamber is not None:  # the output is off between passes: soak first
+                    with GATE.raising():
+                        chamber.before_pass(store)
                 return _measure(console, recipe, part, conn.smu, store, guard)
 
             return runsession.measure_passes(console, store, plan, repeat, one_pass)
-
-        def announce(text):
-            console.print(text, soft_wrap=True)
 
         return on_bench(conn, recipe, plan, measure, bench, GATE, announce)
 
