@@ -33,6 +33,7 @@ from sequencer.run.estimate import after_run, predict
 from sequencer.safety.chamber import preflight_temperatures
 from sequencer.safety.rules import CAUTION, check_hazard, is_hazardous, preflight
 from sequencer.store.shared import shipper
+from sequencer.store.tempcofile import TEMPCO_FILE, write_tempcos
 
 EXIT_INTERRUPTED = 130
 EXIT_OUTPUT_MAY_BE_ON = 6  # wins over every other code: the one a supervising script must see
@@ -182,11 +183,31 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             error.exit_code = EXIT_OUTPUT_MAY_BE_ON
         raise error
     console.print(summary_table(summary))
+    if recipe.temperatures:
+        _tempcos(console, recipe, store, out)
     took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
     console.print(took, soft_wrap=True)
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
     return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
+
+
+def _tempcos(console: Console, recipe: Recipe, store, out: Path) -> None:
+    """Each device's temperature coefficient of the regulated current, on screen and in
+    tempco.csv."""
+    results = write_tempcos(out, store.run_id, recipe.tempco)
+    for r in results:
+        if r.fit is None:
+            console.print(f"tempco {r.device}: {r.verdict} ({r.reason})", soft_wrap=True)
+            continue
+        u = f" ± {r.fit.u_pct_per_k:.2g}" if r.fit.u_pct_per_k == r.fit.u_pct_per_k else ""
+        why = f" ({r.reason})" if r.reason else ""
+        console.print(
+            f"tempco {r.device}: {r.fit.pct_per_k:+.4f}{u} %/K over {r.fit.points} results: "
+            f"{r.verdict}{why}",
+            soft_wrap=True,
+        )
+    console.print(f"temperature coefficients: {out / TEMPCO_FILE}", soft_wrap=True)
 
 
 def _run_error(exc: BaseException, bench: Bench | multibench.Benches, out: Path) -> CcbenchError:

@@ -38,6 +38,7 @@ from sequencer.recipe.limits import (
 from sequencer.recipe.repeat import Repeat, parse_repeat
 from sequencer.recipe.resultsdb import SharedDatabase, parse_results_database
 from sequencer.recipe.retest import RetestPolicy, parse_part_by_part
+from sequencer.recipe.tempcolimits import TempCoLimits, parse_tempco_limits
 from sequencer.recipe.temperatures import SetPoint, parse_temperatures
 from sequencer.recipe.yamlsource import Source, load_yaml
 
@@ -120,6 +121,7 @@ class Recipe:
     part_by_part: RetestPolicy = field(default_factory=RetestPolicy)  # --part-by-part
     lists: bool = False  # run steps as instrument-side lists where safe (sequencer.run.segment)
     temperatures: tuple[SetPoint, ...] = ()  # set points to run the steps at (recipe.temperatures)
+    tempco: TempCoLimits = field(default_factory=TempCoLimits)  # recipe.tempcolimits
 
     @property
     def effective_limits(self) -> EffectiveLimits:
@@ -256,6 +258,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     lists = top.raw("lists", False)
     top.check(isinstance(lists, bool), "lists", f"must be true or false (got {lists!r})")
     temperatures = parse_temperatures(source, top.raw("temperatures", None))
+    tempco = parse_tempco_limits(source, top.raw("tempco", None))
     top.finish()
     text = path.read_text(encoding="utf-8")
     return Recipe(
@@ -272,6 +275,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
         part_by_part=parts,
         lists=lists,
         temperatures=temperatures,
+        tempco=tempco,
         **safety,
     )
 

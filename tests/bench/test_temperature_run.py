@@ -5,6 +5,7 @@ says both in the last line."""
 
 from __future__ import annotations
 
+import csv
 import sqlite3
 import subprocess
 import sys
@@ -45,6 +46,11 @@ def test_each_set_point_is_a_pass_with_its_temperatures_stored(tmp_path):
     last = done.stdout.strip().splitlines()[-1]
     smu, chamber = last.index("output off (read back"), last.index("chamber set to 25 degC")
     assert smu < chamber  # the output first, then the chamber: both read back
+    # each device's coefficient over its two stored temperatures, in tempco.csv and on screen
+    with open(tmp_path / "r" / "tempco.csv", encoding="utf-8") as file:
+        tempcos = list(csv.DictReader(file))
+    assert [(t["device"], t["points"]) for t in tempcos] == [(r[1], "2") for r in rows[:2]]
+    assert all(f"tempco {t['device']}: " in done.stdout for t in tempcos)
 
 
 def test_a_soak_that_never_settles_is_one_line_output_off_chamber_safe_nothing_lost(tmp_path):

@@ -88,3 +88,11 @@ def test_station_errors_name_line_and_field(tmp_path, old, new, field, says):
         load_station(station)
     message = str(info.value)
     assert message.startswith(f"{station}:{line_of(station, new)}: {field}") and says in message
+
+
+def test_tempco_limits_in_percent_per_kelvin(tmp_path):
+    recipe = load_recipe(files(tmp_path, temps=TEMPERATURES + "tempco: {min: -0.05 %/K}\n"))
+    assert recipe.tempco.min_pct_per_k == -0.05 and recipe.tempco.max_pct_per_k is None
+    path = files(tmp_path, temps=TEMPERATURES + "tempco: {max: 0.05}\n")
+    with pytest.raises(RecipeError, match=r"tempco.max must be in %/K"):
+        load_recipe(path)
