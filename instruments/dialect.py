@@ -165,6 +165,19 @@ def parse_dialect(text: str, source: str | Path = "<text>") -> Dialect:
     return Dialect(**values, source=str(source))
 
 
+def read_mapping(text: str, source: str | Path) -> tuple[dict[Any, Any], dict[str, int]]:
+    """A dialect file's top mapping and the line of each key (the one YAML reader of instruments/:
+    other dialect formats, such as a chamber's, check their own keys from this)."""
+    lines = _key_lines(text, source)
+    try:
+        data = yaml.safe_load(text)
+    except yaml.YAMLError as exc:
+        raise DialectError(source, None, _yaml_line(exc), f"not valid YAML: {exc}") from exc
+    if not isinstance(data, dict):
+        raise DialectError(source, None, 1, "must be a mapping of keys to command text")
+    return data, lines
+
+
 def _key_lines(text: str, source: str | Path) -> dict[str, int]:
     try:
         node = yaml.compose(text)

@@ -28,6 +28,10 @@ OPTION_NAMES = frozenset(
     | {"temperature", "thermal_resistance", "thermal_time"}
     | {"reading_gain", "range_offset", "contact_spread", "noise_seed"}
 )
+# The simulated chamber's options (`python -m simulator chamber`); faults are names there.
+CHAMBER_OPTION_NAMES = frozenset(
+    {"room", "tau_air", "tau_mount", "reach", "speed", "lowest", "highest", "faults"}
+)
 START_TIMEOUT_S = 20.0
 _RESOURCE_LINE = re.compile(r"TCPIP0::127\.0\.0\.1::\d+::SOCKET")
 _PROJECT_ROOT = Path(__file__).resolve().parent.parent
@@ -39,10 +43,15 @@ class EmbeddedSimulator:
     """The simulator as a child process. Use as a context manager, or `start()` then `stop()`."""
 
     def __init__(
-        self, *, start_timeout_s: float = START_TIMEOUT_S, module: str = "simulator"
+        self,
+        *,
+        start_timeout_s: float = START_TIMEOUT_S,
+        module: str = "simulator",
+        program: str = "serve",
     ) -> None:
         self.start_timeout_s = start_timeout_s
         self.module = module  # another program with the same command line (tests use one)
+        self.program = program  # "serve": the SMU; "chamber": the temperature chamber
         self.resource: str | None = None
         self._process: subprocess.Popen[str] | None = None
         self._stderr: IO[str] | None = None
@@ -62,7 +71,10 @@ class EmbeddedSimulator:
         """Launch the simulator and return its resource string once it listens."""
         if self._process is not None:
             raise InstrumentError("sim", None, "the simulator is running already", hint="stop it")
-        command = simulator_command(options or {}, module=self.module)
+        if self.program == "chamber":
+            command = chamber_command(options or {}, module=self.module)
+        else:
+            command = simulator_command(options or {}, module=self.module)
         # A file, not a pipe: a chatty simulator never blocks, and the tail is there to quote.
         self._stderr = tempfile.TemporaryFile(  # noqa: SIM115 - lives as long as the child
             mode="w+", encoding="utf-8", errors="replace"
@@ -136,6 +148,21 @@ def simulator_command(options: Mapping[str, object], *, module: str = "simulator
             raise InstrumentError("sim", None, f"unknown simulator option {key!r}", hint=hint)
         if key == "faults":
             command += [arg for item in _fault_list(value) for arg in ("--fault", item)]
+        else:
+            command += [f"--{key.replace('_', '-')}", str(value)]
+    return command
+
+
+def chamber_command(options: Mapping[str, object], *, module: str = "simulator") -> list[str]:
+    """The simulated chamber's command line (keys as in CHAMBER_OPTION_NAMES)."""
+    command = [sys.executable, "-m", module, "chamber", "--port", "0", "--exit-with-stdin"]
+    for key, value in options.items():
+        if key not in CHAMBER_OPTION_NAMES:
+            hint = f"use one of: {', '.join(sorted(CHAMBER_OPTION_NAMES))}"
+            raise InstrumentError("sim", None, f"unknown chamber option {key!r}", hint=hint)
+        if key == "faults":
+            names = value if isinstance(value, list | tuple) else [value]
+            command += [arg for name in names for arg in ("--fault", str(name))]
         else:
             command += [f"--{key.replace('_', '-')}", str(value)]
     return command

@@ -142,3 +142,11 @@ def scpi_error_hint(code: int) -> str:
         if low <= code <= high:
             return hint
     return "see the instrument's manual for this code"
+
+
+class SensorFault(InstrumentError, ValueError):
+    """A temperature reading outside the range its dialect calls plausible: a sensor fault."""
+
+    default_hint = (
+        "the chamber's sensor reads off scale (open or shorted): check its wiring, then restart"
+    )

@@ -1,4 +1,5 @@
-"""`python -m simulator serve ...`: run the simulated SMU as its own program.
+"""`python -m simulator serve ...`: run the simulated SMU as its own program
+(`python -m simulator chamber ...`: the simulated temperature chamber, see chamber_server.py).
 
 Prints exactly one line, the VISA resource string, once listening (with --serial a second line,
 the ASRL resource of a pseudo-terminal serving the same instrument); serves until SIGINT or
@@ -13,11 +14,12 @@ import signal
 import sys
 import threading
 
+from simulator.chamber_server import ChamberHandle, ChamberOptions, start_chamber
 from simulator.errors import OptionError
 from simulator.faults import FaultSpec, load_faults, parse_fault
 from simulator.options import SimOptions
 from simulator.serial_port import start_serial
-from simulator.server import start_server
+from simulator.server import ServerHandle, start_server
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -64,7 +66,41 @@ def build_parser() -> argparse.ArgumentParser:
         help="arm a fault at start (repeatable), e.g. late-reply:on=READ?,after=10,delay=3",
     )
     serve.add_argument("--faults", metavar="FILE.yaml", help="arm the faults listed in a file")
+    _chamber_parser(commands)
     return parser
+
+
+def _chamber_parser(commands: argparse._SubParsersAction) -> None:
+    c = ChamberOptions()
+    chamber = commands.add_parser("chamber", help="serve a simulated temperature chamber over TCP")
+    chamber.add_argument("--host", default=c.host, help="address to bind (only 127.0.0.1)")
+    chamber.add_argument("--port", type=int, default=c.port, help="TCP port; 0 lets the OS choose")
+    chamber.add_argument("--room", type=float, default=c.room_c, help="room temperature, C")
+    chamber.add_argument("--tau-air", type=float, default=c.tau_air_s, help="air lag, s")
+    chamber.add_argument("--tau-mount", type=float, default=c.tau_mount_s, help="mount lag, s")
+    chamber.add_argument("--reach", type=float, default=c.reach_k, help="weak: K from room")
+    chamber.add_argument("--speed", type=float, default=c.speed, help="simulated s per real s")
+    chamber.add_argument("--lowest", type=float, default=c.lowest_c, help="lowest set point, C")
+    chamber.add_argument("--highest", type=float, default=c.highest_c, help="highest, C")
+    chamber.add_argument("--exit-with-stdin", action="store_true", help="stop when stdin closes")
+    chamber.add_argument(
+        "--fault", action="append", default=[], help="sensor-open, weak, door or mute (repeatable)"
+    )
+
+
+def chamber_options_from(args: argparse.Namespace) -> ChamberOptions:
+    return ChamberOptions(
+        host=args.host,
+        port=args.port,
+        room_c=args.room,
+        tau_air_s=args.tau_air,
+        tau_mount_s=args.tau_mount,
+        reach_k=args.reach,
+        speed=args.speed,
+        lowest_c=args.lowest,
+        highest_c=args.highest,
+        faults=tuple(args.fault),
+    )
 
 
 def options_from(args: argparse.Namespace) -> SimOptions:
@@ -103,7 +139,10 @@ def _watch_stdin(stop: threading.Event) -> None:
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     try:
-        handle = start_server(options_from(args))
+        if args.command == "chamber":
+            handle: ServerHandle | ChamberHandle = start_chamber(chamber_options_from(args))
+        else:
+            handle = start_server(options_from(args))
     except (OptionError, OSError) as exc:
         print(f"simulator: {exc}", file=sys.stderr)
         return 2
@@ -112,7 +151,8 @@ def main(argv: list[str] | None = None) -> int:
         signal.signal(signum, lambda *_: stop.set())
     if args.exit_with_stdin:
         threading.Thread(target=_watch_stdin, args=(stop,), daemon=True).start()
-    serial = start_serial(handle.instrument) if args.serial else None
+    smu = isinstance(handle, ServerHandle)
+    serial = start_serial(handle.instrument) if smu and args.serial else None
     print(handle.resource, flush=True)
     if serial is not None:
         print(serial.resource, flush=True)

@@ -131,12 +131,16 @@ class Bench:
     shutdown: Shutdown | None = None
     guard: Guard | None = None
     connecting: bool = False  # a connection was tried: something may have reached it
+    chamber: str = ""  # how the chamber was left (sequencer.bench.temperaturerun), after the SMU
 
     def ending(self) -> str:
-        """How the output was left, for the last line on screen."""
+        """How the output (and the chamber, in a run over temperatures) was left, for the last
+        line on screen."""
         if self.shutdown is None:
-            return UNTOUCHED if self.connecting else NOTHING_SENT
-        return self.shutdown.describe()
+            smu = UNTOUCHED if self.connecting else NOTHING_SENT
+        else:
+            smu = self.shutdown.describe()
+        return f"{smu}; {self.chamber}" if self.chamber else smu
 
     def may_be_on(self) -> bool:
         """True when ccbench drove the instrument and could not read its output back off."""

@@ -19,7 +19,7 @@ from rich.console import Console
 from rich.markup import escape
 
 from sequencer import __version__
-from sequencer.bench import multibench
+from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
@@ -33,9 +33,11 @@ from sequencer.plan.make import make_plan
 from sequencer.recipe.fields import MAX_TEXT
 from sequencer.recipe.load import Recipe, load_recipe
 from sequencer.run.estimate import after_run, predict
+from sequencer.safety.chamber import preflight_temperatures
 from sequencer.safety.rules import CAUTION, check_hazard, is_hazardous, preflight
 from sequencer.store.runfolder import folder_name
 from sequencer.store.shared import shipper
+from sequencer.store.tempcofile import TEMPCO_FILE, write_tempcos
 
 EXIT_INTERRUPTED = 130
 EXIT_OUTPUT_MAY_BE_ON = 6  # wins over every other code: the one a supervising script must see
@@ -162,7 +164,13 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     prediction = predict(recipe, plan)
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or _default_folder(recipe.lot, console)
-    repeat = runsession.repeat_for(recipe, args)
+    repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
+    several = len(recipe.station.instruments) > 1
+    if recipe.temperatures and (several or args.part_by_part):
+        raise RunError(
+            f"{recipe.file}: 'temperatures:' runs on a station with one SMU and a tray only: "
+            "use a station with one instrument, without --part-by-part"
+        )
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
     manifest |= partcmd.manifest_extras(recipe, args, repeat)
@@ -170,7 +178,6 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     store = runsession.open_store(out, manifest, args, console)
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
         return 0
-    several = len(recipe.station.instruments) > 1
     bench = multibench.Benches() if several else Bench()
     status, error, uploads = "failed", None, None
     try:
@@ -202,11 +209,31 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             error.exit_code = EXIT_OUTPUT_MAY_BE_ON
         raise error
     console.print(summary_table(summary))
+    if recipe.temperatures:
+        _tempcos(console, recipe, store, out)
     took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
     console.print(took, soft_wrap=True)
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
     return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
+
+
+def _tempcos(console: Console, recipe: Recipe, store, out: Path) -> None:
+    """Each device's temperature coefficient of the regulated current, on screen and in
+    tempco.csv."""
+    results = write_tempcos(out, store.run_id, recipe.tempco)
+    for r in results:
+        if r.fit is None:
+            console.print(f"tempco {r.device}: {r.verdict} ({r.reason})", soft_wrap=True)
+            continue
+        u = f" ± {r.fit.u_pct_per_k:.2g}" if r.fit.u_pct_per_k == r.fit.u_pct_per_k else ""
+        why = f" ({r.reason})" if r.reason else ""
+        console.print(
+            f"tempco {r.device}: {r.fit.pct_per_k:+.4f}{u} %/K over {r.fit.points} results: "
+            f"{r.verdict}{why}",
+            soft_wrap=True,
+        )
+    console.print(f"temperature coefficients: {out / TEMPCO_FILE}", soft_wrap=True)
 
 
 def _run_error(exc: BaseException, bench: Bench | multibench.Benches, out: Path) -> CcbenchError:
@@ -243,7 +270,18 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect  # start-up speed: `instruments` loads pyvisa
 
-    with exchange_log(out / "scpi.log") as log, GATE.held():
+    def chamber_left(line):
+        bench.chamber = line
+
+    def announce(text):
+        console.print(text, soft_wrap=True)
+
+    sim = resource == "sim"
+    with (
+        exchange_log(out / "scpi.log") as log,
+        GATE.held(),
+        temperaturerun.chamber_in_the_loop(recipe, sim, announce, chamber_left) as chamber,
+    ):
         bench.connecting = True
         conn = connect(
             resource,
@@ -261,12 +299,12 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
                 return partcmd.from_command_line(console, tester, sim, write)
 
             def one_pass(part):
+                if chamber is not None:  # the output is off between passes: soak first
+                    with GATE.raising():
+                        chamber.before_pass(store)
                 return _measure(console, recipe, part, conn.smu, store, guard)
 
             return runsession.measure_passes(console, store, plan, repeat, one_pass)
-
-        def announce(text):
-            console.print(text, soft_wrap=True)
 
         return on_bench(conn, recipe, plan, measure, bench, GATE, announce)
 
@@ -277,8 +315,10 @@ def _measure(console, recipe, plan, smu, store, guard):
 
 
 def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:
-    """Every planned level against the effective limits, then the hazardous-voltage rules."""
+    """Every planned level against the effective limits, every set point against the station's
+    chamber range, then the hazardous-voltage rules."""
     limits = preflight(plan, recipe.effective_limits)
+    preflight_temperatures(recipe.temperatures, recipe.station.chamber)
     check_hazard(
         plan,
         limits,

@@ -14,6 +14,7 @@ from typing import Any
 
 from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy
 from sequencer.model.judgesettings import FIGURE_KIND, FIGURES, FigureLimit, JudgeSettings
+from sequencer.recipe.chamberspec import ChamberSpec, parse_chamber
 from sequencer.recipe.fields import Fields as _Fields
 from sequencer.recipe.fields import positive as _positive
 from sequencer.recipe.fields import show as _show
@@ -37,6 +38,8 @@ from sequencer.recipe.limits import (
 from sequencer.recipe.repeat import Repeat, parse_repeat
 from sequencer.recipe.resultsdb import SharedDatabase, parse_results_database
 from sequencer.recipe.retest import RetestPolicy, parse_part_by_part
+from sequencer.recipe.tempcolimits import TempCoLimits, parse_tempco_limits
+from sequencer.recipe.temperatures import SetPoint, parse_temperatures
 from sequencer.recipe.yamlsource import Source, load_yaml
 
 __all__ = ["FIGURES", "FIGURE_KIND", "FigureLimit", "JudgeSettings", "Recipe", "Station"]
@@ -60,6 +63,7 @@ class Station:
     # Every SMU with its channels (sequencer.recipe.instrumentspec); the fields above name the
     # first.
     instruments: tuple[InstrumentSpec, ...] = ()
+    chamber: ChamberSpec | None = None  # the temperature source (sequencer.recipe.chamberspec)
 
     @property
     def simulator_options(self) -> dict[str, object]:
@@ -116,6 +120,8 @@ class Recipe:
     repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
     part_by_part: RetestPolicy = field(default_factory=RetestPolicy)  # --part-by-part
     lists: bool = False  # run steps as instrument-side lists where safe (sequencer.run.segment)
+    temperatures: tuple[SetPoint, ...] = ()  # set points to run the steps at (recipe.temperatures)
+    tempco: TempCoLimits = field(default_factory=TempCoLimits)  # recipe.tempcolimits
 
     @property
     def effective_limits(self) -> EffectiveLimits:
@@ -150,6 +156,7 @@ def load_station(path: Path) -> Station:
     sim = _simulator_options(source, top.raw("simulator", {}))
     accuracy = parse_accuracy(source, top.raw("accuracy", None))
     shared = parse_results_database(source, top.raw("results_database", None))
+    chamber = parse_chamber(source, top.raw("chamber", None))
     top.finish()
     text = source.text
     return Station(
@@ -167,6 +174,7 @@ def load_station(path: Path) -> Station:
         accuracy,
         shared,
         specs,
+        chamber,
     )
 
 
@@ -253,6 +261,8 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
     parts = parse_part_by_part(source, top.raw("part_by_part", None))
     lists = top.raw("lists", False)
     top.check(isinstance(lists, bool), "lists", f"must be true or false (got {lists!r})")
+    temperatures = parse_temperatures(source, top.raw("temperatures", None))
+    tempco = parse_tempco_limits(source, top.raw("tempco", None))
     top.finish()
     text = source.text
     return Recipe(
@@ -268,6 +278,8 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
         repeat=repeat,
         part_by_part=parts,
         lists=lists,
+        temperatures=temperatures,
+        tempco=tempco,
         **safety,
     )
 

@@ -200,3 +200,44 @@ def _suggest(name: str, kind: str) -> str:
         if name.lower() == (prefix + symbol).lower() and name != prefix + symbol:
             return f" (did you mean '{prefix + symbol}'?)"
     return ""
+
+
+# Temperatures: a set point is absolute ('85 degC', '358.15 K'); a band or a rate is a difference,
+# written in kelvin ('0.5 K', '2 K/min'), because '0.5 degC' would read as an absolute 0.5 degC.
+_TEMPERATURE_UNITS = {"degC": "degC", "C": "degC", "K": "kelvin"}
+_RATE_UNITS = {"K/s": 1.0, "K/min": 1 / 60, "K/h": 1 / 3600}
+
+
+def parse_temperature_c(value: object) -> float:
+    """An absolute temperature in degC from '85 degC', '-20 degC' or '253.15 K'."""
+    number, unit = _number_and_unit(value, "a temperature", "85 degC", _TEMPERATURE_UNITS)
+    kelvin_to_c = registry().Quantity(number, _TEMPERATURE_UNITS[unit]).to("degC").magnitude
+    celsius = round(float(kelvin_to_c), 9)  # 253.15 K is -20 degC, not -19.99999999999997
+    if celsius < -273.15:
+        raise UnitProblem(f"is below absolute zero (got {value!r})")
+    return celsius
+
+
+def parse_temperature_step_k(value: object) -> float:
+    """A temperature difference in kelvin, written in K ('0.5 K')."""
+    number, _ = _number_and_unit(value, "a temperature difference", "0.5 K", {"K": "K"})
+    return number
+
+
+def parse_rate_k_per_s(value: object) -> float:
+    """A rate of temperature change in K/s from '2 K/min', '0.1 K/s' or '60 K/h'."""
+    number, unit = _number_and_unit(value, "a rate", "2 K/min", _RATE_UNITS)
+    return number * _RATE_UNITS[unit]
+
+
+def _number_and_unit(
+    value: object, what: str, example: str, units: dict[str, object]
+) -> tuple[float, str]:
+    if isinstance(value, bool) or not isinstance(value, str):
+        raise UnitProblem(f"must be {what} with a unit, e.g. '{example}' (got {value!r})")
+    number_text, rest = _split_number(value.strip(), value, example)
+    unit = rest.strip()
+    if unit not in units:
+        known = ", ".join(units)
+        raise UnitProblem(f"must be {what} in {known}, e.g. '{example}' (got {value!r})")
+    return _finite(number_text, value), unit

@@ -113,7 +113,22 @@ def _v5(db: sqlite3.Connection) -> None:
     db.execute("ALTER TABLE session ADD COLUMN ended TEXT")
 
 
-MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_v1, _v2, _v3, _v4, _v5)
+def _v6_temperatures(db: sqlite3.Connection) -> None:
+    """Characterisation over temperature: the chamber set point a device was measured at, and
+    what the chamber's and the fixture's sensors read once it was stable (degC; NULL for a run
+    without a chamber, or a station without a fixture sensor). sequencer.run.soak"""
+    for column in ("set_point_C", "chamber_C", "fixture_C"):
+        db.execute(f"ALTER TABLE device ADD COLUMN {column} REAL")
+
+
+MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (
+    _v1,
+    _v2,
+    _v3,
+    _v4,
+    _v5,
+    _v6_temperatures,
+)
 LATEST = len(MIGRATIONS)
 
 

@@ -119,6 +119,7 @@ class RunStore:
     progress: Progress = field(default_factory=Progress)
     pass_no: int = 1
     pass_started: str | None = None
+    temperature: dict[str, float | None] = field(default_factory=dict)  # see at_temperature
 
     @property
     def session(self) -> int:
@@ -225,6 +226,15 @@ class RunStore:
         store.progress = progress(db, run_id, number, str(run.get("started", "")), done)
         return store
 
+    def at_temperature(self, set_point_c: float, chamber_c: float, fixture_c: float | None) -> None:
+        """The devices stored from now on were measured at this set point, the chamber's and the
+        fixture's sensors reading these (degC) once it was stable."""
+        self.temperature = {
+            "set_point_C": set_point_c,
+            "chamber_C": chamber_c,
+            "fixture_C": fixture_c,
+        }
+
     def begin_pass(self, pass_no: int, started: str | None = None) -> None:
         """The devices stored from now on belong to pass `pass_no`, which began at `started`.
         Refused (LockLost) once the folder's lock was taken away, before a device is measured."""
@@ -239,6 +249,7 @@ class RunStore:
         device columns (part-by-part testing adds `standing`)."""
         entry: dict[str, Any] = {"pass": self.pass_no, "session": self.session}
         entry.update(device_row(judgement, curve.channel))
+        entry.update(self.temperature)
         entry.update(extra or {})
         entry["measured"] = utc_now()
         entry["pass_started"] = self.pass_started or entry["measured"]

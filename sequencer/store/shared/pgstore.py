@@ -150,7 +150,20 @@ def _v5(cur: psycopg.Cursor) -> None:
     cur.execute("ALTER TABLE session ADD COLUMN ended TEXT")
 
 
-MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (_v1, _v2, _v3, _v4, _v5)
+def _v6_temperatures(cur: psycopg.Cursor) -> None:
+    """The set point a device was measured at and the chamber's and fixture's readings (degC)."""
+    for column in ("set_point_C", "chamber_C", "fixture_C"):
+        cur.execute(f'ALTER TABLE device ADD COLUMN "{column}" DOUBLE PRECISION')
+
+
+MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (
+    _v1,
+    _v2,
+    _v3,
+    _v4,
+    _v5,
+    _v6_temperatures,
+)
 LATEST = len(MIGRATIONS)
 
 
