@@ -91,7 +91,7 @@ def _rate(f: Fields) -> float:
 
 
 def _safe(f: Fields, lowest: float, highest: float) -> float | None:
-    if f.raw("safe") in ("off", False):  # YAML reads a bare `off` as false
+    if f.raw("safe") == "off":  # written "off" (quoted: a bare off is a YAML boolean)
         return None
     safe = _temperature(f, "safe")
     within = f"must lie within lowest..highest ({lowest:g}..{highest:g} degC), or be 'off'"

@@ -11,7 +11,7 @@ from tests.support.stations import write_recipe, write_station
 
 ROOT = Path(__file__).resolve().parents[2]
 CHAMBER = (
-    "chamber: {resource: sim, lowest: -40 degC, highest: 125 degC, rate: 5 K/min, safe: off}\n"
+    "chamber: {resource: sim, lowest: -40 degC, highest: 125 degC, rate: 5 K/min, safe: 'off'}\n"
 )
 
 
