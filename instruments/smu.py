@@ -37,8 +37,6 @@ T = TypeVar("T")
 
 MAX_ERROR_READS = 20  # a queue holds about 10 entries; more reads means it never empties
 _RECENT = 8  # commands kept to say, in an error message, what the instrument was sent
-# Without a status bit, a reading this close to the programmed limit counts as in compliance.
-_LIMIT_FRACTION = 0.999
 # A list run's reply takes as long as the run: the timeout grows by this much per point beyond
 # the settling and the aperture (the slowest line frequency, 50 Hz, is assumed for the aperture).
 _LIST_MARGIN_S = 0.01
@@ -75,6 +73,8 @@ class ScpiSmu:
         self._recent: deque[str] = deque(maxlen=_RECENT)
         self._pending: list[str] = []  # commands held for the next message (see `batch`)
         self._batching = False
+        # What the error queue held before this session sent anything (see `start_up`).
+        self.stale_errors: list[tuple[int, str]] = []
 
     @property
     def resource(self) -> str:
@@ -97,6 +97,22 @@ class ScpiSmu:
         if self.dialect.operation_complete is not None:
             self._parse("operation_complete", self._query("operation_complete"), parse_int)
         self._limit_a = None
+
+    def start_up(self) -> list[tuple[int, str]]:
+        """Once after connecting: empty the error queue of what was there before (returned and
+        kept in `stale_errors`, never raised: a power-on error is not this session's), send the
+        dialect's `setup` commands, then check those were accepted (ScpiError naming them)."""
+        self._flush_quietly()
+        self.stale_errors = self._drain_errors()[0]
+        self._recent.clear()  # a stale entry must not be blamed on what was sent before it
+        for command in self.dialect.setup or ():
+            self._recent.append(command)
+            self.transport.write(command)
+        if self.dialect.operation_complete is not None and self.dialect.setup:
+            self._parse("operation_complete", self._query("operation_complete"), parse_int)
+        self.check_errors()
+        self._limit_a = None  # a reset in the setup drops the limit, too
+        return self.stale_errors
 
     def safe_state(self) -> bool:
         """Output off, then level 0 V. Never raises (it runs in `finally` blocks).
@@ -262,15 +278,7 @@ class ScpiSmu:
 
     def check_errors(self) -> None:
         """Drain the error queue; raise ScpiError for its first entry, all of them listed."""
-        entries: list[tuple[int, str]] = []
-        hint = None
-        for _ in range(MAX_ERROR_READS):
-            entry = self._parse("next_error", self._query("next_error"), parse_error_entry)
-            if entry[0] == 0:
-                break
-            entries.append(entry)
-        else:
-            hint = f"the error queue was not empty after {MAX_ERROR_READS} reads: reset it"
+        entries, hint = self._drain_errors()
         sent = " ; ".join(self._recent) or None  # what was sent since the last check
         self._recent.clear()
         if entries:
@@ -281,6 +289,16 @@ class ScpiSmu:
         self.transport.close()
 
     # -- internals -------------------------------------------------------------------------
+
+    def _drain_errors(self) -> tuple[list[tuple[int, str]], str | None]:
+        """Every entry of the error queue, read until "no error"; a hint if it never empties."""
+        entries: list[tuple[int, str]] = []
+        for _ in range(MAX_ERROR_READS):
+            entry = self._parse("next_error", self._query("next_error"), parse_error_entry)
+            if entry[0] == 0:
+                return entries, None
+            entries.append(entry)
+        return entries, f"the error queue was not empty after {MAX_ERROR_READS} reads: reset it"
 
     def _point_by_point(self, levels: np.ndarray) -> Sweep:
         readings = []
@@ -327,11 +345,12 @@ class ScpiSmu:
             raise ReplyError(self.resource, self.dialect.fetch, detail)
         table = {name: data[k :: len(names)].astype(float) for k, name in enumerate(names)}
         voltage, current = (special_values(table[name]) for name in ("voltage", "current"))
-        if "status" in table and self.dialect.compliance_bit is not None:
+        bit = self.dialect.list_compliance_bit
+        if "status" in table and bit is not None:
             bits = table["status"].astype(np.int64)
-            limited = ((bits >> self.dialect.compliance_bit) & 1).astype(bool)
+            limited = ((bits >> bit) & 1).astype(bool)
         else:
-            limited = np.abs(current) >= _LIMIT_FRACTION * (self._limit_a or np.inf)
+            limited = np.abs(current) >= self.dialect.fraction * (self._limit_a or np.inf)
         return voltage, current, limited
 
     @contextmanager
@@ -416,7 +435,7 @@ class ScpiSmu:
             return bool((status >> bit) & 1)
         if self._limit_a is None or math.isnan(current_a):
             return False
-        return abs(current_a) >= _LIMIT_FRACTION * self._limit_a
+        return abs(current_a) >= self.dialect.fraction * self._limit_a
 
 
 def _joined(commands: list[str]) -> str:

@@ -216,6 +216,7 @@ def _finish(console: Console, store, status: str, ended: str) -> None:
 def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect  # start-up speed: `instruments` loads pyvisa
+    from sequencer.run.startnotes import instrument_record  # start-up speed, as above
 
     with exchange_log(out / "scpi.log") as log, GATE.held():
         bench.connecting = True
@@ -229,6 +230,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
 
         def measure(guard):
             store.set_identity(conn.resource, conn.identity)
+            store.note_instrument("instrument", instrument_record(conn.smu))
             if part_by_part:
                 tester = PartBench(recipe, plan, conn.smu, store, guard)
                 write, sim = conn.smu.transport.write, resource == "sim"
