@@ -31,10 +31,11 @@ PLACEHOLDERS: dict[str, frozenset[str]] = {
     "select_channel": frozenset({"channel"}),
     "list_voltage": frozenset({"values", "count"}),
 }
-# Operations the driver cannot do without; every other SCPI key may be null (see the driver).
+# Operations the driver cannot do without (output_query: every ending reads the output back as
+# off); every other SCPI key may be null (see the driver).
 REQUIRED = frozenset(
     {"name", "identify", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
-    | {"measure", "measure_fields"}
+    | {"measure", "measure_fields", "output_query"}
 )
 MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "errors", "ignore"})
 FETCH_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
@@ -105,6 +106,7 @@ class Dialect:
     # Without a status bit: clamped from this fraction of the limit up (DEFAULT_CLAMP_FRACTION).
     clamp_fraction: float | None = None
     source: str = "<built in>"
+    key_lines: tuple[tuple[str, int], ...] = ()  # where each key stands in the file
 
     @property
     def has_lists(self) -> bool:
@@ -114,6 +116,18 @@ class Dialect:
     def fraction(self) -> float:
         """The clamp fraction in use where no status bit tells a clamp."""
         return DEFAULT_CLAMP_FRACTION if self.clamp_fraction is None else self.clamp_fraction
+
+    def line_of(self, key: str) -> int | None:
+        return dict(self.key_lines).get(key)
+
+    def channels_problem(self, channels: tuple[int, ...]) -> DialectError | None:
+        """Why this dialect cannot reach `channels` (None when it can): without a switch
+        command only channel 1, the device on the terminals themselves, can be measured."""
+        if self.select_channel is not None or all(c == 1 for c in channels):
+            return None
+        detail = f"is null, but the station uses channels {list(channels)}: give the switch "
+        detail += "command with {channel}, or use channel 1 alone (no switch matrix)"
+        return DialectError(self.source, "select_channel", self.line_of("select_channel"), detail)
 
     def compliance_rules(self) -> dict[str, str]:
         """How a clamped reading is told, for single and for list readings, in words."""
@@ -145,7 +159,7 @@ class Dialect:
         return text
 
 
-_ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name != "source")
+_ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name not in ("source", "key_lines"))
 _NON_TEXT = frozenset(
     {"name", "description", "measure_fields", "compliance_bit", "fetch_fields"}
     | {"binary_big_endian", "list_max_points", "max_message_bytes"}
@@ -196,7 +210,7 @@ def parse_dialect(text: str, source: str | Path = "<text>") -> Dialect:
     _check_measure(values, lines, source)
     _check_lists(values, lines, source)
     _check_no_reset_per_device(values, lines, source)
-    return Dialect(**values, source=str(source))
+    return Dialect(**values, source=str(source), key_lines=tuple(lines.items()))
 
 
 def _key_lines(text: str, source: str | Path) -> dict[str, int]:

@@ -263,6 +263,11 @@ class ScpiSmu:
         a refused switch would otherwise measure the wrong device."""
         if isinstance(channel, bool) or not isinstance(channel, numbers.Integral) or channel < 1:
             raise ValueError(f"channel must be an integer >= 1 (got {channel!r})")
+        problem = self.dialect.channels_problem((int(channel),))
+        if problem is not None:
+            raise problem
+        if self.dialect.select_channel is None:
+            return  # no switch matrix: channel 1 is the device on the terminals
         with self.batch():
             self._write("select_channel", channel=int(channel))
             self.check_errors()

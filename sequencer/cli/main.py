@@ -122,9 +122,10 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)
+    prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))
-    console.print(plan_summary(recipe, plan, predict(recipe, plan)), soft_wrap=True)
+    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     console.print(f"{recipe.file}: valid; within the limits of station {recipe.station.name}")
     return 0
 
@@ -134,8 +135,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
+    prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
     _cautions(console, recipe, plan)
-    prediction = predict(recipe, plan)
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or Path("runs") / f"{recipe.lot}-{dt.datetime.now():%Y%m%d-%H%M%S}"
     repeat = runsession.repeat_for(recipe, args)

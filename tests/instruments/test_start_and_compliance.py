@@ -156,3 +156,12 @@ def test_a_reset_inside_a_per_device_key_is_refused(key: str) -> None:
 def test_setup_must_be_a_list_of_commands(tmp_path: Path) -> None:
     with pytest.raises(DialectError, match="setup"):
         _dialect(**{'setup: ["*RST", "*CLS"]': 'setup: "*RST"'})
+
+
+def test_without_a_switch_command_channel_1_is_the_terminals_and_2_is_refused(connect) -> None:
+    responder = PlainSmu()
+    smu = connect(responder, _dialect())  # select_channel: null
+    smu.select_channel(1)
+    assert responder.errors == []  # nothing was sent that the responder would refuse
+    with pytest.raises(DialectError, match="select_channel"):
+        smu.select_channel(2)
