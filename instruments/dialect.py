@@ -45,6 +45,7 @@ OPTIONAL_KEYS = frozenset(
     {"list_voltage", "initiate", "fetch", "fetch_fields", "binary_format", "binary_big_endian"}
     | {"ascii_format", "fixed_mode", "list_max_points", "max_message_bytes"}
     | {"setup", "list_compliance_bit", "clamp_fraction"}
+    | {"boolean_words", "error_text_quoted", "status_as_float"}
 )
 # Without a status bit, a reading counts as clamped from this fraction of the programmed limit
 # up. A real source clamps within its limit accuracy, a few tenths of a percent (plus an offset)
@@ -105,6 +106,11 @@ class Dialect:
     list_compliance_bit: int | None = None
     # Without a status bit: clamped from this fraction of the limit up (DEFAULT_CLAMP_FRACTION).
     clamp_fraction: float | None = None
+    # Reply styles: booleans answered as ON/OFF words too; error entries whose text may come
+    # without quotes; status words sent as floats (+8.000000E+00). None: the SCPI form only.
+    boolean_words: bool | None = None
+    error_text_quoted: bool | None = None
+    status_as_float: bool | None = None
     source: str = "<built in>"
     key_lines: tuple[tuple[str, int], ...] = ()  # where each key stands in the file
 
@@ -164,6 +170,7 @@ _NON_TEXT = frozenset(
     {"name", "description", "measure_fields", "compliance_bit", "fetch_fields"}
     | {"binary_big_endian", "list_max_points", "max_message_bytes"}
     | {"setup", "list_compliance_bit", "clamp_fraction"}
+    | {"boolean_words", "error_text_quoted", "status_as_float"}
 )
 _TEXT_KEYS = frozenset(_ALL_KEYS) - _NON_TEXT
 
@@ -262,7 +269,7 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
         if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
             raise DialectError(source, key, line, "must be a list of field names")
         return tuple(value)
-    if key == "binary_big_endian":
+    if key in ("binary_big_endian", "boolean_words", "error_text_quoted", "status_as_float"):
         if not isinstance(value, bool):
             raise DialectError(source, key, line, f"must be true or false (got {value!r})")
         return value

@@ -29,6 +29,7 @@ from instruments.scpi import (
     parse_error_entry,
     parse_int,
     parse_number,
+    parse_status,
     special_values,
 )
 
@@ -198,7 +199,7 @@ class ScpiSmu:
         self.transport.write(message)
 
     def output_is_on(self) -> bool:
-        return self._parse("output_query", self._query("output_query"), parse_bool)
+        return self._parse("output_query", self._query("output_query"), self._bool)
 
     def measure(self) -> Reading:
         """One reading with one query; compliance from the status bit the dialect names.
@@ -279,7 +280,7 @@ class ScpiSmu:
     def interlock_closed(self) -> bool:
         """True when the fixture lid is closed. A dialect without `interlock_query` raises
         DialectError: an interlock that cannot be read must never count as closed."""
-        return self._parse("interlock_query", self._query("interlock_query"), parse_bool)
+        return self._parse("interlock_query", self._query("interlock_query"), self._bool)
 
     def check_errors(self) -> None:
         """Drain the error queue; raise ScpiError for its first entry, all of them listed."""
@@ -299,7 +300,7 @@ class ScpiSmu:
         """Every entry of the error queue, read until "no error"; a hint if it never empties."""
         entries: list[tuple[int, str]] = []
         for _ in range(MAX_ERROR_READS):
-            entry = self._parse("next_error", self._query("next_error"), parse_error_entry)
+            entry = self._parse("next_error", self._query("next_error"), self._error_entry)
             if entry[0] == 0:
                 return entries, None
             entries.append(entry)
@@ -420,6 +421,15 @@ class ScpiSmu:
         except ReplyError as exc:
             raise ReplyError(self.resource, self.dialect.template(key), exc.detail) from exc
 
+    def _bool(self, text: str) -> bool:
+        return parse_bool(text, words=bool(self.dialect.boolean_words))
+
+    def _error_entry(self, text: str) -> tuple[int, str]:
+        return parse_error_entry(text, quoted=self.dialect.error_text_quoted is not False)
+
+    def _status(self, text: str) -> int:
+        return parse_status(text, as_float=bool(self.dialect.status_as_float))
+
     def _configure_timing(self, nplc: float, settle_s: float) -> None:
         if self.dialect.set_aperture_nplc is not None:
             self._write("set_aperture_nplc", nplc=float(nplc))
@@ -436,7 +446,7 @@ class ScpiSmu:
     def _in_compliance(self, values: dict[str, str], current_a: float) -> bool:
         bit = self.dialect.compliance_bit
         if bit is not None:
-            status = self._parse("measure", values["status"], parse_int)
+            status = self._parse("measure", values["status"], self._status)
             return bool((status >> bit) & 1)
         if self._limit_a is None or math.isnan(current_a):
             return False
