@@ -74,6 +74,9 @@ class ScpiSmu:
         self._recent: deque[str] = deque(maxlen=_RECENT)
         self._pending: list[str] = []  # commands held for the next message (see `batch`)
         self._batching = False
+        # A reply could not be parsed: the rest of it may still be on its way, so the input is
+        # flushed before the next query (never read as the answer to it, e.g. the output state).
+        self._unread = False
         # What the error queue held before this session sent anything (see `start_up`).
         self.stale_errors: list[tuple[int, str]] = []
 
@@ -215,6 +218,7 @@ class ScpiSmu:
         fields = flat_fields(reply)
         names = self.dialect.measure_fields
         if len(fields) != len(names):
+            self._unread = True
             detail = f"reply {reply!r} has {len(fields)} fields, the dialect expects {list(names)}"
             raise ReplyError(self.resource, self.dialect.measure, detail)
         values = dict(zip(names, fields, strict=True))
@@ -336,6 +340,7 @@ class ScpiSmu:
         return self._split(data, levels.size)
 
     def _fetch(self, binary: bool) -> np.ndarray:
+        self._flush_unread()
         fetch = self._with_pending(self.dialect.render("fetch"))
         if binary:
             big = bool(self.dialect.binary_big_endian)
@@ -347,6 +352,7 @@ class ScpiSmu:
     def _split(self, data: np.ndarray, points: int) -> Sweep:
         names = self.dialect.fetch_fields or ()
         if data.size != points * len(names):
+            self._unread = True
             detail = f"{data.size} values for {points} points of {list(names)}"
             raise ReplyError(self.resource, self.dialect.fetch, detail)
         table = {name: data[k :: len(names)].astype(float) for k, name in enumerate(names)}
@@ -413,12 +419,19 @@ class ScpiSmu:
         self._write(key)
 
     def _query(self, key: str) -> str:
+        self._flush_unread()
         return self.transport.query(self._with_pending(self.dialect.render(key)))
+
+    def _flush_unread(self) -> None:
+        if self._unread:
+            self._unread = False
+            self.transport.clear()
 
     def _parse(self, key: str, text: str, parser: Callable[[str], T]) -> T:
         try:
             return parser(text)
         except ReplyError as exc:
+            self._unread = True
             raise ReplyError(self.resource, self.dialect.template(key), exc.detail) from exc
 
     def _bool(self, text: str) -> bool:

@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 from instruments.dialect import DEFAULT_CLAMP_FRACTION, parse_dialect
-from instruments.errors import DialectError, ScpiError
+from instruments.errors import DialectError, ReplyError, ScpiError
 from instruments.smu import ScpiSmu
 from instruments.transport import open_visa
 from tests.instruments.plainsmu import PlainSmu
@@ -165,3 +165,27 @@ def test_without_a_switch_command_channel_1_is_the_terminals_and_2_is_refused(co
     assert responder.errors == []  # nothing was sent that the responder would refuse
     with pytest.raises(DialectError, match="select_channel"):
         smu.select_channel(2)
+
+
+def test_the_output_read_back_is_never_a_leftover_line(connect) -> None:
+    # The reading comes split over two lines (fields the dialect does not expect): the second
+    # line, "0", is still waiting when the output is read back. The output has in truth stayed
+    # on (this instrument ignores OUTP OFF), so a leftover "0" would be a lie.
+    responder = PlainSmu(ohms=10e3, single_bit=None)
+    real = responder.respond
+
+    def split_and_stuck(message: str) -> bytes | None:
+        if message == "MEAS?":
+            return b"1.000000E+00,1.000000E-04\n0\n"
+        if message == "OUTP OFF":
+            return None
+        return real(message)
+
+    responder.respond = split_and_stuck  # type: ignore[method-assign]
+    smu = connect(responder, _dialect())
+    smu.output(True)
+    responder.output_on = True
+    with pytest.raises(ReplyError):
+        smu.measure()
+    smu.output(False)
+    assert smu.output_is_on()  # the instrument's true answer, not the stale "0"
