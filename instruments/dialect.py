@@ -31,10 +31,11 @@ PLACEHOLDERS: dict[str, frozenset[str]] = {
     "select_channel": frozenset({"channel"}),
     "list_voltage": frozenset({"values", "count"}),
 }
-# Operations the driver cannot do without; every other SCPI key may be null (see the driver).
+# Operations the driver cannot do without (output_query: every ending reads the output back as
+# off); every other SCPI key may be null (see the driver).
 REQUIRED = frozenset(
     {"name", "identify", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
-    | {"measure", "measure_fields"}
+    | {"measure", "measure_fields", "output_query"}
 )
 MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "errors", "ignore"})
 FETCH_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
@@ -43,7 +44,17 @@ FETCH_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
 OPTIONAL_KEYS = frozenset(
     {"list_voltage", "initiate", "fetch", "fetch_fields", "binary_format", "binary_big_endian"}
     | {"ascii_format", "fixed_mode", "list_max_points", "max_message_bytes"}
+    | {"setup", "list_compliance_bit", "clamp_fraction"}
+    | {"boolean_words", "error_text_quoted", "status_as_float"}
 )
+# Without a status bit, a reading counts as clamped from this fraction of the programmed limit
+# up. A real source clamps within its limit accuracy, a few tenths of a percent (plus an offset)
+# below the limit as often as above it; 2 % below covers that with room (common practice, no
+# source). A dialect may set its own `clamp_fraction` from the instrument's limit accuracy.
+DEFAULT_CLAMP_FRACTION = 0.98
+# Keys sent at every device or segment: a reset inside one of them would switch the output off
+# (and drop the limit) in the middle of a device, so the loader refuses it: `setup` is the place.
+_ONCE_ONLY_KEYS = frozenset({"reset", "setup", "identify", "operation_complete", "next_error"})
 _LIST_KEYS = ("list_voltage", "initiate", "fetch", "fetch_fields")  # all given, or none
 
 
@@ -87,11 +98,52 @@ class Dialect:
     # Several commands may share one message (IEEE 488.2 program message units joined by ";"),
     # up to this many bytes; None: every command is a message of its own.
     max_message_bytes: int | None = None
+    # Commands sent once after connecting, before the output is read back as off (reset, clear
+    # status, terminals, sense mode, autozero); None: nothing beyond the output off.
+    setup: tuple[str, ...] | None = None
+    # Bit of the list status word (fetch field `status`) set for a clamped list reading; it may
+    # differ from `compliance_bit`, the bit of a single reading's status.
+    list_compliance_bit: int | None = None
+    # Without a status bit: clamped from this fraction of the limit up (DEFAULT_CLAMP_FRACTION).
+    clamp_fraction: float | None = None
+    # Reply styles: booleans answered as ON/OFF words too; error entries whose text may come
+    # without quotes; status words sent as floats (+8.000000E+00). None: the SCPI form only.
+    boolean_words: bool | None = None
+    error_text_quoted: bool | None = None
+    status_as_float: bool | None = None
     source: str = "<built in>"
+    key_lines: tuple[tuple[str, int], ...] = ()  # where each key stands in the file
 
     @property
     def has_lists(self) -> bool:
         return self.list_voltage is not None
+
+    @property
+    def fraction(self) -> float:
+        """The clamp fraction in use where no status bit tells a clamp."""
+        return DEFAULT_CLAMP_FRACTION if self.clamp_fraction is None else self.clamp_fraction
+
+    def line_of(self, key: str) -> int | None:
+        return dict(self.key_lines).get(key)
+
+    def channels_problem(self, channels: tuple[int, ...]) -> DialectError | None:
+        """Why this dialect cannot reach `channels` (None when it can): without a switch
+        command only channel 1, the device on the terminals themselves, can be measured."""
+        if self.select_channel is not None or all(c == 1 for c in channels):
+            return None
+        detail = f"is null, but the station uses channels {list(channels)}: give the switch "
+        detail += "command with {channel}, or use channel 1 alone (no switch matrix)"
+        return DialectError(self.source, "select_channel", self.line_of("select_channel"), detail)
+
+    def compliance_rules(self) -> dict[str, str]:
+        """How a clamped reading is told, for single and for list readings, in words."""
+        rule = f"clamp fraction: |I| >= {self.fraction:g} x the current limit"
+        single = self.compliance_bit
+        lists = self.list_compliance_bit
+        return {
+            "single": rule if single is None else f"status bit {single} of the reading",
+            "list": rule if lists is None else f"status bit {lists} of the list reading",
+        }
 
     def render(self, key: str, **values: object) -> str:
         """The SCPI text of `key` with its placeholders filled (floats as NR3, ints as NR1)."""
@@ -113,10 +165,12 @@ class Dialect:
         return text
 
 
-_ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name != "source")
+_ALL_KEYS = tuple(f.name for f in fields(Dialect) if f.name not in ("source", "key_lines"))
 _NON_TEXT = frozenset(
     {"name", "description", "measure_fields", "compliance_bit", "fetch_fields"}
     | {"binary_big_endian", "list_max_points", "max_message_bytes"}
+    | {"setup", "list_compliance_bit", "clamp_fraction"}
+    | {"boolean_words", "error_text_quoted", "status_as_float"}
 )
 _TEXT_KEYS = frozenset(_ALL_KEYS) - _NON_TEXT
 
@@ -162,7 +216,8 @@ def parse_dialect(text: str, source: str | Path = "<text>") -> Dialect:
     values = {key: _check_value(key, data.get(key), lines.get(key), source) for key in _ALL_KEYS}
     _check_measure(values, lines, source)
     _check_lists(values, lines, source)
-    return Dialect(**values, source=str(source))
+    _check_no_reset_per_device(values, lines, source)
+    return Dialect(**values, source=str(source), key_lines=tuple(lines.items()))
 
 
 def read_mapping(text: str, source: str | Path) -> tuple[dict[Any, Any], dict[str, int]]:
@@ -227,7 +282,7 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
         if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
             raise DialectError(source, key, line, "must be a list of field names")
         return tuple(value)
-    if key == "binary_big_endian":
+    if key in ("binary_big_endian", "boolean_words", "error_text_quoted", "status_as_float"):
         if not isinstance(value, bool):
             raise DialectError(source, key, line, f"must be true or false (got {value!r})")
         return value
@@ -235,7 +290,16 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
         if isinstance(value, bool) or not isinstance(value, int) or value < 1:
             raise DialectError(source, key, line, f"must be a whole number >= 1 (got {value!r})")
         return value
-    if key == "compliance_bit":
+    if key == "setup":
+        return _check_setup(value, line, source)
+    if key == "clamp_fraction":
+        number = value if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+        if number is None or not 0.5 <= number <= 1.0:
+            detail = f"must be a number from 0.5 to 1 (got {value!r}): the fraction of the "
+            detail += "current limit from which a reading counts as clamped"
+            raise DialectError(source, key, line, detail)
+        return float(number)
+    if key in ("compliance_bit", "list_compliance_bit"):
         if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 15:
             raise DialectError(source, key, line, f"must be a bit number 0..15 (got {value!r})")
         return value
@@ -244,6 +308,32 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
     if key in _TEXT_KEYS:
         _check_placeholders(key, value, line, source)
     return value
+
+
+def _check_setup(value: Any, line: int | None, source: str | Path) -> tuple[str, ...]:
+    if not isinstance(value, list) or not all(isinstance(v, str) and v.strip() for v in value):
+        raise DialectError(source, "setup", line, "must be a list of SCPI commands (text)")
+    for command in value:
+        if "{" in command or "}" in command:
+            raise DialectError(source, "setup", line, f"takes no placeholders (got {command!r})")
+    return tuple(value)
+
+
+def _units(text: str) -> list[str]:
+    """The program message units of a compound message, without the leading colons."""
+    return [unit.strip().lstrip(":").strip().upper() for unit in text.split(";")]
+
+
+def _check_no_reset_per_device(
+    values: dict[str, Any], lines: dict[str, int], source: str | Path
+) -> None:
+    resets = {"*RST", *_units(values["reset"])}
+    for key in sorted(_TEXT_KEYS - _ONCE_ONLY_KEYS):
+        text = values[key]
+        if text is not None and resets & set(_units(text)):
+            detail = f"resets the instrument ({text!r}): sent at every device, it would switch "
+            detail += "the output off mid-device; put the reset in `setup` (sent once)"
+            raise DialectError(source, key, lines.get(key), detail)
 
 
 def _check_placeholders(key: str, text: str, line: int | None, source: str | Path) -> None:
@@ -266,9 +356,23 @@ def _check_lists(values: dict[str, Any], lines: dict[str, int], source: str | Pa
     names = values["fetch_fields"]
     if names is not None:
         _check_field_names("fetch_fields", names, FETCH_FIELD_NAMES, lines, source)
+    _check_list_status(values, lines, source)
     if values["binary_format"] is not None and values["binary_big_endian"] is None:
         detail = "binary_big_endian must say the byte order that binary_format selects"
         raise DialectError(source, "binary_format", lines.get("binary_format"), detail)
+
+
+def _check_list_status(values: dict[str, Any], lines: dict[str, int], source: str | Path) -> None:
+    """A list status word is read with its own bit, never assumed to match a single reading's."""
+    has_status = "status" in (values["fetch_fields"] or ())
+    bit = values["list_compliance_bit"]
+    if has_status and bit is None:
+        detail = "fetch_fields has 'status': say which bit of it marks a clamped list reading "
+        detail += "in list_compliance_bit (it may differ from compliance_bit), or drop 'status'"
+        raise DialectError(source, "fetch_fields", lines.get("fetch_fields"), detail)
+    if bit is not None and not has_status:
+        detail = "list_compliance_bit is set but fetch_fields has no 'status' field"
+        raise DialectError(source, "list_compliance_bit", lines.get("list_compliance_bit"), detail)
 
 
 def _check_field_names(

@@ -21,6 +21,8 @@ SCPI_NAN = 9.91e37
 _NRF = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 _NR1 = re.compile(r"[+-]?\d+")
 _ERROR_ENTRY = re.compile(r'([+-]?\d+)\s*,\s*"((?:[^"]|"")*)"')
+# Some instruments send the entry's text without quotes: -113,Undefined header
+_BARE_ENTRY = re.compile(r'([+-]?\d+)\s*,\s*([^"]*)')
 
 
 def reply_error(text: str, expected: str) -> ReplyError:
@@ -82,12 +84,29 @@ def parse_int(text: str) -> int:
     return int(field)
 
 
-def parse_bool(text: str) -> bool:
-    """A boolean reply: SCPI answers boolean queries with 1 or 0."""
+def parse_bool(text: str, *, words: bool = False) -> bool:
+    """A boolean reply: SCPI answers boolean queries with 1 or 0; with `words`, ON and OFF
+    (any case) are taken as well, as some instruments answer."""
     field = text.strip()
+    if words and field.upper() in ("ON", "OFF"):
+        return field.upper() == "ON"
     if field not in ("0", "1"):
-        raise reply_error(text, "a boolean (1 or 0)")
+        raise reply_error(text, "a boolean (1 or 0, or ON/OFF)" if words else "a boolean (1 or 0)")
     return field == "1"
+
+
+def parse_status(text: str, *, as_float: bool = False) -> int:
+    """A status word: NR1, or with `as_float` a whole number in NR2/NR3 ('+8.000000E+00'), as
+    instruments that put the status inside a reading of floats send it."""
+    if not as_float:
+        return parse_int(text)
+    field = text.strip()
+    if not _NRF.fullmatch(field):
+        raise reply_error(text, "a status word (a whole number)")
+    number = float(field)
+    if not number.is_integer() or not 0 <= number < 2**32:
+        raise reply_error(text, "a status word (a whole number from 0 to 2**32 - 1)")
+    return int(number)
 
 
 def split_reply(text: str) -> list[list[str]]:
@@ -143,12 +162,16 @@ def flat_fields(text: str) -> list[str]:
     return [field for unit in split_reply(text) for field in unit]
 
 
-def parse_error_entry(text: str) -> tuple[int, str]:
-    """(code, text) from one SYSTem:ERRor? entry: '-113,"Undefined header;detail"'."""
+def parse_error_entry(text: str, *, quoted: bool = True) -> tuple[int, str]:
+    """(code, text) from one SYSTem:ERRor? entry: '-113,"Undefined header;detail"'; with
+    `quoted` False the text may also come bare: '-113,Undefined header'."""
     match = _ERROR_ENTRY.fullmatch(text.strip())
-    if not match:
+    if match:
+        return int(match.group(1)), match.group(2).replace('""', '"')
+    bare = None if quoted else _BARE_ENTRY.fullmatch(text.strip())
+    if not bare:
         raise reply_error(text, 'an error entry like -113,"Undefined header"')
-    return int(match.group(1)), match.group(2).replace('""', '"')
+    return int(bare.group(1)), bare.group(2).strip()
 
 
 def block_dtype(datatype: str, big_endian: bool) -> np.dtype:

@@ -29,6 +29,7 @@ from instruments.scpi import (
     parse_error_entry,
     parse_int,
     parse_number,
+    parse_status,
     special_values,
 )
 
@@ -37,8 +38,6 @@ T = TypeVar("T")
 
 MAX_ERROR_READS = 20  # a queue holds about 10 entries; more reads means it never empties
 _RECENT = 8  # commands kept to say, in an error message, what the instrument was sent
-# Without a status bit, a reading this close to the programmed limit counts as in compliance.
-_LIMIT_FRACTION = 0.999
 # A list run's reply takes as long as the run: the timeout grows by this much per point beyond
 # the settling and the aperture (the slowest line frequency, 50 Hz, is assumed for the aperture).
 _LIST_MARGIN_S = 0.01
@@ -75,6 +74,11 @@ class ScpiSmu:
         self._recent: deque[str] = deque(maxlen=_RECENT)
         self._pending: list[str] = []  # commands held for the next message (see `batch`)
         self._batching = False
+        # A reply could not be parsed: the rest of it may still be on its way, so the input is
+        # flushed before the next query (never read as the answer to it, e.g. the output state).
+        self._unread = False
+        # What the error queue held before this session sent anything (see `start_up`).
+        self.stale_errors: list[tuple[int, str]] = []
 
     @property
     def resource(self) -> str:
@@ -97,6 +101,22 @@ class ScpiSmu:
         if self.dialect.operation_complete is not None:
             self._parse("operation_complete", self._query("operation_complete"), parse_int)
         self._limit_a = None
+
+    def start_up(self) -> list[tuple[int, str]]:
+        """Once after connecting: empty the error queue of what was there before (returned and
+        kept in `stale_errors`, never raised: a power-on error is not this session's), send the
+        dialect's `setup` commands, then check those were accepted (ScpiError naming them)."""
+        self._flush_quietly()
+        self.stale_errors = self._drain_errors()[0]
+        self._recent.clear()  # a stale entry must not be blamed on what was sent before it
+        for command in self.dialect.setup or ():
+            self._recent.append(command)
+            self.transport.write(command)
+        if self.dialect.operation_complete is not None and self.dialect.setup:
+            self._parse("operation_complete", self._query("operation_complete"), parse_int)
+        self.check_errors()
+        self._limit_a = None  # a reset in the setup drops the limit, too
+        return self.stale_errors
 
     def safe_state(self) -> bool:
         """Output off, then level 0 V. Never raises (it runs in `finally` blocks).
@@ -182,7 +202,7 @@ class ScpiSmu:
         self.transport.write(message)
 
     def output_is_on(self) -> bool:
-        return self._parse("output_query", self._query("output_query"), parse_bool)
+        return self._parse("output_query", self._query("output_query"), self._bool)
 
     def measure(self) -> Reading:
         """One reading with one query; compliance from the status bit the dialect names.
@@ -198,6 +218,7 @@ class ScpiSmu:
         fields = flat_fields(reply)
         names = self.dialect.measure_fields
         if len(fields) != len(names):
+            self._unread = True
             detail = f"reply {reply!r} has {len(fields)} fields, the dialect expects {list(names)}"
             raise ReplyError(self.resource, self.dialect.measure, detail)
         values = dict(zip(names, fields, strict=True))
@@ -247,6 +268,11 @@ class ScpiSmu:
         a refused switch would otherwise measure the wrong device."""
         if isinstance(channel, bool) or not isinstance(channel, numbers.Integral) or channel < 1:
             raise ValueError(f"channel must be an integer >= 1 (got {channel!r})")
+        problem = self.dialect.channels_problem((int(channel),))
+        if problem is not None:
+            raise problem
+        if self.dialect.select_channel is None:
+            return  # no switch matrix: channel 1 is the device on the terminals
         with self.batch():
             self._write("select_channel", channel=int(channel))
             self.check_errors()
@@ -258,19 +284,11 @@ class ScpiSmu:
     def interlock_closed(self) -> bool:
         """True when the fixture lid is closed. A dialect without `interlock_query` raises
         DialectError: an interlock that cannot be read must never count as closed."""
-        return self._parse("interlock_query", self._query("interlock_query"), parse_bool)
+        return self._parse("interlock_query", self._query("interlock_query"), self._bool)
 
     def check_errors(self) -> None:
         """Drain the error queue; raise ScpiError for its first entry, all of them listed."""
-        entries: list[tuple[int, str]] = []
-        hint = None
-        for _ in range(MAX_ERROR_READS):
-            entry = self._parse("next_error", self._query("next_error"), parse_error_entry)
-            if entry[0] == 0:
-                break
-            entries.append(entry)
-        else:
-            hint = f"the error queue was not empty after {MAX_ERROR_READS} reads: reset it"
+        entries, hint = self._drain_errors()
         sent = " ; ".join(self._recent) or None  # what was sent since the last check
         self._recent.clear()
         if entries:
@@ -281,6 +299,16 @@ class ScpiSmu:
         self.transport.close()
 
     # -- internals -------------------------------------------------------------------------
+
+    def _drain_errors(self) -> tuple[list[tuple[int, str]], str | None]:
+        """Every entry of the error queue, read until "no error"; a hint if it never empties."""
+        entries: list[tuple[int, str]] = []
+        for _ in range(MAX_ERROR_READS):
+            entry = self._parse("next_error", self._query("next_error"), self._error_entry)
+            if entry[0] == 0:
+                return entries, None
+            entries.append(entry)
+        return entries, f"the error queue was not empty after {MAX_ERROR_READS} reads: reset it"
 
     def _point_by_point(self, levels: np.ndarray) -> Sweep:
         readings = []
@@ -312,6 +340,7 @@ class ScpiSmu:
         return self._split(data, levels.size)
 
     def _fetch(self, binary: bool) -> np.ndarray:
+        self._flush_unread()
         fetch = self._with_pending(self.dialect.render("fetch"))
         if binary:
             big = bool(self.dialect.binary_big_endian)
@@ -323,15 +352,17 @@ class ScpiSmu:
     def _split(self, data: np.ndarray, points: int) -> Sweep:
         names = self.dialect.fetch_fields or ()
         if data.size != points * len(names):
+            self._unread = True
             detail = f"{data.size} values for {points} points of {list(names)}"
             raise ReplyError(self.resource, self.dialect.fetch, detail)
         table = {name: data[k :: len(names)].astype(float) for k, name in enumerate(names)}
         voltage, current = (special_values(table[name]) for name in ("voltage", "current"))
-        if "status" in table and self.dialect.compliance_bit is not None:
+        bit = self.dialect.list_compliance_bit
+        if "status" in table and bit is not None:
             bits = table["status"].astype(np.int64)
-            limited = ((bits >> self.dialect.compliance_bit) & 1).astype(bool)
+            limited = ((bits >> bit) & 1).astype(bool)
         else:
-            limited = np.abs(current) >= _LIMIT_FRACTION * (self._limit_a or np.inf)
+            limited = np.abs(current) >= self.dialect.fraction * (self._limit_a or np.inf)
         return voltage, current, limited
 
     @contextmanager
@@ -388,13 +419,29 @@ class ScpiSmu:
         self._write(key)
 
     def _query(self, key: str) -> str:
+        self._flush_unread()
         return self.transport.query(self._with_pending(self.dialect.render(key)))
+
+    def _flush_unread(self) -> None:
+        if self._unread:
+            self._unread = False
+            self.transport.clear()
 
     def _parse(self, key: str, text: str, parser: Callable[[str], T]) -> T:
         try:
             return parser(text)
         except ReplyError as exc:
+            self._unread = True
             raise ReplyError(self.resource, self.dialect.template(key), exc.detail) from exc
+
+    def _bool(self, text: str) -> bool:
+        return parse_bool(text, words=bool(self.dialect.boolean_words))
+
+    def _error_entry(self, text: str) -> tuple[int, str]:
+        return parse_error_entry(text, quoted=self.dialect.error_text_quoted is not False)
+
+    def _status(self, text: str) -> int:
+        return parse_status(text, as_float=bool(self.dialect.status_as_float))
 
     def _configure_timing(self, nplc: float, settle_s: float) -> None:
         if self.dialect.set_aperture_nplc is not None:
@@ -412,11 +459,11 @@ class ScpiSmu:
     def _in_compliance(self, values: dict[str, str], current_a: float) -> bool:
         bit = self.dialect.compliance_bit
         if bit is not None:
-            status = self._parse("measure", values["status"], parse_int)
+            status = self._parse("measure", values["status"], self._status)
             return bool((status >> bit) & 1)
         if self._limit_a is None or math.isnan(current_a):
             return False
-        return abs(current_a) >= _LIMIT_FRACTION * self._limit_a
+        return abs(current_a) >= self.dialect.fraction * self._limit_a
 
 
 def _joined(commands: list[str]) -> str:

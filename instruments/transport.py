@@ -456,10 +456,25 @@ class VisaTransport:
                 hint = "reconnect to the instrument"
                 raise InstrumentError(self.resource, command, detail, hint=hint)
 
+    def _drain_other(self, command: str) -> None:
+        """Not a socket: a device clear where the interface has one; a serial line has none
+        in pyvisa-py (VI_ERROR_NSUP_OPER), so its input is read and dropped until quiet."""
+        try:
+            self._inst.clear()
+        except visa_errors.VisaIOError as exc:
+            if exc.error_code != constants.StatusCode.error_nonsupported_operation:
+                raise
+            limit_s = max(self._timeout_s, RESYNC_WAIT_S)
+            dropped = _read_until_quiet(self._inst, _QUIET_S, limit_s)
+            if self._probe_reply is not None:  # probe answers drained here are answered, too
+                lines = dropped.replace(b"\r", b"").split(b"\n")
+                answered = lines.count(self._probe_reply.encode())
+                self._probes_out = max(self._probes_out - answered, 0)
+
     def _drain(self, command: str) -> None:
         """Read and drop input until it has been quiet for 0.1 s (for at most RESYNC_WAIT_S)."""
         if self._socket is None:
-            self._inst.clear()
+            self._drain_other(command)
             return
         dropped = bytes(self._session._pending_buffer)
         self._session._pending_buffer.clear()
@@ -478,6 +493,25 @@ class VisaTransport:
         if self._probe_reply is not None:  # probe answers drained here are answered, too
             answered = dropped.replace(b"\r", b"").split(b"\n").count(self._probe_reply.encode())
             self._probes_out = max(self._probes_out - answered, 0)
+
+
+def _read_until_quiet(inst: Any, quiet_s: float, limit_s: float) -> bytes:
+    """Read lines until none comes within `quiet_s`, for at most `limit_s`; what was dropped."""
+    before = inst.timeout
+    inst.timeout = max(round(quiet_s * 1000), 1)
+    deadline = time.monotonic() + limit_s
+    dropped = b""
+    try:
+        while time.monotonic() < deadline:
+            try:
+                dropped += inst.read_raw()
+            except visa_errors.VisaIOError as exc:
+                if exc.error_code == constants.StatusCode.error_timeout:
+                    break
+                raise
+    finally:
+        inst.timeout = before
+    return dropped
 
 
 def _pyvisa_py_session(inst: Any) -> Any:

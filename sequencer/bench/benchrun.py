@@ -182,12 +182,15 @@ def on_bench(
     """
     # Start-up speed: run.shutdown imports `instruments`, which loads pyvisa.
     from sequencer.run.shutdown import make_safe, require_interlock, start_safe
+    from sequencer.run.startnotes import instrument_notes
 
     guard = bench.guard = make_guard(recipe, conn.smu)
     with gate.held():
         try:
             start_safe(conn.smu)  # the first commands after *IDN?
             announce(f"instrument: {conn.identity} at {conn.resource}")
+            for line in instrument_notes(conn.smu):
+                announce(line)
             if is_hazardous(plan, recipe.effective_limits):
                 require_interlock(conn.smu, plan.peak_voltage_v)
             with gate.raising():

@@ -95,6 +95,7 @@ def measure_on_benches(
         store.set_identity(
             "; ".join(c.resource for c in conns), "; ".join(c.identity for c in conns)
         )
+        _note_all(store, specs, conns)
         lanes = [
             Lane(spec.name, conn.smu, guard, spec.channels)
             for spec, conn, guard in zip(specs, conns, guards, strict=True)
@@ -117,8 +118,16 @@ def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection
     )
 
 
+def _note_all(store: RunStore, specs: list[InstrumentSpec], conns: list[Connection]) -> None:
+    from sequencer.run.startnotes import instrument_record  # start-up speed (pyvisa)
+
+    for spec, conn in zip(specs, conns, strict=True):
+        store.note_instrument(spec.name, instrument_record(conn.smu))
+
+
 def _start_all_safe(recipe, plan, conns, specs, announce: Callable[[str], None]) -> None:
     from sequencer.run.shutdown import require_interlock, start_safe  # start-up speed (pyvisa)
+    from sequencer.run.startnotes import instrument_notes
 
     for spec, conn in zip(specs, conns, strict=True):
         start_safe(conn.smu)  # the first commands after *IDN?
@@ -126,6 +135,8 @@ def _start_all_safe(recipe, plan, conns, specs, announce: Callable[[str], None])
             f"instrument {spec.name}: {conn.identity} at {conn.resource}, channels "
             f"{_channels(spec.channels)}"
         )
+        for line in instrument_notes(conn.smu):
+            announce(line)
     if is_hazardous(plan, recipe.effective_limits):
         for conn in conns:
             require_interlock(conn.smu, plan.peak_voltage_v)

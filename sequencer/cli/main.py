@@ -132,9 +132,10 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)
+    prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))
-    console.print(plan_summary(recipe, plan, predict(recipe, plan)), soft_wrap=True)
+    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     console.print(f"{recipe.file}: valid; within the limits of station {recipe.station.name}")
     return 0
 
@@ -160,8 +161,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
+    prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
     _cautions(console, recipe, plan)
-    prediction = predict(recipe, plan)
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or _default_folder(recipe.lot, console)
     repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
@@ -269,6 +270,7 @@ def _finish(console: Console, store, status: str, ended: str) -> None:
 def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect  # start-up speed: `instruments` loads pyvisa
+    from sequencer.run.startnotes import instrument_record  # start-up speed, as above
 
     def chamber_left(line):
         bench.chamber = line
@@ -293,6 +295,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
 
         def measure(guard):
             store.set_identity(conn.resource, conn.identity)
+            store.note_instrument("instrument", instrument_record(conn.smu))
             if part_by_part:
                 tester = PartBench(recipe, plan, conn.smu, store, guard)
                 write, sim = conn.smu.transport.write, resource == "sim"

@@ -142,6 +142,7 @@ def predict(recipe, plan: Plan, lanes: Sequence[int] | None = None) -> Estimate:
         dialect = load_dialect(station.dialect)
     except DialectError as exc:  # found by `check` already, not first by `run`
         raise RecipeError(station.file, None, "instrument.dialect", f"is unusable: {exc}") from None
+    _check_channels(station, plan, load_dialect, DialectError)
     guard = Guard(recipe.effective_limits, lambda: True, no_clamp_steps(recipe.steps))
     if lanes is None:
         wanted = set(plan.channels)
@@ -155,6 +156,22 @@ def predict(recipe, plan: Plan, lanes: Sequence[int] | None = None) -> Estimate:
     return estimate(
         plan, guard, lanes, timing, lists=dialect.has_lists, settles=settles, joined=joined
     )
+
+
+def _check_channels(station, plan: Plan, load_dialect, DialectError) -> None:
+    """A dialect without a switch command cannot reach a channel beyond 1: refused here, where
+    `check` and `run` both pass, before anything is opened (one line naming the dialect key)."""
+    wanted = set(plan.channels)
+    pairs = [(s.dialect, wanted & set(s.channels)) for s in station.instruments] or [
+        (station.dialect, wanted)
+    ]
+    for dialect_name, channels in pairs:
+        try:
+            problem = load_dialect(dialect_name).channels_problem(tuple(sorted(channels)))
+        except DialectError as exc:  # a further instrument's dialect: refused like the first
+            raise RecipeError(exc.file, exc.line, exc.key or "", exc.detail) from None
+        if problem is not None:  # the dialect's own file:line, key and what to do
+            raise RecipeError(problem.file, problem.line, "select_channel", problem.detail)
 
 
 def describe(e: Estimate) -> str:

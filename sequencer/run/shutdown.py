@@ -39,9 +39,14 @@ class Shutdown:
         )
 
 
-def start_safe(smu: ScpiSmu) -> None:
-    """Output off and level 0 V before anything else is sent, then read the output state back;
-    a bench whose output will not read OFF is refused."""
+def start_safe(smu: ScpiSmu) -> list[tuple[int, str]]:
+    """Output off and level 0 V before anything else is sent; then the error queue emptied (its
+    stale entries returned, for the screen and the run record), the dialect's setup sent, off
+    and 0 V once more (after whatever the setup did) and the output state read back. A bench
+    whose output will not read OFF is refused."""
+    smu.output(False)
+    smu.set_voltage(0.0)
+    stale = smu.start_up()
     smu.output(False)
     smu.set_voltage(0.0)
     if smu.output_is_on():
@@ -49,6 +54,7 @@ def start_safe(smu: ScpiSmu) -> None:
             f"the output of {smu.resource} still reads ON after it was switched off; "
             "check the instrument before running"
         )
+    return stale
 
 
 def require_interlock(smu: ScpiSmu, peak_v: float) -> None:

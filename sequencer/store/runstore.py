@@ -305,6 +305,12 @@ class RunStore:
         self._write_meta(lambda: dbase.update_session(self.db, self.run_id, self.session, **ids))
         self._write_meta(lambda: write_manifest(self.folder, self.manifest))
 
+    def note_instrument(self, name: str, facts: dict[str, Any]) -> None:
+        """What the start found out about instrument `name` (its dialect, how a clamp is told,
+        the error entries left from before): kept in the session's record of the manifest."""
+        self.manifest["sessions"][-1].setdefault("instruments", {})[name] = facts
+        self._write_meta(lambda: write_manifest(self.folder, self.manifest))
+
     def finish(self, status: str, finished: str, identity: str = "", ended: str = "") -> str:
         """Record the end of this session and close the folder (the lock goes last). `ended`:
         how the session ended, in words (the last line on screen). Never raises: it runs on

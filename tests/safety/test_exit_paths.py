@@ -5,6 +5,7 @@ second signal from cutting a shutdown short."""
 
 from __future__ import annotations
 
+import json
 import signal
 
 import pytest
@@ -29,7 +30,11 @@ def test_the_instrument_is_made_safe_before_anything_else(tmp_path, monkeypatch)
     assert bench.instrument.smu.output_on
     code, text, _ = run_loop(tmp_path, monkeypatch, bench)
     assert code == 0, text
-    assert bench.sent[:4] == ["*IDN?", "OUTP OFF", "SOUR:VOLT 0.000000E+00", "OUTP?"]
+    off = ["OUTP OFF", "SOUR:VOLT 0.000000E+00"]
+    # Off first; then the stale errors emptied, the dialect's setup (checked), off once more
+    # after whatever the setup did, and only then the read-back.
+    setup = ["SYST:ERR?", "*RST", "*CLS", "*OPC?", "SYST:ERR?"]
+    assert bench.sent[:11] == ["*IDN?", *off, *setup, *off, "OUTP?"]
     assert_output_off(bench)
 
 
@@ -177,3 +182,20 @@ def test_inside_raising_a_held_signal_raises_at_once():
             pytest.fail("the measurement must not start")  # pragma: no cover
         gate.handler(signal.SIGINT, None)  # during the shutdown: ignored
     assert gate.raised and len(gate.received) == 2
+
+
+def test_an_error_left_from_before_the_run_is_reported_and_the_run_goes_on(tmp_path, monkeypatch):
+    bench = loop_bench()
+    bench.session.handle("NOT:A:COMMAND")  # someone before us left an error in the queue
+    code, text, rows = run_loop(tmp_path, monkeypatch, bench)
+    assert code == 0, text
+    assert "held entries from before this session" in text
+    assert len(rows) == 3
+    manifest = json.loads((tmp_path / "run" / "manifest.json").read_text())
+    record = manifest["sessions"][-1]["instruments"]["instrument"]
+    assert record["errors_at_start"] and record["errors_at_start"][0][0] == -113
+    assert record["compliance"] == {
+        "single": "status bit 1 of the reading",
+        "list": "status bit 1 of the list reading",
+    }
+    assert_output_off(bench)
