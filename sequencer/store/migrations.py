@@ -14,6 +14,7 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager, suppress
 
 from sequencer.model.errors import StoreError
+from sequencer.model.judgesettings import FIGURES
 
 # Version 1, as the first release wrote it (four figures, one device per lot position).
 V1 = """
@@ -113,7 +114,22 @@ def _v5(db: sqlite3.Connection) -> None:
     db.execute("ALTER TABLE session ADD COLUMN ended TEXT")
 
 
-MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_v1, _v2, _v3, _v4, _v5)
+def _coverage_factors(db: sqlite3.Connection) -> None:
+    """Per figure the coverage factor k of U = k u and the effective degrees of freedom of u
+    (JCGM 100:2008 G.4); NULL in devices judged before (they used the recipe's fixed k)."""
+    for name in FIGURES:
+        db.execute(f"ALTER TABLE device ADD COLUMN {name}_k REAL")
+        db.execute(f"ALTER TABLE device ADD COLUMN {name}_dof REAL")
+
+
+MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (
+    _v1,
+    _v2,
+    _v3,
+    _v4,
+    _v5,
+    _coverage_factors,
+)
 LATEST = len(MIGRATIONS)
 
 
