@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import cached_property
 from typing import Any, TypeVar
 
@@ -239,8 +239,9 @@ def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
     out = FigureArrays.empty(n)
     with np.errstate(divide="ignore", invalid="ignore"):
         out.shape, out.shape_value, noise = classify(r, s)
-        zt_fit, zt_miss = _fit_at(r, s.test_voltage_v, s.slope_window_v)
-        zk_fit, zk_miss = _fit_at(r, s.knee_voltage_v, s.knee_window)
+        quantum = _quantum(r)
+        zt_fit, zt_miss = _fit_at(r, s.test_voltage_v, s.slope_window_v, quantum)
+        zk_fit, zk_miss = _fit_at(r, s.knee_voltage_v, s.knee_window, quantum)
         zt, zk = ("dynamic_impedance", zt_fit, zt_miss), ("knee_impedance", zk_fit, zk_miss)
         _impedances(out, s, zt, zk)
         ip_parts = _regulated_current(out, r, s, zt_fit, zt_miss)
@@ -276,11 +277,37 @@ def _blank_dead(out: FigureArrays) -> None:
             out.k[name][dead] = np.nan
 
 
-def _fit_at(r: Readings, centre_v: float, width_v: float) -> tuple[Fit, np.ndarray]:
+def _quantum(r: Readings) -> np.ndarray:
+    """Per row, the readings' own resolution: the smallest step between neighbouring forward
+    sweep readings that differ at all (NaN when none do)."""
+    i, good = r.take(r.layout.sweep, "current", "good")
+    step = np.abs(np.diff(i, axis=1))
+    pair = good[:, 1:] & good[:, :-1]
+    usable = pair & (step > 0)
+    q = np.minimum.reduce(np.where(usable, step, np.inf), axis=1, initial=np.inf)
+    # Only readings that look rounded count: some neighbours equal, every step a whole number
+    # of q. A smooth curve's smallest step is a slope, not a resolution.
+    multiple = step / q[:, None]
+    whole = np.abs(multiple - np.round(multiple)) <= 1e-3
+    rounded = np.logical_or.reduce(pair & (step == 0), axis=1)
+    rounded &= np.logical_and.reduce(whole | ~usable, axis=1) & np.isfinite(q)
+    return np.where(rounded, q, np.nan)
+
+
+def _fit_at(
+    r: Readings, centre_v: float, width_v: float, quantum: np.ndarray
+) -> tuple[Fit, np.ndarray]:
     n = r.voltage.shape[0]
     cols = r.layout.window(centre_v, width_v)
     v, i, good, clamped = r.take(cols)
     fit = window_fit(v, i, good)
+    # Readings rounded to a step q carry a rectangular error of u = q / sqrt 12 each [JCGM
+    # 100:2008 F.2.2.1]; in the slope it is u / sqrt(Sxx). Without it, equal readings give a
+    # slope of 0 +/- 0 (a "negative beyond its noise" slope) where a bound is all there is.
+    resolution = np.fmax(quantum, 0.0) / np.sqrt(12.0) / np.sqrt(fit.sxx)
+    fit = replace(
+        fit, stderr=np.where(np.isnan(fit.slope), np.nan, combine(fit.stderr, resolution))
+    )
     if not r.layout.covers(centre_v):
         return fit, np.full(n, MISS_UNCOVERED, np.int8)
     miss = np.zeros(n, np.int8)

@@ -74,3 +74,21 @@ def test_the_gain_error_shared_by_ip_and_the_knee_current_cancels_in_vl():
     slope = np.interp(plain.value, v[1:], np.diff(exact) / np.diff(v))
     gain_part = 0.8 * 1.746e-3 * 0.01 / math.sqrt(3) / slope
     assert plain.uncertainty < gain_part / 5
+
+
+def test_equal_readings_in_the_slope_window_give_an_at_least_bound_not_a_failure():
+    # A 5.5 MOhm part read with about 1 uA resolution (2^-20 A: the rounded readings are exact
+    # binary numbers, so the fit's residuals are exactly 0): every reading around 25 V is the
+    # same number. The slope is hidden below the resolution: ZT is "at least" a bound set by
+    # the resolution (u = q / sqrt 12 per reading [JCGM 100:2008 F.2.2.1]), never a failure.
+    q = 2.0**-20
+    v = np.arange(0, 30.01, 0.5)
+    read = np.round((curve(v) + v / 5.5e6) / q) * q
+    window = np.abs(v - 25) <= 1
+    assert np.ptp(read[window]) == 0  # (the case in point)
+    j = judge_curve(Curve.from_sweep("d", v, read), JudgeSettings())
+    zt = j.figures["dynamic_impedance"]
+    # The bound 1 / (t(3) q / sqrt(12 Sxx)), Sxx = 2.5 V^2 [computed by hand]: about 1.8 MOhm.
+    bound = 1 / (student.ppf(0.975, 3) * q / math.sqrt(12 * 2.5))
+    assert zt.at_least and zt.value == pytest.approx(bound, rel=1e-6)
+    assert j.verdict == "pass", j.reasons
