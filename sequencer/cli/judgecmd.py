@@ -74,15 +74,19 @@ def heading(j: Judgement, title: str) -> str:
 
 def figure_table(j: Judgement) -> Table:
     table = Table()
-    for column in ("figure", "value", "u (k=1)"):
+    for column in ("figure", "value", "u (k=1)", "U = k u", "k", "dof"):
         table.add_column(column, justify="left" if column == "figure" else "right")
     for name in FIGURES:
         fig = j.figures[name]
         if not fig.known:
             continue
         value = ("≥ " if fig.at_least else "") + show(name, fig.value)
-        u = "—" if math.isnan(fig.uncertainty) else show(name, fig.uncertainty)
-        table.add_row(FIGURE_INFO[name][2], value, u)
+        known = not math.isnan(fig.uncertainty)
+        u = show(name, fig.uncertainty) if known else "—"
+        big_u = show(name, fig.expanded) if known else "—"
+        k = f"{fig.coverage_factor:.3g}" if known else "—"
+        dof = "—" if not known else "> 1000" if fig.dof > 1000 else f"{fig.dof:.1f}"
+        table.add_row(FIGURE_INFO[name][2], value, u, big_u, k, dof)
     return table
 
 

@@ -29,6 +29,7 @@ from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
 from sequencer.cli.view import plan_summary, plan_table, showing_devices, summary_table
 from sequencer.model.errors import CcbenchError, RecipeError, RunError
+from sequencer.plan import judgecover
 from sequencer.plan.make import make_plan
 from sequencer.recipe.fields import MAX_TEXT
 from sequencer.recipe.load import Recipe, load_recipe
@@ -132,6 +133,11 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)
+    problem = judgecover.unmeasured(plan, recipe.judge)
+    if problem is not None:
+        raise RecipeError(recipe.file, None, *problem)
+    for warning in judgecover.clamping(plan, recipe.judge):
+        console.print(f"[yellow]ccbench: warning:[/] {recipe.file}: {warning}", soft_wrap=True)
     prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))

@@ -106,7 +106,8 @@ def decide(f: FigureArrays, s: JudgeSettings) -> Decisions:
         at_least = np.array([f.at_least[name] for name in names])
         if s.decision == "guarded":
             u = np.array([f.u[name] for name in names])
-            big_u = np.where(np.isnan(u), np.inf, s.coverage_factor * u)
+            k = s.coverage_factor or np.array([f.k[name] for name in names])
+            big_u = np.where(np.isnan(u * k), np.inf, k * u)
         else:
             big_u = np.zeros(value.shape)
         codes = _status(value, at_least, big_u, low, high)

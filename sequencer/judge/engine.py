@@ -47,10 +47,18 @@ class Figure:
     value: float
     uncertainty: float = math.nan
     at_least: bool = False
+    coverage_factor: float = math.nan  # k of U = k u (Student's t at dof, or the recipe's k)
+    dof: float = math.nan  # effective degrees of freedom of u (inf: Type B only)
 
     @property
     def known(self) -> bool:
         return not math.isnan(self.value)
+
+    @property
+    def expanded(self) -> float:
+        """U = k u: the half-width of the interval that holds the true value with the
+        recipe's coverage probability (NaN where u is unknown)."""
+        return self.coverage_factor * self.uncertainty
 
 
 MISSING = Figure(math.nan)
@@ -106,7 +114,13 @@ class LotResult:
         """The judgement of row k, in words."""
         f, d, s = self.figures, self.decisions, self.settings
         figs = {
-            name: Figure(float(f.value[name][k]), float(f.u[name][k]), bool(f.at_least[name][k]))
+            name: Figure(
+                float(f.value[name][k]),
+                float(f.u[name][k]),
+                bool(f.at_least[name][k]),
+                float(f.k[name][k]),
+                float(f.nu[name][k]) if not math.isnan(f.u[name][k]) else math.nan,
+            )
             for name in FIGURES
         }
         failing, guard = _reasons(self, k)

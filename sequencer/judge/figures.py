@@ -13,12 +13,13 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import cached_property
 from typing import Any, TypeVar
 
 import numpy as np
 
+from sequencer.judge.coverage import coverage_factor, effective_dof
 from sequencer.judge.knee import crossing
 from sequencer.judge.shape import classify
 from sequencer.judge.slopes import Fit, impedance, masked_mean, window_fit
@@ -39,7 +40,7 @@ MISS_NONFINITE = 8  # only non-finite readings there
 
 DEAD = np.array([kind in ("open", "short") for kind in SHAPES])  # shape code -> no figures
 DEAD.flags.writeable = False
-IMPEDANCE_FIELDS = ("slope", "stderr", "x_mean", "y_mean", "x_min", "x_max")  # of a Fit
+IMPEDANCE_FIELDS = ("slope", "stderr", "points", "x_mean", "y_mean", "x_min", "x_max")  # of a Fit
 
 
 SHARED_LAYOUTS = 64
@@ -181,7 +182,8 @@ def _as_slice(cols: np.ndarray) -> slice | np.ndarray:
 
 @dataclass
 class FigureArrays:
-    """Per figure: value, standard uncertainty, lower-bound flag, missing code; and the shape."""
+    """Per figure: value, standard uncertainty, lower-bound flag, missing code, effective
+    degrees of freedom and coverage factor (U = k u); and the shape."""
 
     value: dict[str, np.ndarray]
     u: dict[str, np.ndarray]
@@ -190,6 +192,12 @@ class FigureArrays:
     shape: np.ndarray  # index into SHAPES
     shape_value: np.ndarray  # the number the shape's reason quotes
     knee_reference_a: np.ndarray
+    nu: dict[str, np.ndarray]
+    k: dict[str, np.ndarray]
+
+    def expanded(self, name: str) -> np.ndarray:
+        """U = k u (NaN where u or k is unknown)."""
+        return self.k[name] * self.u[name]
 
     @classmethod
     def empty(cls, n: int) -> FigureArrays:
@@ -203,11 +211,15 @@ class FigureArrays:
             np.zeros(n, np.int8),
             _nan(n),
             _nan(n),
+            dict(zip(FIGURES, np.full(rows, np.inf), strict=True)),
+            dict(zip(FIGURES, _nan(rows), strict=True)),
         )
 
-    def put(self, name: str, value, u, at_least=None, missing=None) -> None:
+    def put(self, name: str, value, u, at_least=None, missing=None, nu=None) -> None:
         self.value[name] = np.asarray(value, float)
         self.u[name] = np.asarray(u, float)
+        if nu is not None:
+            self.nu[name] = np.broadcast_to(np.asarray(nu, float), self.u[name].shape).copy()
         if at_least is not None:
             self.at_least[name] = np.asarray(at_least, bool)
         if missing is not None:
@@ -227,18 +239,30 @@ def compute(r: Readings, s: JudgeSettings) -> FigureArrays:
     out = FigureArrays.empty(n)
     with np.errstate(divide="ignore", invalid="ignore"):
         out.shape, out.shape_value, noise = classify(r, s)
-        zt_fit, zt_miss = _fit_at(r, s.test_voltage_v, s.slope_window_v)
-        zk_fit, zk_miss = _fit_at(r, s.knee_voltage_v, s.knee_window)
+        quantum = _quantum(r)
+        zt_fit, zt_miss = _fit_at(r, s.test_voltage_v, s.slope_window_v, quantum)
+        zk_fit, zk_miss = _fit_at(r, s.knee_voltage_v, s.knee_window, quantum)
         zt, zk = ("dynamic_impedance", zt_fit, zt_miss), ("knee_impedance", zk_fit, zk_miss)
         _impedances(out, s, zt, zk)
-        _regulated_current(out, r, s, zt_fit, zt_miss)
-        _limiting_voltage(out, r, s, noise)
+        ip_parts = _regulated_current(out, r, s, zt_fit, zt_miss)
+        _limiting_voltage(out, r, s, noise, ip_parts)
         if s.reverse_voltage_v is not None:
             _at_level(out, r, s, "reverse_current", s.reverse_voltage_v)
         if s.peak_voltage_v is not None:
             _at_level(out, r, s, "peak_current", s.peak_voltage_v)
+        _coverage(out, s)
     _blank_dead(out)
     return out
+
+
+def _coverage(out: FigureArrays, s: JudgeSettings) -> None:
+    """k per figure: fixed when the recipe names one, else Student's t at nu_eff."""
+    for name in FIGURES:
+        if s.coverage_factor is not None:
+            k = np.full(out.u[name].shape, s.coverage_factor)
+        else:
+            k = coverage_factor(s.coverage_probability, out.nu[name])
+        out.k[name] = np.where(np.isnan(out.u[name]), np.nan, k)
 
 
 def _blank_dead(out: FigureArrays) -> None:
@@ -250,13 +274,40 @@ def _blank_dead(out: FigureArrays) -> None:
             out.u[name][dead] = np.nan
             out.at_least[name][dead] = False
             out.missing[name][dead] = 0
+            out.k[name][dead] = np.nan
 
 
-def _fit_at(r: Readings, centre_v: float, width_v: float) -> tuple[Fit, np.ndarray]:
+def _quantum(r: Readings) -> np.ndarray:
+    """Per row, the readings' own resolution: the smallest step between neighbouring forward
+    sweep readings that differ at all (NaN when none do)."""
+    i, good = r.take(r.layout.sweep, "current", "good")
+    step = np.abs(np.diff(i, axis=1))
+    pair = good[:, 1:] & good[:, :-1]
+    usable = pair & (step > 0)
+    q = np.minimum.reduce(np.where(usable, step, np.inf), axis=1, initial=np.inf)
+    # Only readings that look rounded count: some neighbours equal, every step a whole number
+    # of q. A smooth curve's smallest step is a slope, not a resolution.
+    multiple = step / q[:, None]
+    whole = np.abs(multiple - np.round(multiple)) <= 1e-3
+    rounded = np.logical_or.reduce(pair & (step == 0), axis=1)
+    rounded &= np.logical_and.reduce(whole | ~usable, axis=1) & np.isfinite(q)
+    return np.where(rounded, q, np.nan)
+
+
+def _fit_at(
+    r: Readings, centre_v: float, width_v: float, quantum: np.ndarray
+) -> tuple[Fit, np.ndarray]:
     n = r.voltage.shape[0]
     cols = r.layout.window(centre_v, width_v)
     v, i, good, clamped = r.take(cols)
     fit = window_fit(v, i, good)
+    # Readings rounded to a step q carry a rectangular error of u = q / sqrt 12 each [JCGM
+    # 100:2008 F.2.2.1]; in the slope it is u / sqrt(Sxx). Without it, equal readings give a
+    # slope of 0 +/- 0 (a "negative beyond its noise" slope) where a bound is all there is.
+    resolution = np.fmax(quantum, 0.0) / np.sqrt(12.0) / np.sqrt(fit.sxx)
+    fit = replace(
+        fit, stderr=np.where(np.isnan(fit.slope), np.nan, combine(fit.stderr, resolution))
+    )
     if not r.layout.covers(centre_v):
         return fit, np.full(n, MISS_UNCOVERED, np.int8)
     miss = np.zeros(n, np.int8)
@@ -269,21 +320,32 @@ def _impedances(out: FigureArrays, s: JudgeSettings, *both: tuple[str, Fit, np.n
     """Both impedances from their fits at once, a row each: the same arithmetic on the same
     numbers, half the calls (what one device judged alone pays for)."""
     rows = {item: np.array([getattr(f, item) for _, f, _ in both]) for item in IMPEDANCE_FIELDS}
-    fit = Fit(**rows, points=None, sxx=None, resid_sd=None)  # (what an impedance needs)
+    fit = Fit(**rows, sxx=None, resid_sd=None)  # (what an impedance needs)
     miss = np.array([m for _, _, m in both])
-    z = impedance(fit, s.coverage_factor)
+    nu_fit = fit.points - 2.0  # the slope's standard error has n - 2 degrees of freedom
+    z = impedance(fit, _k(s, nu_fit))
     acc = s.accuracy
     low_i, high_i = fit.at(fit.x_min), fit.at(fit.x_max)
     rel_v = acc.voltage.u_difference(fit.x_min, fit.x_max) / (fit.x_max - fit.x_min)
     rel_i = acc.current.u_difference(low_i, high_i) / np.abs(high_i - low_i)
     u = z.value * combine(z.rel_type_a, rel_v, rel_i)
+    # The instrument's parts are Type B from stated limits: infinite degrees of freedom.
+    type_b = z.value * combine(rel_v, rel_i)
+    nu = effective_dof([(z.value * z.rel_type_a, nu_fit), (type_b, np.inf)])
     bad = miss > 0
     missing = np.where(bad, miss, np.where(z.negative, MISS_NEGATIVE, 0))
     value = np.where(bad, np.nan, z.value)
     u = np.where(bad | z.at_least, np.nan, u)
     at_least = z.at_least & ~bad
     for row, (name, _, _) in enumerate(both):
-        out.put(name, value[row], u[row], at_least[row], missing[row])
+        out.put(name, value[row], u[row], at_least[row], missing[row], nu[row])
+
+
+def _k(s: JudgeSettings, nu: np.ndarray) -> np.ndarray:
+    """The coverage factor the recipe asks for at these degrees of freedom."""
+    if s.coverage_factor is not None:
+        return np.full(np.shape(nu), s.coverage_factor)
+    return coverage_factor(s.coverage_probability, nu)
 
 
 def _regulated_current(out, r: Readings, s: JudgeSettings, fit: Fit, fit_miss: np.ndarray):
@@ -292,12 +354,28 @@ def _regulated_current(out, r: Readings, s: JudgeSettings, fit: Fit, fit_miss: n
     slope = np.where(out.missing["dynamic_impedance"] == 0, np.maximum(fit.slope, 0.0), 0.0)
     u_from_v = slope * _u_volts(s, vt)  # a voltage error moves the current by dI/dV
     if spots.size:
-        mean, type_a, miss, _ = _mean_of(*r.take(spots))
+        mean, type_a, miss, _, count = _mean_of(*r.take(spots), with_count=True)
+        nu_a = count - 1.0
     else:
         mean = np.where(fit_miss > 0, np.nan, fit.at(vt))
         type_a, miss = fit.u_at(vt), fit_miss
-    u = combine(type_a, s.accuracy.current.u(mean), u_from_v)
-    out.put("regulated_current", mean, np.where(miss > 0, np.nan, u), missing=miss)
+        nu_a = fit.points - 2.0
+    u_b = combine(s.accuracy.current.u(mean), u_from_v)
+    u = combine(type_a, u_b)
+    nu = effective_dof([(type_a, nu_a), (u_b, np.inf)])
+    out.put("regulated_current", mean, np.where(miss > 0, np.nan, u), missing=miss, nu=nu)
+    return IpParts(mean, type_a, nu_a, u_from_v)
+
+
+@dataclass(frozen=True, eq=False)
+class IpParts:
+    """IP's input quantities, for the figures that follow it (the knee reference): its gain
+    and offset errors are the instrument's, shared with readings on the same range."""
+
+    mean: np.ndarray
+    type_a: np.ndarray
+    nu_a: np.ndarray
+    u_from_v: np.ndarray
 
 
 def _any(mask: np.ndarray) -> np.ndarray:
@@ -305,22 +383,24 @@ def _any(mask: np.ndarray) -> np.ndarray:
     return np.logical_or.reduce(mask, axis=1)
 
 
-def _mean_of(v, i, good, clamped, power: bool = False):
+def _mean_of(v, i, good, clamped, power: bool = False, with_count: bool = False):
     """Mean of the good readings given; Type A u = s/sqrt(n) (0 for one reading); and, when
-    asked for, the mean power (None otherwise)."""
+    asked for, the mean power (None otherwise) and the count."""
     count, mean, sd = masked_mean(i, good)
     type_a = np.where(count >= 2, sd / np.sqrt(count), 0.0)
     miss = np.where(count > 0, 0, np.where(_any(clamped), MISS_COMPLIANCE, MISS_NONFINITE))
     watts = np.add.reduce(np.where(good, v * i, 0.0), axis=1) / count if power else None
-    return np.where(count > 0, mean, np.nan), type_a, miss.astype(np.int8), watts
+    found = np.where(count > 0, mean, np.nan), type_a, miss.astype(np.int8), watts
+    return (*found, count) if with_count else found
 
 
-def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: np.ndarray):
+def _limiting_voltage(
+    out: FigureArrays, r: Readings, s: JudgeSettings, noise: np.ndarray, ip: IpParts
+):
     n = r.voltage.shape[0]
     fixed = s.knee_reference_a()
-    ip, u_ip = out.value["regulated_current"], out.u["regulated_current"]
-    ref = np.full(n, fixed) if fixed is not None else s.knee_fraction * ip
-    u_ref = np.zeros(n) if fixed is not None else s.knee_fraction * u_ip
+    measured = s.knee_fraction * out.value["regulated_current"]
+    ref = np.full(n, fixed) if fixed is not None else measured
     v, i, good = r.take(r.layout.sweep, "voltage", "current", "good")
     if v.shape[1] == 0:
         out.put("limiting_voltage", np.full(n, np.nan), np.full(n, np.nan), missing=[1] * n)
@@ -333,12 +413,48 @@ def _limiting_voltage(out: FigureArrays, r: Readings, s: JudgeSettings, noise: n
     np.copyto(miss, MISS_NEVER, where=~knee.found)
     np.copyto(miss, MISS_NO_IP, where=np.isnan(ref))
     # The current's uncertainty at the crossing moves the voltage by dV/dI there.
-    u_i = combine(s.accuracy.current.u(ref), _known(noise), _known(u_ref))
+    u_inst, u_a, nu_a = _knee_current_parts(s, ref, ip, fixed is not None)
+    u_noise = _known(noise)
     vl = knee.volts
-    u = combine(s.accuracy.voltage.u(vl), u_i / knee.slope, knee.u_interpolation)
+    parts = [
+        (s.accuracy.voltage.u(vl), np.inf),
+        (u_inst / knee.slope, np.inf),
+        (u_a / knee.slope, nu_a),
+        (u_noise / knee.slope, _plateau_dof(r, s)),
+        (knee.u_interpolation, np.inf),
+    ]
+    u = combine(*(part for part, _ in parts))
     bad = miss > 0
-    out.put("limiting_voltage", np.where(bad, np.nan, vl), np.where(bad, np.nan, u), None, miss)
+    nu = effective_dof(parts)
+    out.put("limiting_voltage", np.where(bad, np.nan, vl), np.where(bad, np.nan, u), None, miss, nu)
     out.knee_reference_a = ref
+
+
+def _knee_current_parts(s: JudgeSettings, ref: np.ndarray, ip: IpParts, fixed: bool):
+    """(instrument u, Type A u, its nu) of the difference between the reading at the crossing
+    and the knee reference. A fixed reference is exact: the reading carries the instrument's
+    whole error. A reference of f x IP read on the same range shares the gain error and the
+    offset with the reading: the gain cancels in I - f IP (both are the same current there)
+    and (1 - f) of the offset remains [JCGM 100:2008 5.2, correlated input quantities]; on
+    another range they are independent."""
+    table = s.accuracy.current
+    if fixed:
+        return table.u(ref), np.zeros(ref.shape), np.inf
+    f = s.knee_fraction
+    offset = table.arrays()[2]
+    k_ref = table.range_index(np.fmax(np.abs(ref), 0.0))
+    k_ip = table.range_index(np.fmax(np.abs(ip.mean), 0.0))
+    same = (1 - f) * offset[k_ref] / np.sqrt(3.0)
+    apart = combine(table.u(ref), f * table.u(ip.mean))
+    u_inst = combine(np.where(k_ref == k_ip, same, apart), f * ip.u_from_v)
+    return u_inst, f * _known(ip.type_a), ip.nu_a
+
+
+def _plateau_dof(r: Readings, s: JudgeSettings) -> float:
+    """Degrees of freedom of the plateau's noise estimate: one per inner point [approximate:
+    neighbouring distances share a point, so this is an upper bound]."""
+    levels = r.layout.sweep_levels()
+    return max(float(np.count_nonzero(levels >= s.knee_voltage_v - 1e-9)) - 2.0, 1.0)
 
 
 def _u_volts(s: JudgeSettings, volts: float) -> np.ndarray:
@@ -372,10 +488,13 @@ def _at_level(out: FigureArrays, r: Readings, s: JudgeSettings, name: str, volts
     mean, type_a, miss, power = _mean_of(v, i, good, clamped_at, power=peak)
     clamped, bound = _any(clamped_at), _clamped_bound(np.abs(i), clamped_at)
     value = np.where(clamped, bound, np.abs(mean))
-    u = combine(type_a, s.accuracy.current.u(mean))
+    u_b = s.accuracy.current.u(mean)
+    u = combine(type_a, u_b)
     ok = ~clamped & (miss == 0)
     miss = np.where(clamped, 0, miss)
-    out.put(name, value, np.where(ok, u, np.nan), clamped, miss)
+    count = np.add.reduce(good, axis=1)
+    nu = effective_dof([(type_a, np.fmax(count - 1.0, 1.0)), (u_b, np.inf)])
+    out.put(name, value, np.where(ok, u, np.nan), clamped, miss, nu)
     if peak:
         p_bound = _clamped_bound(np.abs(v * i), clamped_at)
         u_p = combine(mean * _u_volts(s, volts), volts * u)

@@ -116,7 +116,9 @@ class JudgeSettings:
     `knee_current_a` (a fixed reference, e.g. 0.8 x the type's minimum IP) overrides
     `knee_fraction`; with `knee_of` "minimum" the reference is knee_fraction x the regulated
     current's min limit. Under the "guarded" decision rule a figure within U = k u of a limit
-    (k = `coverage_factor`) is reported as in the guard band, neither passed nor failed."""
+    is reported as in the guard band, neither passed nor failed. k is Student's t for
+    `coverage_probability` at each figure's effective degrees of freedom (JCGM 100:2008 G.4),
+    or the fixed `coverage_factor` when the recipe names one."""
 
     test_voltage_v: float = 25.0
     knee_voltage_v: float = 6.0
@@ -129,7 +131,8 @@ class JudgeSettings:
     reverse_voltage_v: float | None = None  # reverse_current is read here (a negative level)
     peak_voltage_v: float | None = None  # peak current and dissipation are read here
     decision: str = "simple"
-    coverage_factor: float = 2.0
+    coverage_factor: float | None = None  # a fixed k; None: from coverage_probability
+    coverage_probability: float = 0.95
     shape: Shape = Shape()
     bins: tuple[BinRule, ...] = DEFAULT_BINS
     accuracy: Accuracy = field(default=DEFAULT_ACCURACY)
@@ -141,8 +144,10 @@ class JudgeSettings:
             raise ValueError(f"knee_of must be one of {KNEE_BASES}")
         if not (0 < self.knee_fraction < 1 and self.slope_window_v > 0):
             raise ValueError("knee_fraction must lie in (0, 1) and slope_window_v be positive")
-        if not 1 <= self.coverage_factor <= 3:
+        if self.coverage_factor is not None and not 1 <= self.coverage_factor <= 3:
             raise ValueError("coverage_factor must be 1 to 3")
+        if not 0.5 <= self.coverage_probability <= 0.999:
+            raise ValueError("coverage_probability must be 0.5 to 0.999")
         if self.reverse_voltage_v is not None and not self.reverse_voltage_v < 0:
             raise ValueError("reverse_voltage_v must be negative")
         if not self.bins or not self.bins[-1].catch_all:

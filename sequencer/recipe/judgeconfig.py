@@ -47,8 +47,13 @@ def parse_judge(source: Source, value: Any, accuracy: Accuracy = DEFAULT_ACCURAC
     peak = f.optional_quantity("peak_voltage", "voltage")
     f.check(peak is None or peak > 0, "peak_voltage", f"must be positive (got {peak} V)")
     decision = f.choice("decision", DECISIONS, "simple")
-    k = float(f.number("coverage_factor", 2.0))
-    f.check(1 <= k <= 3, "coverage_factor", f"must be 1 to 3 (got {k})")
+    # No k given: k is Student's t at each figure's degrees of freedom (JCGM 100:2008 G.4).
+    k = float(f.number("coverage_factor")) if "coverage_factor" in f.data else None
+    f.check(k is None or 1 <= k <= 3, "coverage_factor", f"must be 1 to 3 (got {k})")
+    p = float(f.number("coverage_probability", 0.95))
+    f.check(0.5 <= p <= 0.999, "coverage_probability", f"must be 0.5 to 0.999 (got {p})")
+    one = k is None or "coverage_probability" not in f.data
+    f.check(one, "coverage_factor", "a fixed k replaces coverage_probability; give one or other")
     shape = _shape(Fields.at(source, "judge.shape", f.raw("shape", {})))
     limits = _figure_limits(source, f.raw("limits", {}))
     if knee_of == "minimum":
@@ -69,6 +74,7 @@ def parse_judge(source: Source, value: Any, accuracy: Accuracy = DEFAULT_ACCURAC
         peak_voltage_v=peak,
         decision=decision,
         coverage_factor=k,
+        coverage_probability=p,
         shape=shape,
         bins=bins,
         accuracy=accuracy,

@@ -113,7 +113,17 @@ class Lot:
         u = self.final[u_column(figure)].to_numpy(float)
         if self.settings.decision != "guarded":
             return np.zeros(len(u))
-        return np.where(np.isnan(u), np.inf, self.settings.coverage_factor * u)
+        return np.where(np.isnan(u), np.inf, self.coverage_factor(figure) * u)
+
+    def coverage_factor(self, figure: str) -> np.ndarray:
+        """k of each final device as the judge used it; a device stored before k was kept
+        was judged with the recipe's fixed k (2 when the recipe named none)."""
+        column = f"{figure}_k"
+        stored = self.final[column].to_numpy(float) if column in self.final else None
+        fixed = self.settings.coverage_factor or 2.0
+        if stored is None:
+            return np.full(len(self.final), fixed)
+        return np.where(np.isnan(stored), fixed, stored)
 
     def curve(self, row: int) -> pd.DataFrame:
         """The readings of one device row, in the order they were taken."""

@@ -214,7 +214,9 @@ def _part(lot: Lot, row: dict, figures: list[str], numbers: dict) -> list[bytes]
         value = float(row[value_column(figure)])
         at_least = bool(row[bound_column(figure)])
         limit = lot.limit(figure)
-        status = _status(lot, figure, value, at_least, float(row[u_column(figure)]))
+        k = row.get(f"{figure}_k")
+        k = lot.settings.coverage_factor or 2.0 if k is None or pd.isna(k) else float(k)
+        status = _status(lot, figure, value, at_least, k * float(row[u_column(figure)]))
         limited = limit.min is not None or limit.max is not None
         flags = test_flags(status, not math.isnan(value), at_least, limited, figure in needed)
         flags |= 0x20 if aborted else 0
@@ -232,9 +234,10 @@ def _part(lot: Lot, row: dict, figures: list[str], numbers: dict) -> list[bytes]
     return records
 
 
-def _status(lot: Lot, figure: str, value: float, at_least: bool, u: float) -> int:
+def _status(lot: Lot, figure: str, value: float, at_least: bool, big_u: float) -> int:
+    """Where a stored figure stands; big_u is k u as the judge used it (NaN: unknown)."""
     if lot.settings.decision == "guarded":
-        big_u = math.inf if math.isnan(u) else lot.settings.coverage_factor * u
+        big_u = math.inf if math.isnan(big_u) else big_u
     else:
         big_u = 0.0
     one = decide.limit_status(

@@ -14,6 +14,7 @@ from collections.abc import Callable, Iterator
 from contextlib import contextmanager, suppress
 
 from sequencer.model.errors import StoreError
+from sequencer.model.judgesettings import FIGURES
 
 # Version 1, as the first release wrote it (four figures, one device per lot position).
 V1 = """
@@ -121,6 +122,14 @@ def _v6_temperatures(db: sqlite3.Connection) -> None:
         db.execute(f"ALTER TABLE device ADD COLUMN {column} REAL")
 
 
+def _coverage_factors(db: sqlite3.Connection) -> None:
+    """Per figure the coverage factor k of U = k u and the effective degrees of freedom of u
+    (JCGM 100:2008 G.4); NULL in devices judged before (they used the recipe's fixed k)."""
+    for name in FIGURES:
+        db.execute(f"ALTER TABLE device ADD COLUMN {name}_k REAL")
+        db.execute(f"ALTER TABLE device ADD COLUMN {name}_dof REAL")
+
+
 MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (
     _v1,
     _v2,
@@ -128,6 +137,7 @@ MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (
     _v4,
     _v5,
     _v6_temperatures,
+    _coverage_factors,
 )
 LATEST = len(MIGRATIONS)
 

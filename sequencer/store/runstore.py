@@ -61,6 +61,7 @@ def figure_columns() -> list[str]:
     for name in FIGURES:
         unit = UNITS[name]
         cols += [f"{name}_{unit}", f"{name}_u_{unit}", f"{name}_at_least"]
+        cols += [f"{name}_k", f"{name}_dof"]
     return cols
 
 
@@ -92,6 +93,9 @@ def device_row(judgement: Judgement, channel: int) -> dict[str, Any]:
         row[f"{name}_{unit}"] = _num(fig.value)
         row[f"{name}_u_{unit}"] = _num(fig.uncertainty)
         row[f"{name}_at_least"] = int(fig.at_least)
+        row[f"{name}_k"] = _num(fig.coverage_factor)
+        # JSON has no infinity: an empty dof beside a known u is infinite (Type B parts only).
+        row[f"{name}_dof"] = _num(fig.dof)
     row["classification"] = judgement.classification
     row["reasons"] = "; ".join(judgement.notes)  # failing reasons, then guard-band notes
     return row

@@ -81,3 +81,38 @@ def test_check_refuses_a_resource_that_cannot_name_an_instrument(tmp_path, writt
     where = f"ccbench: {tmp_path / 'demo-station.yaml'}:{line}: instrument.resource {problem}"
     assert lines[0].startswith(where), lines[0]
     assert "or sim for the simulator" in lines[0]
+
+
+def _variant(tmp_path: Path, old: str, new: str) -> Path:
+    (tmp_path / "demo-station.yaml").write_text((ROOT / "recipes/demo-station.yaml").read_text())
+    text = (ROOT / "recipes/demo.yaml").read_text()
+    assert old in text
+    (tmp_path / "variant.yaml").write_text(text.replace(old, new, 1))
+    return tmp_path / "variant.yaml"
+
+
+@pytest.mark.robustness
+@pytest.mark.parametrize(
+    ("old", "new", "field"),
+    [
+        ("test_voltage: 25 V", "test_voltage: 45 V", "judge.test_voltage"),
+        ("knee_voltage: 6 V", "knee_voltage: 41 V", "judge.knee_voltage"),
+        ("peak_voltage: 40 V", "peak_voltage: 37.3 V", "judge.peak_voltage"),
+    ],
+)
+def test_check_refuses_a_figure_voltage_the_plan_does_not_measure(tmp_path, old, new, field):
+    # Every device would fail for a missing figure: refused before anything runs.
+    path = _variant(tmp_path, old, new)
+    done = ccbench("check", str(path))
+    assert done.returncode == 2, done.stdout
+    (line,) = done.stdout.strip().splitlines()
+    assert line.startswith(f"ccbench: {path}: {field} "), line
+    assert "not measured" in line or "no programmed level" in line, line
+
+
+def test_check_warns_when_compliance_is_at_or_below_a_current_limit(tmp_path):
+    path = _variant(tmp_path, "compliance: 5 mA", "compliance: 1.9 mA")
+    done = ccbench("check", str(path))
+    assert done.returncode == 0, done.stdout
+    assert "warning" in done.stdout and "step 'iv'" in done.stdout.replace("\n", " ")
+    assert "devices will clamp" in done.stdout.replace("\n", " ")

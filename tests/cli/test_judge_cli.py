@@ -63,7 +63,7 @@ def test_judge_with_a_recipe_prints_a_table(tmp_path):
     code, text = run("judge", str(path), "--recipe", str(RECIPES / "demo.yaml"))
     assert code == 0
     assert "c.csv: fail (ok); bin 5 regulated current below min" in text
-    assert "regulated current" in text and "u (k=1)" in text
+    assert "regulated current" in text and "u (k=1)" in text and "U = k u" in text
     assert "regulated current 1.34 mA below min 1.62 mA" in text
 
 

@@ -38,7 +38,7 @@ def test_ilac_g8_worked_example():
 def _verdicts(values_a, u_a, decision):
     f = FigureArrays.empty(len(values_a))
     f.put("regulated_current", values_a, np.full(len(values_a), u_a))
-    d = decide(f, JudgeSettings(limits=(IP_LIMIT,), decision=decision))
+    d = decide(f, JudgeSettings(limits=(IP_LIMIT,), decision=decision, coverage_factor=2.0))
     return [VERDICTS[v] for v in d.verdict]
 
 

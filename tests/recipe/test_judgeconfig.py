@@ -42,6 +42,12 @@ def _line_of(text: str, needle: str) -> int:
 BROKEN = [
     ("decision: guarded", "decision: strict", "judge.decision", "must be one of simple, guarded"),
     ("coverage_factor: 2", "coverage_factor: 5", "judge.coverage_factor", "must be 1 to 3"),
+    (
+        "coverage_factor: 2",
+        "coverage_probability: 1.5",
+        "judge.coverage_probability",
+        "must be 0.5 to 0.999",
+    ),
     ("knee_of: measured ", "knee_of: nominal ", "judge.knee_of", "must be one of"),
     ("peak_voltage: 40 V", "peak_voltage: -40 V", "judge.peak_voltage", "must be positive"),
     ("# reverse_voltage: -5 V", "reverse_voltage: 5 V", "judge.reverse_voltage", "negative"),

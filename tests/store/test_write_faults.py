@@ -160,7 +160,7 @@ def tiny_filesystem(where: Path, size: str):
 
 def test_a_really_full_and_then_read_only_filesystem(tmp_path, recipe):
     # sized so that the schema fits and the disk fills within the first few devices
-    with tiny_filesystem(tmp_path / "tiny", "176k") as remount:
+    with tiny_filesystem(tmp_path / "tiny", "224k") as remount:
         out = tmp_path / "tiny" / "run"
         code, text = ccbench("run", str(recipe), "--sim", "--out", str(out))
         assert code == 5, text

@@ -23,6 +23,7 @@ from typing import Any
 import psycopg
 
 from sequencer.model.errors import StoreError
+from sequencer.model.judgesettings import FIGURES
 from sequencer.recipe.resultsdb import SharedDatabase
 from sequencer.store.journal import decode_floats
 
@@ -156,6 +157,13 @@ def _v6_temperatures(cur: psycopg.Cursor) -> None:
         cur.execute(f'ALTER TABLE device ADD COLUMN "{column}" DOUBLE PRECISION')
 
 
+def _coverage_factors(cur: psycopg.Cursor) -> None:
+    """Per figure k of U = k u and the effective degrees of freedom of u (as the run folder)."""
+    for name in FIGURES:
+        cur.execute(f"ALTER TABLE device ADD COLUMN {q(name + '_k')} DOUBLE PRECISION")
+        cur.execute(f"ALTER TABLE device ADD COLUMN {q(name + '_dof')} DOUBLE PRECISION")
+
+
 MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (
     _v1,
     _v2,
@@ -163,6 +171,7 @@ MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (
     _v4,
     _v5,
     _v6_temperatures,
+    _coverage_factors,
 )
 LATEST = len(MIGRATIONS)
 
