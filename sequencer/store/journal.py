@@ -58,7 +58,9 @@ class Journal:
     def __init__(self, path: Path, last_seq: int = 0) -> None:
         self.path = path
         self.last_seq = last_seq
-        self._file = open(path, "ab")  # noqa: SIM115 - open as long as the run
+        # Unbuffered: a buffered file flushes before it truncates, so after a failed write (a
+        # full disk) cutting the torn line back would fail again on the same flush.
+        self._file = open(path, "ab", buffering=0)  # noqa: SIM115 - open as long as the run
         self._size = self._file.tell()
 
     def append(self, entry: dict[str, Any]) -> int:
@@ -70,8 +72,9 @@ class Journal:
         line = json.dumps({"seq": seq, **entry}, allow_nan=False, separators=(",", ":"))
         data = (line + "\n").encode()
         try:
-            self._file.write(data)
-            self._file.flush()
+            left = memoryview(data)
+            while left:  # a raw write may take only part of the line
+                left = left[self._file.write(left) or 0 :]
             os.fsync(self._file.fileno())
         except OSError:
             self._cut_back()

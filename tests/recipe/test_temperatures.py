@@ -48,7 +48,8 @@ def test_station_chamber_and_recipe_set_points(tmp_path):
 
 
 def test_safe_off_stops_the_chamber(tmp_path):
-    assert load_recipe(files(tmp_path, safe="off")).station.chamber.safe_c is None
+    # quoted: a bare off is a YAML boolean, refused as written
+    assert load_recipe(files(tmp_path, safe="'off'")).station.chamber.safe_c is None
 
 
 def line_of(path: Path, text: str) -> int:

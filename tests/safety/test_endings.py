@@ -237,7 +237,7 @@ def test_a_file_system_that_fills_up_mid_run_ends_with_code_5_and_the_output_off
     sim = start_sim_process("--devices", "20", "--seed", "2611")
     try:
         station = demo_station_at(tmp_path, sim.resource)
-        with tiny_filesystem(tmp_path / "tiny", "200k") as remount:
+        with tiny_filesystem(tmp_path / "tiny", "240k") as remount:
             out = tmp_path / "tiny" / "run"
             command = run_command(ROOT / "recipes" / "demo.yaml", out, "--station", str(station))
             done = subprocess.run(command, cwd=ROOT, env=ENV, capture_output=True, text=True)
