@@ -133,7 +133,11 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)
-    _judge_can_work(recipe, plan, console)
+    problem = judgecover.unmeasured(plan, recipe.judge)
+    if problem is not None:
+        raise RecipeError(recipe.file, None, *problem)
+    for warning in judgecover.clamping(plan, recipe.judge):
+        console.print(f"[yellow]ccbench: warning:[/] {recipe.file}: {warning}", soft_wrap=True)
     prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))
@@ -162,7 +166,6 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
-    _judge_can_work(recipe, plan, console)  # a plan the judge cannot use would fail every part
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
     prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
     _cautions(console, recipe, plan)
@@ -318,16 +321,6 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
 def _measure(console, recipe, plan, smu, store, guard):
     with showing_devices(console, len(plan.channels)) as shown:
         return run_lot(recipe, plan, smu, store, shown, guard=guard)
-
-
-def _judge_can_work(recipe: Recipe, plan, console: Console) -> None:
-    """Refuse a plan that does not measure what the judge needs; warn of compliance at or
-    below a regulated-current limit. The same for `check` and `run`."""
-    problem = judgecover.unmeasured(plan, recipe.judge)
-    if problem is not None:
-        raise RecipeError(recipe.file, None, *problem)
-    for warning in judgecover.clamping(plan, recipe.judge):
-        console.print(f"[yellow]ccbench: warning:[/] {recipe.file}: {warning}", soft_wrap=True)
 
 
 def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:
