@@ -7,12 +7,11 @@ fails at start-up with file, line and key, never mid-run.
 from __future__ import annotations
 
 import math
-import string
 from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any
 
-from instruments.dialect import DIALECT_DIR, read_mapping
+from instruments.dialect import DIALECT_DIR, check_placeholders, read_mapping
 from instruments.errors import DialectError
 from instruments.scpi import format_number
 
@@ -76,7 +75,7 @@ def _value(key: str, value: Any, line: int | None, source: str | Path) -> Any:
     if not isinstance(value, str) or not value.strip():
         raise DialectError(source, key, line, f"must be text (got {value!r})", hint=_HINT)
     if key in _TEXT_KEYS:
-        _check_placeholders(key, value, line, source)
+        check_placeholders(key, value, line, source, PLACEHOLDERS)
     return value
 
 
@@ -87,17 +86,6 @@ def _range(value: Any, line: int | None, source: str | Path) -> tuple[float, flo
         detail = f"must be [lowest, highest] in degC, lowest below highest (got {value!r})"
         raise DialectError(source, "valid_range_c", line, detail, hint=_HINT)
     return float(value[0]), float(value[1])
-
-
-def _check_placeholders(key: str, text: str, line: int | None, source: str | Path) -> None:
-    try:
-        found = {name for _, name, _, _ in string.Formatter().parse(text) if name is not None}
-    except ValueError as exc:
-        raise DialectError(source, key, line, f"bad braces in {text!r}: {exc}") from exc
-    wanted = PLACEHOLDERS.get(key, frozenset())
-    if found != wanted:
-        expected = ", ".join(f"{{{n}}}" for n in sorted(wanted)) or "no placeholder"
-        raise DialectError(source, key, line, f"must contain {expected} (got {text!r})")
 
 
 def load_chamber_dialect(name_or_path: str | Path) -> ChamberDialect:

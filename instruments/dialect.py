@@ -306,7 +306,7 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
     if not isinstance(value, str) or not value.strip():
         raise DialectError(source, key, line, f"must be text (got {value!r})")
     if key in _TEXT_KEYS:
-        _check_placeholders(key, value, line, source)
+        check_placeholders(key, value, line, source)
     return value
 
 
@@ -336,12 +336,19 @@ def _check_no_reset_per_device(
             raise DialectError(source, key, lines.get(key), detail)
 
 
-def _check_placeholders(key: str, text: str, line: int | None, source: str | Path) -> None:
+def check_placeholders(
+    key: str,
+    text: str,
+    line: int | None,
+    source: str | Path,
+    placeholders: dict[str, frozenset[str]] = PLACEHOLDERS,
+) -> None:
+    """The braces of a command text name exactly the placeholders its key is filled with."""
     try:
         found = {name for _, name, _, _ in string.Formatter().parse(text) if name is not None}
     except ValueError as exc:
         raise DialectError(source, key, line, f"bad braces in {text!r}: {exc}") from exc
-    wanted = PLACEHOLDERS.get(key, frozenset())
+    wanted = placeholders.get(key, frozenset())
     if found != wanted:
         expected = ", ".join(f"{{{n}}}" for n in sorted(wanted)) or "no placeholder"
         raise DialectError(source, key, line, f"must contain {expected} (got {text!r})")
