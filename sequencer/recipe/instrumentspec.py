@@ -90,9 +90,25 @@ def _check_against_earlier(source: Source, index: int, specs: list[InstrumentSpe
             raise source.error(f"{where}.channels", f"shares channel {shared[0]} with {other.name}")
         if other.name == spec.name:
             raise source.error(f"{where}.name", f"repeats the instrument name '{spec.name}'")
+        if spec.resource != SIM_RESOURCE and same_resource(other.resource, spec.resource):
+            problem = f"names the instrument {other.name} already uses ({show(other.resource)})"
+            raise source.error(f"{where}.resource", problem + "; two workers would drive one SMU")
         if other.line_frequency_hz != spec.line_frequency_hz:
             problem = f"must be the same for every instrument ({other.line_frequency_hz:g} Hz)"
             raise source.error(f"{where}.line_frequency", problem)
+
+
+def same_resource(a: str, b: str) -> bool:
+    """Two VISA resource strings that open the same instrument: VISA names are case-blind and
+    board 0 may be left out (`TCPIP::h::5025::SOCKET` is `tcpip0::h::5025::socket`)."""
+    return _resource_key(a) == _resource_key(b)
+
+
+def _resource_key(resource: str) -> tuple[str, ...]:
+    interface, *rest = resource.strip().upper().split("::")
+    board = interface.rstrip("0123456789")
+    number = interface[len(board) :] or "0"
+    return (board, str(int(number)), *(part.strip() for part in rest))
 
 
 def _settings(f: Fields, folder: Path) -> tuple[str, str, float, float]:

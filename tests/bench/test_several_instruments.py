@@ -67,6 +67,14 @@ def test_several_instruments_each_with_its_channels(tmp_path):
          "instruments[1].line_frequency must be the same for every instrument"),
         ("instruments:\n  - {name: a, resource: sim, channels: 1}\n"
          "  - {name: a, resource: sim, channels: [2]}\n", "repeats the instrument name 'a'"),
+        # Two workers on one SMU interleave their commands (red-team finding 8); VISA names are
+        # case-blind and board 0 may be left out (VPP-4.3 resource syntax, from memory).
+        ("instruments:\n  - {resource: 'TCPIP0::smu-7.example::5025::SOCKET', channels: 1-5}\n"
+         "  - {resource: 'TCPIP::SMU-7.example::5025::SOCKET', channels: 6-9}\n",
+         "instruments[1].resource names the instrument smu1 already uses"),
+        ("instruments:\n  - {resource: 'TCPIP0::192.0.2.9::5025::SOCKET', channels: 1-5}\n"
+         "  - {resource: 'TCPIP0::192.0.2.9::5025::SOCKET', channels: 6-9}\n",
+         "two workers would drive one SMU"),
         ("instruments:\n  - {resource: sim, channels: 1-5, query_time: 2 s}\n",
          "query_time must be above 0 and at most 1 s"),
     ],
