@@ -11,6 +11,17 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+# An instrument's reply can be any length (a runaway one was 20 MB): what an error quotes of it
+# goes to the screen, the journal, the CSV and the database, so a message is cut to this.
+LONGEST_DETAIL = 400
+
+
+def in_part(text: str, longest: int = 80) -> str:
+    """`text` quoted as a message shows a reply: whole when short, else its start and its size."""
+    if len(text) <= longest:
+        return repr(text)
+    return f"{text[:longest]!r}… ({len(text):,} characters in all)"
+
 
 class InstrumentError(Exception):
     """Base of every error the instrument layer raises on purpose.
@@ -26,7 +37,7 @@ class InstrumentError(Exception):
     ) -> None:
         self.resource = resource
         self.command = command
-        self.detail = detail
+        self.detail = _cut(detail)
         self.hint = self.default_hint if hint is None else hint
         self.message = self._build_message()
         super().__init__(self.message)
@@ -44,6 +55,12 @@ class InstrumentError(Exception):
     def __reduce__(self) -> tuple[Any, ...]:
         # Subclasses have other signatures, some inherit OSError's reduce: rebuild from state.
         return (_rebuild, (type(self), self.__dict__))
+
+
+def _cut(detail: str) -> str:
+    if len(detail) <= LONGEST_DETAIL:
+        return detail
+    return f"{detail[:LONGEST_DETAIL]}… (cut; {len(detail):,} characters in all)"
 
 
 def _rebuild(cls: type[InstrumentError], state: dict[str, Any]) -> InstrumentError:

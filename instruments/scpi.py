@@ -11,14 +11,18 @@ import re
 
 import numpy as np
 
-from instruments.errors import ReplyError
+from instruments.errors import ReplyError, in_part
 
 # SCPI-1999 Vol 1 7.2.1.4-7.2.1.5: the numbers that stand for INFinity, NINFinity and NAN.
 SCPI_INF = 9.9e37
 SCPI_NAN = 9.91e37
 
 # <NRf> as IEEE 488.2 7.7.2 allows in a reply (NR1, NR2, NR3), nothing Python adds (no "1_0").
-_NRF = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
+# One way to match each text: `\d+\.?\d*` split a digit run two ways and backtracked
+# quadratically on a long run of digits with a stray character (3 MB took minutes).
+_NRF = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+# No NRf field needs more: 17 significant digits, sign, point and a three-digit exponent.
+_LONGEST_NUMBER = 64
 _NR1 = re.compile(r"[+-]?\d+")
 _ERROR_ENTRY = re.compile(r'([+-]?\d+)\s*,\s*"((?:[^"]|"")*)"')
 # Some instruments send the entry's text without quotes: -113,Undefined header
@@ -27,7 +31,7 @@ _BARE_ENTRY = re.compile(r'([+-]?\d+)\s*,\s*([^"]*)')
 
 def reply_error(text: str, expected: str) -> ReplyError:
     """A ReplyError for `text` that was supposed to be `expected`; the caller adds where."""
-    return ReplyError("", None, f"reply {text!r} is not {expected}")
+    return ReplyError("", None, f"reply {in_part(text)} is not {expected}")
 
 
 def check_message(message: str) -> str:
@@ -56,7 +60,7 @@ def format_number(value: float) -> str:
 def parse_number(text: str) -> float:
     """A float from an NRf reply field, mapping SCPI's special values to inf, -inf and nan."""
     field = text.strip()
-    if not _NRF.fullmatch(field):
+    if len(field) > _LONGEST_NUMBER or not _NRF.fullmatch(field):
         raise reply_error(text, "a number")
     number = float(field)
     if number == SCPI_NAN:

@@ -20,7 +20,7 @@ from typing import TypeVar
 import numpy as np
 
 from instruments.dialect import Dialect
-from instruments.errors import ReplyError, ScpiError
+from instruments.errors import ReplyError, ScpiError, in_part
 from instruments.protocol import Transport
 from instruments.scpi import (
     flat_fields,
@@ -219,7 +219,7 @@ class ScpiSmu:
         names = self.dialect.measure_fields
         if len(fields) != len(names):
             self._unread = True
-            detail = f"reply {reply!r} has {len(fields)} fields, the dialect expects {list(names)}"
+            detail = f"reply {in_part(reply)} has {len(fields)} fields, the dialect expects {list(names)}"
             raise ReplyError(self.resource, self.dialect.measure, detail)
         values = dict(zip(names, fields, strict=True))
         if "errors" in values and self._parse("measure", values["errors"], parse_int):

@@ -68,6 +68,9 @@ log = logging.getLogger(__name__)
 
 _QUIET_S = 0.1  # silence that ends a drain (what pyvisa-py's clear() waits for, too)
 _MAX_STALE = 4  # late replies discarded while resynchronising before giving up
+# The longest reply line taken: a 100,000-point list of three fields is about 5 MB; beyond this a
+# reply is runaway output, refused before it fills memory.
+MAX_LINE_BYTES = 16 * 1024 * 1024
 RESYNC_WAIT_S = 5.0  # how long a resync waits for its probe's answer (at least the timeout)
 
 
@@ -372,7 +375,10 @@ class VisaTransport:
         if self._socket is None or b"\n" in self._session._pending_buffer:
             return  # not a socket: pyvisa's own timeout, which restarts with each chunk
         while b"\n" not in self._more(command, deadline):
-            pass
+            if len(self._session._pending_buffer) > MAX_LINE_BYTES:
+                self._session._pending_buffer.clear()
+                detail = f"a reply of more than {MAX_LINE_BYTES:,} bytes with no end of line"
+                raise ReplyError(self.resource, command, detail)
 
     def _fill_bytes(self, command: str, deadline: float, count: int) -> None:
         """Read until pyvisa-py's buffer holds `count` bytes."""
@@ -476,7 +482,7 @@ class VisaTransport:
         if self._socket is None:
             self._drain_other(command)
             return
-        dropped = bytes(self._session._pending_buffer)
+        dropped = bytearray(self._session._pending_buffer)  # grows in place: drains can be long
         self._session._pending_buffer.clear()
         # A reply still dribbling in when its query timed out is drained to its end, within
         # the time a resync may take, like a late one; only output that never pauses is refused.
