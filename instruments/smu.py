@@ -219,7 +219,8 @@ class ScpiSmu:
         names = self.dialect.measure_fields
         if len(fields) != len(names):
             self._unread = True
-            detail = f"reply {in_part(reply)} has {len(fields)} fields, the dialect expects {list(names)}"
+            shape = f"has {len(fields)} fields, the dialect expects {list(names)}"
+            detail = f"reply {in_part(reply)} {shape}"
             raise ReplyError(self.resource, self.dialect.measure, detail)
         values = dict(zip(names, fields, strict=True))
         if "errors" in values and self._parse("measure", values["errors"], parse_int):
