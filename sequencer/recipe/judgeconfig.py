@@ -7,12 +7,15 @@ from __future__ import annotations
 
 from typing import Any
 
+from sequencer.judge.bins import BinGap, pass_gaps
 from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy, AccuracyTable, RangeAccuracy
 from sequencer.model.judgesettings import (
     CLASSIFICATIONS,
     DECISIONS,
     DEFAULT_BINS,
+    FIGURE_INFO,
     FIGURE_KIND,
+    FIGURE_UNIT,
     FIGURES,
     KNEE_BASES,
     VERDICTS,
@@ -22,6 +25,7 @@ from sequencer.model.judgesettings import (
     JudgeSettings,
     Shape,
 )
+from sequencer.model.units import format_si
 from sequencer.recipe.fields import Fields, positive
 from sequencer.recipe.units import UnitProblem, plain_number
 from sequencer.recipe.yamlsource import Source
@@ -60,6 +64,7 @@ def parse_judge(source: Source, value: Any, accuracy: Accuracy = DEFAULT_ACCURAC
         has_min = any(x.figure == "regulated_current" and x.min is not None for x in limits)
         f.check(has_min, "knee_of", "'minimum' needs limits.regulated_current.min")
     bins = _bins(source, f.raw("bins", None))
+    _check_pass_gaps(source, bins, limits)
     f.finish()
     return JudgeSettings(
         vt,
@@ -209,3 +214,31 @@ def _fraction(g: Fields, key: str) -> float:
     raise g.source.error(
         g.where(key), f"must be a fraction in % or ppm, e.g. '0.05 %' (got {raw!r})"
     )
+
+
+def _check_pass_gaps(
+    source: Source, rules: tuple[BinRule, ...], limits: tuple[FigureLimit, ...]
+) -> None:
+    """A part inside every limit must land in a pass bin, or in a fail bin that says so."""
+    for gap in pass_gaps(rules, limits):
+        problem = (
+            f"send a part that passes every limit ({_gap_text(gap)}) to bin "
+            f"{rules[gap.bin_index].number}, class fail: bins take min <= value < max; close "
+            "the gap (leave the top pass bin's max out where a limit bounds it), or add a fail "
+            "bin with that range to mean it"
+        )
+        raise source.error("judge.bins", problem)
+
+
+def _gap_text(gap: BinGap) -> str:
+    def label(figure: str, value: float) -> str:
+        return format_si(value, FIGURE_UNIT[figure])
+
+    if gap.below is not None:
+        (figure,) = gap.figures
+        span = f"from {label(figure, gap.low[0])} up to {label(figure, gap.below)}"
+        return f"{FIGURE_INFO[figure][2]} {span}"
+    points = [
+        f"{FIGURE_INFO[f][2]} {label(f, v)}" for f, v in zip(gap.figures, gap.low, strict=True)
+    ]
+    return "at exactly " + " and ".join(points)
