@@ -13,6 +13,7 @@ stored with the run), unless the caller names another station.
 from __future__ import annotations
 
 import csv
+import os
 import sqlite3
 from collections import Counter
 from dataclasses import dataclass, replace
@@ -211,8 +212,11 @@ def save(
                 f"INSERT INTO rejudge_device ({', '.join(cols)}) VALUES ({marks})",
                 [[rejudge_id, *row.values()] for row in rows],
             )
-            path = run.folder / f"rejudged-{rejudge_id}.csv"
-            _write_csv(path, rows)
+            # Written under a working name inside the transaction, named only once committed:
+            # a crash between the two leaves no CSV claiming a re-judgement the database lacks.
+            part = run.folder / f".rejudged-{rejudge_id}.csv.part"
+            _write_csv(part, rows)
+        path = _publish(part, run.folder / f"rejudged-{rejudge_id}.csv", now)
     except sqlite3.Error as exc:
         raise StoreError(f"{run.database}: the re-judgement could not be stored ({exc})") from None
     finally:
@@ -230,12 +234,23 @@ def _rows(run: StoredRun, judgements: list[Judgement]) -> list[dict]:
     return rows
 
 
+def _publish(part: Path, path: Path, now: str) -> Path:
+    """Give the committed CSV its name. A file already there is left by an older version's
+    crash (its re-judgement rolled back, so its number came round again): kept, renamed."""
+    try:
+        if path.exists():
+            stamp = "".join(c for c in now if c.isdigit())
+            path.rename(path.with_name(f"{path.stem}.orphan-{stamp}.csv"))
+        os.replace(part, path)
+    except OSError as exc:
+        raise StoreError(f"{path}: cannot be written ({exc.strerror})") from None
+    return path
+
+
 def _write_csv(path: Path, rows: list[dict]) -> None:
-    if path.exists():
-        raise StoreError(f"{path}: already exists; nothing is overwritten")
     columns = ["device", "pass", *CSV_COLUMNS[1:], "original_verdict"]
     try:
-        with open(path, "x", newline="", encoding="utf-8") as f:
+        with open(path, "w", newline="", encoding="utf-8") as f:
             out = csv.writer(f)
             out.writerow(columns)
             out.writerows([_csv(row[c]) for c in columns] for row in rows)

@@ -205,3 +205,17 @@ def test_rejudge_keeps_each_pass_of_a_repeated_run(tmp_path):
         (str(p), c.device) for p in (1, 2) for c in curves
     ]
     assert [r["verdict"] for r in rows[:3]] == [r["verdict"] for r in rows[3:]]
+
+
+def test_a_csv_left_by_a_crashed_rejudge_neither_blocks_nor_is_lost(stored_run, tmp_path):
+    """Red-team finding 25: a rejudged-N.csv written before a crash undid its transaction made
+    every later rejudge fail ("already exists"). The CSV is now named only after the commit; a
+    file left by an older version is kept under another name."""
+    folder, _ = stored_run
+    (folder / "rejudged-1.csv").write_text("left by a crash\n")
+    code, text = run("rejudge", str(folder), "--recipe", str(_stricter(tmp_path)))
+    assert code == 0, text
+    assert (folder / "rejudged-1.csv").read_text().startswith("device,")
+    (orphan,) = folder.glob("rejudged-1.orphan-*.csv")
+    assert orphan.read_text() == "left by a crash\n"
+    assert not list(folder.glob(".rejudged-*"))
