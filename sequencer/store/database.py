@@ -13,7 +13,7 @@ from pathlib import Path
 from typing import Any
 
 from sequencer.model.errors import StoreError
-from sequencer.store.journal import decode_floats
+from sequencer.store.journal import decode_floats, encode_floats
 from sequencer.store.migrations import migrate, transaction
 
 POINT_FIELDS = ("step", "level_V", "voltage_V", "current_A", "time_s", "in_compliance")
@@ -121,6 +121,33 @@ def _point_rows(key: tuple[int, int, str], points: dict[str, list]) -> Iterator[
     for idx, step in enumerate(points["step"]):
         values = (numbers[0][idx], numbers[1][idx], numbers[2][idx], times[idx])
         yield (*key, idx, step, *values, int(points["in_compliance"][idx]))
+
+
+def journal_entry(db: sqlite3.Connection, run_id: int, seq: int) -> dict[str, Any] | None:
+    """The journal line of entry `seq` as `write_device` stored it (None if not stored):
+    the device row without its run id, then its points in journal form."""
+    cur = db.execute("SELECT * FROM device WHERE run_id = ? AND seq = ?", (run_id, seq))
+    row = cur.fetchone()
+    if row is None:
+        return None
+    names = [d[0] for d in cur.description]
+    entry = {n: v for n, v in zip(names, row, strict=True) if n != "run_id"}
+    key = (run_id, entry["pass"], entry["device"])
+    points = db.execute(
+        f"SELECT {', '.join(POINT_FIELDS)} FROM point WHERE run_id = ? AND pass = ? AND "
+        "device = ? ORDER BY idx",
+        key,
+    ).fetchall()
+    columns = list(zip(*points, strict=True)) if points else [()] * len(POINT_FIELDS)
+    entry["points"] = {
+        name: (
+            encode_floats([float("nan") if v is None else v for v in values])
+            if name.endswith(("_V", "_A", "_s"))
+            else list(values)
+        )
+        for name, values in zip(POINT_FIELDS, columns, strict=True)
+    }
+    return {"seq": entry.pop("seq"), **entry}
 
 
 def last_seq(db: sqlite3.Connection, run_id: int) -> int:

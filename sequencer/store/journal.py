@@ -104,8 +104,10 @@ def read_entries(path: Path) -> Iterator[dict[str, Any]]:
             yield _parse(path, number, raw)
 
 
-def recover(path: Path) -> Recovered:
-    """Check the journal, cut off a torn last line (with a warning) and report what is kept."""
+def recover(path: Path, *, cut: bool = True) -> Recovered:
+    """Check the journal, cut off a torn last line (with a warning; `cut=False` only looks) and
+    report what is kept. Sequence numbers run 1, 2, 3...: a repeated or missing one is a hand's
+    doing, refused at its line."""
     if not path.exists():
         return Recovered(0, 0, 0, b"")
     entries, last_seq, good = 0, 0, 0
@@ -116,16 +118,36 @@ def recover(path: Path) -> Recovered:
             entry = _parse(path, number, raw, last_line=not following)
             if entry is None:
                 break
+            _check_order(path, number, int(entry["seq"]), last_seq)
             entries, last_seq, good = entries + 1, int(entry["seq"]), good + len(raw)
             raw, number = following, number + 1
         f.seek(good)
         dropped = f.read()
-    if dropped:
+    if dropped and cut:
         log.warning("%s: dropped a torn last line (%d bytes)", path, len(dropped))
         with open(path, "r+b") as f:
             f.truncate(good)
             os.fsync(f.fileno())
     return Recovered(entries, last_seq, good, dropped)
+
+
+def _check_order(path: Path, number: int, seq: int, last_seq: int) -> None:
+    if seq != last_seq + 1:
+        what = "repeats entry" if seq <= last_seq else "skips to entry"
+        raise StoreError(
+            f"{path}:{number}: {what} {seq} after entry {last_seq} (a crash only tears the last "
+            "line: the file was changed by hand); keep the folder as it is and look at that line"
+        )
+
+
+def append_rebuilt(path: Path, entries: list[dict[str, Any]]) -> None:
+    """Write entries back that the journal lost and the database holds, each as one line."""
+    with open(path, "ab") as f:
+        for entry in entries:
+            line = json.dumps(entry, allow_nan=False, separators=(",", ":"))
+            f.write((line + "\n").encode())
+        f.flush()
+        os.fsync(f.fileno())
 
 
 def _parse(path: Path, number: int, raw: bytes, *, last_line: bool = False) -> Any:

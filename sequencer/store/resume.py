@@ -18,7 +18,7 @@ from typing import Any
 
 from sequencer.model.errors import StoreError
 from sequencer.store import database as dbase
-from sequencer.store.journal import read_entries, recover
+from sequencer.store.journal import append_rebuilt, read_entries, recover
 from sequencer.store.runfolder import FolderRefused
 
 JOURNAL_FILE = "journal.jsonl"
@@ -90,11 +90,31 @@ def _move_aside(path: Path, aside: Path) -> None:
             os.replace(part, Path(str(aside) + suffix))
 
 
-def journal_notes(folder: Path) -> tuple[int, str]:
-    """Cut off a torn last line; returns the last good sequence number and a note."""
-    found = recover(folder / JOURNAL_FILE)
+def journal_notes(folder: Path, db: sqlite3.Connection, run_id: int) -> tuple[int, str]:
+    """Cut off a torn last line; returns the last good sequence number and a note. Nothing is
+    changed before the journal and the database are known to fit: a torn last line whose entry
+    the database holds (the line was damaged after both were written) is written again from
+    the database; a database ahead of the journal otherwise is a hand's doing, refused."""
+    path = folder / JOURNAL_FILE
+    found = recover(path, cut=False)
+    have = dbase.last_seq(db, run_id)
+    if have > found.last_seq:
+        torn_one = found.dropped and have == found.last_seq + 1
+        lost = dbase.journal_entry(db, run_id, have) if torn_one else None
+        if lost is None:
+            raise StoreError(
+                f"{folder}: {DATABASE_FILE} holds entries up to {have}, {JOURNAL_FILE} ends at "
+                f"entry {found.last_seq}; the folder was changed by hand, keep it as it is"
+            )
+        recover(path)
+        append_rebuilt(path, [lost])
+        return have, (
+            f"{JOURNAL_FILE}: its torn last line (entry {have}) was written again from "
+            f"{DATABASE_FILE}, which holds it"
+        )
     note = ""
     if found.dropped:
+        recover(path)
         note = (
             f"{JOURNAL_FILE}: dropped a torn last line ({len(found.dropped)} bytes) left by the "
             f"crash; the {found.entries} entries before it are kept"

@@ -365,8 +365,8 @@ def _reopen(
     """The folder's files brought up to date from the journal, open again for writing."""
     db = None
     try:
-        seq, torn = journal_notes(folder)
         db, run_id, rebuilt = open_or_rebuild(folder, run)
+        seq, torn = journal_notes(folder, db, run_id)
         applied = catch_up(db, run_id, folder, seq)
         csv_file = _rewrite_csv(folder, db, run_id)
         journal = Journal(folder / JOURNAL_FILE, last_seq=seq)
