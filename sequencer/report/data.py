@@ -25,6 +25,7 @@ from sequencer.model.errors import CcbenchError, RecipeError, StoreError, StoreR
 from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, JudgeSettings
 from sequencer.recipe.judgeconfig import parse_judge
 from sequencer.recipe.yamlsource import parse_yaml
+from sequencer.store.readonly import open_for_reading
 from sequencer.store.yields import final_mask
 
 RUN_TEXT = (
@@ -176,7 +177,10 @@ def _read_folder(folder: Path) -> list[Entry]:
     path = folder / "results.sqlite"
     if not path.is_file():
         raise StoreError(f"{folder}: not a run folder (no results.sqlite)")
-    db = sqlite3.connect(path)
+    try:
+        db = open_for_reading(path)
+    except sqlite3.Error as exc:
+        raise StoreReadError(f"{path}: cannot be read ({exc})") from None
     try:
         runs = pd.read_sql_query("SELECT * FROM run ORDER BY id", db)
         devices = pd.read_sql_query("SELECT * FROM device ORDER BY rowid", db)

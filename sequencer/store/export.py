@@ -17,6 +17,7 @@ from pathlib import Path
 import pandas as pd
 
 from sequencer.model.errors import RecipeError, StoreError, StoreReadError
+from sequencer.store.readonly import open_for_reading
 
 DATABASE_FILE = "results.sqlite"
 RUN_COLUMNS = {  # column of the run table -> its name in the merged table
@@ -62,7 +63,7 @@ def load_run(folder: Path) -> pd.DataFrame:
     """Every device of one run folder with its run's columns, in the order measured."""
     path = folder / DATABASE_FILE
     try:
-        db = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        db = open_for_reading(path)
         try:
             return _query(db, folder)
         finally:

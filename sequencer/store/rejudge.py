@@ -30,6 +30,7 @@ from sequencer.model.judgesettings import FIGURES, JudgeSettings
 from sequencer.recipe.judgeconfig import parse_accuracy
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.yamlsource import parse_yaml
+from sequencer.store.readonly import read_only_place as _read_only_place
 from sequencer.store.runstore import CSV_COLUMNS, SCHEMA_VERSION, _csv, _figure_sql, device_row
 
 REJUDGE_SCHEMA = """
@@ -73,8 +74,16 @@ def _connect(folder: Path) -> sqlite3.Connection:
     path = folder / "results.sqlite"
     if not path.is_file():
         raise StoreError(f"{folder}: not a run folder (no results.sqlite)")
-    db = sqlite3.connect(path)
-    version = db.execute("PRAGMA user_version").fetchone()[0]
+    try:
+        db = sqlite3.connect(path)
+        version = db.execute("PRAGMA user_version").fetchone()[0]
+    except sqlite3.Error as exc:
+        if _read_only_place(path):
+            raise StoreError(
+                f"{folder}: is on a read-only file system; a re-judgement is stored beside the "
+                "results, so copy the folder somewhere writable and re-judge the copy"
+            ) from None
+        raise StoreReadError(f"{path}: cannot be read ({exc})") from None
     if version > SCHEMA_VERSION:
         db.close()
         raise StoreError(f"{path}: schema {version} is newer than this ccbench ({SCHEMA_VERSION})")
