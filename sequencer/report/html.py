@@ -36,6 +36,7 @@ from sequencer.report.lotsummary import (
     yields,
 )
 from sequencer.report.plotstyle import Plot
+from sequencer.store.atomic import replace_file
 
 CSS = """
 body { font-family: sans-serif; color: #222; background: #fff; max-width: 72rem;
@@ -78,15 +79,17 @@ class ReportFiles:
 
 def write_report(lot: Lot, plots: list[Plot], out: Path) -> ReportFiles:
     """report.html and one PNG per plot in the folder `out`."""
+    # Each file replaced whole (a kill or a full disk mid-write left a 0-byte report.html and a
+    # cut PNG, the previous report lost); the page last, so it never names a picture not there.
     try:
         out.mkdir(parents=True, exist_ok=True)
         pngs = []
         for plot in plots:
             path = out / f"{plot.name}.png"
-            path.write_bytes(plot.png)
+            replace_file(path, plot.png)
             pngs.append(path)
         html = out / "report.html"
-        html.write_text(page(lot, plots), encoding="utf-8")
+        replace_file(html, page(lot, plots).encode("utf-8"))
     except OSError as exc:
         raise StoreError(f"{out}: the report cannot be written ({exc.strerror})") from None
     return ReportFiles(html, tuple(pngs))

@@ -38,6 +38,7 @@ from sequencer.model.errors import StoreError
 from sequencer.model.judgesettings import FIGURE_INFO, FIGURE_UNIT
 from sequencer.report.data import Lot, ReportError, bound_column, u_column, value_column
 from sequencer.report.lotsummary import reported_figures, soft_numbers
+from sequencer.store.atomic import replace_file
 
 # Test numbers of the figures: fixed, never reuse one for another figure.
 TEST_NUMBERS = {
@@ -280,7 +281,7 @@ def write_stdf(lot: Lot, path: Path) -> int:
     data = stdf_bytes(lot)
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_bytes(data)
+        replace_file(path, data)  # whole or not at all: an STDF file cut short misleads readers
     except OSError as exc:
         raise StoreError(f"{path}: cannot be written ({exc.strerror})") from None
     return len(lot.devices)

@@ -30,6 +30,7 @@ from pathlib import Path
 from typing import IO, Any
 
 from sequencer.model.errors import StoreError, StoreReadError
+from sequencer.store.atomic import replace_file, sync_folder, working_name
 
 LOCK_FILE = "run.lock"
 MANIFEST_FILE = "manifest.json"
@@ -229,10 +230,11 @@ def never_reached(folder: Path) -> dict[str, Any] | None:
 def clear_run(folder: Path) -> None:
     """Remove the files of a run that never reached its instrument (`never_reached`)."""
     extra = ("results.sqlite-wal", "results.sqlite-shm", "results.sqlite-journal", "devices.csv")
-    for name in (*RUN_FILES, *extra, MANIFEST_FILE + ".new", "devices.csv.new"):
+    spare = (working_name(folder / MANIFEST_FILE).name, MANIFEST_FILE + ".new", "devices.csv.new")
+    for name in (*RUN_FILES, *extra, *spare):
         with contextlib.suppress(FileNotFoundError):
             (folder / name).unlink()
-    _sync_folder(folder)
+    sync_folder(folder)
 
 
 def _named_instrument(record: Any) -> bool:
@@ -262,15 +264,8 @@ def _stored_devices(path: Path) -> int:
 
 def write_manifest(folder: Path, manifest: dict[str, Any]) -> None:
     """Replace manifest.json atomically and durably."""
-    path = folder / MANIFEST_FILE
-    spare = folder / (MANIFEST_FILE + ".new")
     text = json.dumps({"manifest_format": MANIFEST_FORMAT, **manifest}, indent=2) + "\n"
-    with open(spare, "w", encoding="utf-8") as f:
-        f.write(text)
-        f.flush()
-        os.fsync(f.fileno())
-    os.replace(spare, path)
-    _sync_folder(folder)
+    replace_file(folder / MANIFEST_FILE, text.encode("utf-8"))
 
 
 def read_manifest(folder: Path) -> dict[str, Any]:
@@ -289,12 +284,3 @@ def read_manifest(folder: Path) -> dict[str, Any]:
         raise StoreError(f"{path}: is not a ccbench run manifest (format {MANIFEST_FORMAT})")
     data.pop("manifest_format")
     return data
-
-
-def _sync_folder(folder: Path) -> None:
-    """fsync the folder so that a rename or a new file survives a power cut."""
-    fd = os.open(folder, os.O_RDONLY)
-    try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
