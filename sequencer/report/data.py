@@ -25,6 +25,7 @@ from sequencer.model.errors import CcbenchError, RecipeError, StoreError, StoreR
 from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, JudgeSettings
 from sequencer.recipe.judgeconfig import parse_judge
 from sequencer.recipe.yamlsource import parse_yaml
+from sequencer.store.crosscheck import check_folder
 from sequencer.store.readonly import open_for_reading
 from sequencer.store.yields import final_mask
 
@@ -182,6 +183,7 @@ def _read_folder(folder: Path) -> list[Entry]:
     except sqlite3.Error as exc:
         raise StoreReadError(f"{path}: cannot be read ({exc})") from None
     try:
+        check_folder(folder, db)
         runs = pd.read_sql_query("SELECT * FROM run ORDER BY id", db)
         devices = pd.read_sql_query("SELECT * FROM device ORDER BY rowid", db)
         points = pd.read_sql_query("SELECT * FROM point ORDER BY rowid", db)

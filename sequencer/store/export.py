@@ -17,6 +17,7 @@ from pathlib import Path
 import pandas as pd
 
 from sequencer.model.errors import RecipeError, StoreError, StoreReadError
+from sequencer.store.crosscheck import check_folder
 from sequencer.store.readonly import open_for_reading
 
 DATABASE_FILE = "results.sqlite"
@@ -65,6 +66,7 @@ def load_run(folder: Path) -> pd.DataFrame:
     try:
         db = open_for_reading(path)
         try:
+            check_folder(folder, db)
             return _query(db, folder)
         finally:
             db.close()

@@ -30,6 +30,7 @@ from sequencer.model.judgesettings import FIGURES, JudgeSettings
 from sequencer.recipe.judgeconfig import parse_accuracy
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.yamlsource import parse_yaml
+from sequencer.store.crosscheck import check_folder
 from sequencer.store.readonly import read_only_place as _read_only_place
 from sequencer.store.runstore import CSV_COLUMNS, SCHEMA_VERSION, _csv, _figure_sql, device_row
 
@@ -93,6 +94,7 @@ def _connect(folder: Path) -> sqlite3.Connection:
 def load_run(folder: Path) -> StoredRun:
     db = _connect(folder)
     try:
+        check_folder(folder, db)
         run = db.execute("SELECT id, status, station_text FROM run ORDER BY id DESC").fetchone()
         if run is None:
             raise StoreError(f"{folder}/results.sqlite: holds no run")

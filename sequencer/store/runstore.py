@@ -28,6 +28,7 @@ from sequencer.model.curve import Curve
 from sequencer.model.errors import StoreError
 from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES
 from sequencer.store import database as dbase
+from sequencer.store.crosscheck import RECORD_KEY, records
 from sequencer.store.journal import Journal, encode_floats
 from sequencer.store.migrations import LATEST
 from sequencer.store.resume import (
@@ -330,6 +331,9 @@ class RunStore:
         session = {**ends, "ended": ended} if ended else ends
         self.manifest["sessions"][-1].update(session)
         problems = [
+            self._try(lambda: self.manifest.update({RECORD_KEY: records(self.folder, self.db)}))
+        ]
+        problems += [
             self._try(lambda: dbase.update_run(self.db, self.run_id, **ends)),
             self._try(lambda: dbase.update_session(self.db, self.run_id, self.session, **session)),
             self._try(lambda: write_manifest(self.folder, self.manifest)),

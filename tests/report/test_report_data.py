@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import json
 import shutil
 import sqlite3
 
@@ -82,6 +83,9 @@ def test_missing_columns_are_filled(lot_folder, tmp_path):
     """An older schema without bins and without the peak figures."""
     folder = tmp_path / "older"
     shutil.copytree(lot_folder, folder)
+    manifest = json.loads((folder / "manifest.json").read_text())
+    manifest.pop("records")  # an older ccbench recorded no end-of-run check values
+    (folder / "manifest.json").write_text(json.dumps(manifest))
     db = sqlite3.connect(folder / "results.sqlite")
     with db:
         for column in ("hard_bin", "bin_class", "soft_bin", "peak_current_A", "peak_current_u_A"):
