@@ -57,7 +57,7 @@ def test_a_device_deleted_from_the_database_is_named(ended, reader):
     gone = _device(ended, 1)
     _sql(ended, f"DELETE FROM point WHERE device = '{gone}'",
          f"DELETE FROM device WHERE device = '{gone}'")  # fmt: skip
-    with pytest.raises(StoreReadError, match="records disagree.*number of devices"):
+    with pytest.raises(StoreReadError, match=r"records disagree.*number of devices"):
         READERS[reader](ended)
 
 
