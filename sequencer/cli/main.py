@@ -23,8 +23,19 @@ from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import judgecmd, partcmd, reportcmd, results, studycmd, uploadcmd
+from sequencer.cli import (
+    detach,
+    jsonout,
+    judgecmd,
+    partcmd,
+    reportcmd,
+    results,
+    statuscmd,
+    studycmd,
+    uploadcmd,
+)
 from sequencer.cli import runcmd as runsession
+from sequencer.cli.checkjson import check_document
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
 from sequencer.cli.view import plan_summary, plan_table, showing_devices, summary_table
@@ -76,16 +87,19 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
     run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
     runsession.add_run_options(run)
+    detach.add_options(run)
 
     check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
     check.add_argument("recipe", type=Path)
     check.add_argument("--station", type=Path, help="station file instead of the recipe's")
     check.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
+    check.add_argument("--json", action="store_true", help=jsonout.FLAG_HELP)
 
     judgecmd.add_parsers(sub)
     reportcmd.add_parser(sub)
 
     results.add_parser(sub)
+    statuscmd.add_parser(sub)
     studycmd.add_parser(sub)
     uploadcmd.add_parser(sub)
 
@@ -105,18 +119,36 @@ def main(
 ) -> int:
     """Run one command; returns its exit code. `exiting`: the process ends after this (the
     `ccbench` program itself), so stop signals stay ignored once the command is over."""
-    console = console or Console(file=Screen(sys.stdout), highlight=False)
     args = build_parser().parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)  # for a --detach child
+    given = console is not None
+    console = console or Console(file=Screen(sys.stdout), highlight=False)
     try:
         with GATE.installed(ignore_after=exiting):  # the first signal raises; more cannot
             return COMMANDS[args.command](args, console)  # cut a shutdown short
     except CcbenchError as exc:
         # The message may quote a file: shown as written, never read as markup or emoji codes.
-        console.print(f"[bold red]ccbench:[/] {escape(str(exc))}", soft_wrap=True, emoji=False)
+        _error(console, args, given, f"[bold red]ccbench:[/] {escape(str(exc))}")
         return exc.exit_code
     except (KeyboardInterrupt, Terminated) as exc:
-        console.print(f"[bold yellow]ccbench:[/] {_why_stopped(exc)}", soft_wrap=True)
+        _error(console, args, given, f"[bold yellow]ccbench:[/] {escape(_why_stopped(exc))}")
         return EXIT_INTERRUPTED
+
+
+def _error(console: Console, args: argparse.Namespace, given: bool, line: str) -> None:
+    """The error line: on stderr under --json and whenever stdout is not a terminal (a script
+    reading stdout gets the document or nothing; a log file gets the screen and the person at
+    the terminal the error), on the screen otherwise. A console handed in (a test's) keeps it
+    unless --json asks for a clean stdout. If stderr cannot be written (its reader gone), the
+    line goes to the screen after all: it says how the output was left."""
+    json_mode = bool(getattr(args, "json", False))
+    if not json_mode and (given or console.file.isatty()):
+        console.print(line, soft_wrap=True, emoji=False)
+        return
+    errors = Console(file=Screen(sys.stderr, "stderr"), highlight=False)
+    errors.print(line, soft_wrap=True, emoji=False)
+    if errors.file.lost and not json_mode:  # type: ignore[attr-defined]
+        console.print(line, soft_wrap=True, emoji=False)
 
 
 def _why_stopped(exc: BaseException) -> str:
@@ -136,9 +168,13 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     problem = judgecover.unmeasured(plan, recipe.judge)
     if problem is not None:
         raise RecipeError(recipe.file, None, *problem)
-    for warning in judgecover.clamping(plan, recipe.judge):
-        console.print(f"[yellow]ccbench: warning:[/] {recipe.file}: {warning}", soft_wrap=True)
+    warnings = [f"{recipe.file}: {w}" for w in judgecover.clamping(plan, recipe.judge)]
     prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
+    if args.json:
+        jsonout.write(console, "check", check_document(recipe, plan, prediction, warnings))
+        return 0
+    for warning in warnings:
+        console.print(f"[yellow]ccbench: warning:[/] {warning}", soft_wrap=True)
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
@@ -178,9 +214,12 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             f"{recipe.file}: 'temperatures:' runs on a station with one SMU and a tray only: "
             "use a station with one instrument, without --part-by-part"
         )
+    if detach.wanted(args):
+        return detach.start(args.argv, out, console, named_out=args.out is not None)
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
     manifest |= partcmd.manifest_extras(recipe, args, repeat)
+    manifest["planned"] = statuscmd.planned(plan, prediction, repeat, args.part_by_part)
     shipper.check_driver(recipe.station.results_database)
     store = runsession.open_store(out, manifest, args, console)
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
@@ -412,6 +451,7 @@ COMMANDS = {
     **judgecmd.COMMANDS,
     **reportcmd.COMMANDS,
     "results": results.cmd_results,
+    "status": statuscmd.cmd_status,
     "upload": uploadcmd.cmd_upload,
     "study": studycmd.cmd_study,
 }
