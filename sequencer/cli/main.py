@@ -27,6 +27,7 @@ from sequencer.cli import (
     detach,
     jsonout,
     judgecmd,
+    operatorview,
     partcmd,
     reportcmd,
     results,
@@ -85,6 +86,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
     run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
+    run.add_argument("--operator-view", action="store_true", help=operatorview.FLAG_HELP)
     run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
     runsession.add_run_options(run)
     detach.add_options(run)
@@ -199,13 +201,15 @@ def _lot_option(recipe: Recipe, lot: str | None) -> Recipe:
 
 
 def cmd_run(args: argparse.Namespace, console: Console) -> int:
+    partcmd.check_options(args)
     recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
     prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
     _cautions(console, recipe, plan)
-    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
+    if not args.operator_view:  # the production screen shows no plan or estimate
+        console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or _default_folder(recipe.lot, console)
     repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
     several = len(recipe.station.instruments) > 1
@@ -239,8 +243,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             )  # fmt: skip
         else:
             summary = _on_one_bench(
-                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part
-            )
+                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part,
+                args.operator_view,
+            )  # fmt: skip
         status = summary.status
     except (Exception, KeyboardInterrupt, Terminated) as exc:
         status = "interrupted" if isinstance(exc, KeyboardInterrupt | Terminated) else "failed"
@@ -257,8 +262,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     console.print(summary_table(summary))
     if recipe.temperatures:
         _tempcos(console, recipe, store, out)
-    took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
-    console.print(took, soft_wrap=True)
+    if not args.operator_view:
+        took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
+        console.print(took, soft_wrap=True)
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
     return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
@@ -312,7 +318,9 @@ def _finish(console: Console, store, status: str, ended: str) -> None:
         console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
 
 
-def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
+def _on_one_bench(
+    console, recipe, plan, resource, out, store, repeat, bench, part_by_part, operator_view=False
+):
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect  # start-up speed: `instruments` loads pyvisa
     from sequencer.run.startnotes import instrument_record  # start-up speed, as above
@@ -344,7 +352,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
             if part_by_part:
                 tester = PartBench(recipe, plan, conn.smu, store, guard)
                 write, sim = conn.smu.transport.write, resource == "sim"
-                return partcmd.from_command_line(console, tester, sim, write)
+                return partcmd.from_command_line(console, tester, sim, write, operator_view)
 
             def one_pass(part):
                 if chamber is not None:  # the output is off between passes: soak first
