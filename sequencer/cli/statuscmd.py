@@ -100,7 +100,7 @@ def _state(status: RunStatus) -> str:
 
 def _output(status: RunStatus) -> str:
     if status.running:
-        return "switched on for each device as it is measured, off between devices and passes"
+        return "on while a device is measured, off between devices"
     ended = status.last_session.get("ended")
     if ended:
         return str(ended)
@@ -168,9 +168,9 @@ def lines(facts: dict[str, Any]) -> list[str]:
     counts = ", ".join(f"{n} {v}" for v, n in sorted(facts["verdicts"].items()))
     out.append(f"stored: {facts['stored']} devices" + (f" ({counts})" if counts else ""))
     out.append(f"output: {facts['output']}")
-    for number, ended in enumerate(facts["ended"], start=1):
-        if ended:
-            out.append(f"session {number} ended: {ended}")
+    if len(facts["ended"]) > 1:  # one session: its ending is the output line above
+        for number, ended in enumerate(facts["ended"], start=1):
+            out.append(f"session {number} ended: {ended or 'not recorded'}")
     eta = facts["eta"]
     if eta and eta["at"]:
         local = dt.datetime.fromisoformat(eta["at"]).astimezone().strftime("%H:%M:%S")

@@ -21,7 +21,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sequencer.store.runfolder import LOCK_FILE, read_manifest
+from sequencer.model.errors import StoreReadError
+from sequencer.store.runfolder import LOCK_FILE, MANIFEST_FILE, holds_run, read_manifest
 
 JOURNAL_FILE = "journal.jsonl"
 HOLDER = re.compile(r"^pid (\d+) on (\S+) since (\S+)")
@@ -74,7 +75,12 @@ class RunStatus:
 
 
 def look(folder: Path) -> RunStatus:
-    """The folder's run as it stands (StoreError, exit 2, for a folder that holds none)."""
+    """The folder's run as it stands (StoreReadError, exit 2, for a folder that holds none)."""
+    if not folder.is_dir():
+        raise StoreReadError(f"{folder}: no such run folder")
+    if not (folder / MANIFEST_FILE).exists():
+        what = "holds a run written before run manifests" if holds_run(folder) else "holds no run"
+        raise StoreReadError(f"{folder}: {what}; `ccbench status` needs its {MANIFEST_FILE}")
     manifest = read_manifest(folder)
     sessions = manifest.get("sessions") or [{}]
     session = int(sessions[-1].get("session") or 1)

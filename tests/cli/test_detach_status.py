@@ -175,3 +175,48 @@ def test_a_detached_run_that_cannot_have_its_folder_hands_back_its_error(tmp_pat
     assert "the background run ended at once (exit 2)" in done.stderr
     assert "already holds a run" in done.stderr or "holds a run" in done.stderr
     assert len(csv_rows(out)) == 2  # nothing measured again
+
+
+@pytest.mark.parametrize(
+    ("make", "words"),
+    [
+        (lambda p: p / "missing", "no such run folder"),
+        (lambda p: p, "holds no run; `ccbench status` needs its manifest.json"),
+    ],
+)
+def test_status_of_a_folder_without_a_run_is_one_line_and_exit_2(tmp_path, make, words):
+    done = ccbench("status", str(make(tmp_path)), "--json")
+    assert done.returncode == 2 and done.stdout == ""
+    assert done.stderr.strip() == f"ccbench: {make(tmp_path)}: {words}"
+
+
+def _running(tally, planned, started="2026-12-03T07:00:00+00:00"):
+    from sequencer.store.runstatus import Holder, RunStatus
+
+    manifest = {"started": started, "status": "running", "planned": planned,
+                "sessions": [{"session": 1}]}  # fmt: skip
+    return RunStatus(Path("runs/x"), manifest, tally, Holder(1, "here", "", True))
+
+
+def test_the_expected_end_comes_from_the_estimate_then_from_the_pace():
+    import datetime as dt
+
+    from sequencer.cli.statuscmd import describe
+    from sequencer.store.runstatus import Tally
+
+    now = dt.datetime(2026, 12, 3, 7, 10, tzinfo=dt.UTC)
+    planned = {"devices_per_pass": 20, "seconds_per_device": 0.5, "schedule": None}
+    one = Tally(1, {"pass": 1}, 1, 1, 1, "2026-12-03T07:09:59+00:00", "2026-12-03T07:09:59+00:00")
+    eta = describe(_running(one, planned), now)["eta"]
+    assert eta["seconds"] == pytest.approx(19 * 0.5) and "estimate" in eta["basis"]
+    # 5 devices over 8 s of this session: 2 s a device, 15 left in the pass
+    five = Tally(5, {"pass": 5}, 1, 5, 5, "2026-12-03T07:09:50+00:00", "2026-12-03T07:09:58+00:00")
+    eta = describe(_running(five, planned), now)["eta"]
+    assert eta["pace_s"] == pytest.approx(2.0) and eta["seconds"] == pytest.approx(15 * 2.0)
+    # three passes, one every 60 s: the two passes still to come take 60 s each (40 s of work)
+    every = planned | {"schedule": {"every_s": 60.0, "for_s": None, "passes": 3}}
+    eta = describe(_running(five, every), now)["eta"]
+    assert eta["seconds"] == pytest.approx(15 * 2.0 + 2 * 60.0)
+    # until stopped: no end to expect
+    open_ended = planned | {"schedule": {"every_s": 60.0, "for_s": None, "passes": None}}
+    assert describe(_running(five, open_ended), now)["eta"]["at"] is None
