@@ -22,7 +22,8 @@ from pathlib import Path
 from rich.console import Console
 
 from sequencer.model.errors import RecipeError, RunError, StoreError
-from sequencer.store.runfolder import LOCK_FILE, read_manifest, unwritable
+from sequencer.store.runfolder import LOCK_FILE, FolderRefused, read_manifest, unwritable
+from sequencer.store.runstatus import holder
 
 SCREEN_FILE = "screen.log"
 CHILD_FLAG = "--detached-child"  # hidden: marks the child, which runs in the foreground
@@ -58,6 +59,12 @@ def wanted(args: argparse.Namespace) -> bool:
 
 def start(argv: list[str], out: Path, console: Console, named_out: bool) -> int:
     """Start the child; return 0 once it holds the folder, else its exit code."""
+    held = holder(out) if out.is_dir() else None
+    if held is not None and held.alive:  # said before anything is written in its folder
+        raise FolderRefused(
+            out, f"in use by another run (pid {held.pid} on {held.host}); wait for it or "
+            f"choose another --out (ccbench status {out})",
+        )  # fmt: skip
     try:
         out.mkdir(parents=True, exist_ok=True)
         screen = open(out / SCREEN_FILE, "ab")  # noqa: SIM115 - handed to the child

@@ -16,7 +16,7 @@ if TYPE_CHECKING:  # pandas is imported when the command runs, not on every ccbe
     from sequencer.cli.runrows import RunRow
 
 DEVICE_TEXT = ("device", "verdict", "bin_class", "soft_bin", "classification", "reasons")
-DEVICE_NUMBERS = ("pass", "hard_bin", "channel")
+DEVICE_NUMBERS = ("hard_bin", "channel")
 
 
 def results_document(
@@ -47,7 +47,7 @@ def results_document(
 def _run(r: RunRow, *, show_yield: bool) -> dict[str, Any]:
     return {
         "folder": r.folder, "lot": r.lot, "started": r.started or None, "status": r.status,
-        "devices": r.devices, "passes": r.passes, "pass": r.passed, "fail": r.failed,
+        "devices": r.devices, "rounds": r.passes, "verdicts": {"pass": r.passed, "fail": r.failed},
         "yield": r.judged_yield if show_yield else None,
     }  # fmt: skip
 
@@ -68,6 +68,8 @@ def _device(row: dict[str, Any]) -> dict[str, Any]:
         if f"{figure}_at_least" in row:
             flag = row[f"{figure}_at_least"]
             out[f"{figure}_at_least"] = None if flag is None or flag != flag else bool(flag)
+    number = row.get("pass")  # the repetition number, stored as `pass` in today's folders
+    out["round"] = None if number is None or number != number else int(number)
     out["measured"] = row.get("measured")
     return out
 

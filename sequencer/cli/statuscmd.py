@@ -2,7 +2,7 @@
 
 Read only (store.runstatus): the lock is never taken, so looking at a run can never refuse,
 slow or change it. It says whether the run is still going (its lock held by a live process),
-its progress (devices of the pass over the tray, and of the run), passes and fails so far,
+its progress (devices of the round over the tray, and of the run), passes and fails so far,
 how the output was last recorded, how each session ended, and when it should end: the plan's
 estimate per device until two devices of this session are stored, then the pace measured so
 far.
@@ -33,14 +33,19 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def planned(
     plan: Plan, estimate: Estimate | None, repeat: Repeat | None, part_by_part: bool
 ) -> dict[str, Any]:
-    """What the run manifest keeps of the plan for `status`: devices per pass over the tray,
-    the estimate per device, the schedule (None: one pass; part by part: no fixed count)."""
+    """What the run manifest keeps of the plan for `status`: devices per round over the tray
+    (the repetition the recipe's `repeat:` calls a pass), the estimate per device, the
+    schedule (None: one round; part by part: no fixed count)."""
     per_device = estimate.per_device_s if estimate else plan.seconds_per_device()
     return {
-        "devices_per_pass": None if part_by_part else len(plan.channels),
+        "devices_per_round": None if part_by_part else len(plan.channels),
         "seconds_per_device": per_device,
-        "schedule": None if repeat is None else repeat.as_dict(),
+        "schedule": None if repeat is None else _schedule(repeat),
     }
+
+
+def _schedule(repeat: Repeat) -> dict[str, Any]:
+    return {"every_s": repeat.every_s, "for_s": repeat.for_s, "rounds": repeat.passes}
 
 
 def cmd_status(args: argparse.Namespace, console: Console) -> int:
@@ -59,7 +64,7 @@ def describe(status: RunStatus, now: dt.datetime) -> dict[str, Any]:
     m, t, h = status.manifest, status.tally, status.holder
     session = status.last_session
     plan = m.get("planned") if isinstance(m.get("planned"), dict) else {}
-    per_pass = plan.get("devices_per_pass")
+    per_round = plan.get("devices_per_round")
     return {
         "folder": str(status.folder),
         "lot": m.get("lot"),
@@ -74,9 +79,9 @@ def describe(status: RunStatus, now: dt.datetime) -> dict[str, Any]:
         },
         "session": session.get("session"),
         "sessions": len(status.sessions),
-        "pass": t.last_pass,
-        "devices_per_pass": per_pass,
-        "done_in_pass": t.done_in_last_pass,
+        "round": t.last_round,
+        "devices_per_round": per_round,
+        "done_in_round": t.done_in_last_round,
         "stored": t.stored,
         "verdicts": t.verdicts,
         "output": _output(status),
@@ -117,21 +122,21 @@ def _eta(status: RunStatus, plan: dict[str, Any], now: dt.datetime) -> dict[str,
     t = status.tally
     pace, basis = _pace(status, plan)
     schedule = plan.get("schedule") or {}
-    per_pass = plan.get("devices_per_pass")
-    if per_pass is None:
+    per_round = plan.get("devices_per_round")
+    if per_round is None:
         return {"at": None, "basis": "part by part: ends when the operator quits", "pace_s": pace}
-    left_in_pass = max(int(per_pass) - t.done_in_last_pass, 0)
-    passes, every, lasting = schedule.get("passes"), schedule.get("every_s"), schedule.get("for_s")
-    if schedule and passes is None and lasting is None:
+    left_in_round = max(int(per_round) - t.done_in_last_round, 0)
+    rounds, every, lasting = schedule.get("rounds"), schedule.get("every_s"), schedule.get("for_s")
+    if schedule and rounds is None and lasting is None:
         return {"at": None, "basis": "repeats until stopped", "pace_s": pace}
-    seconds = left_in_pass * pace
-    if passes is not None:
-        pass_s = max(float(every or 0), int(per_pass) * pace)
-        seconds += max(int(passes) - t.last_pass, 0) * pass_s
+    seconds = left_in_round * pace
+    if rounds is not None:
+        round_s = max(float(every or 0), int(per_round) * pace)
+        seconds += max(int(rounds) - t.last_round, 0) * round_s
     at = now + dt.timedelta(seconds=seconds)
     if lasting is not None:
         end = _parse(status.manifest.get("started")) + dt.timedelta(seconds=float(lasting))
-        at = min(at, end) if passes is not None else max(end, now)
+        at = min(at, end) if rounds is not None else max(end, now)
         basis += f"; the schedule ends the run {float(lasting) / 3600:g} h after its start"
     return {"at": at.isoformat(timespec="seconds"), "seconds": (at - now).total_seconds(),
             "basis": basis, "pace_s": pace}  # fmt: skip
@@ -161,10 +166,11 @@ def lines(facts: dict[str, Any]) -> list[str]:
     h = facts["holder"]
     if facts["state"] == "running" and h["pid"]:
         out.append(f"held by: pid {h['pid']} on {h['host']} since {h['since']}")
-    per_pass = facts["devices_per_pass"]
-    of = f" of {per_pass}" if per_pass else ""
-    schedule = f" ({facts['schedule']})" if facts["schedule"] else ""
-    out.append(f"pass {facts['pass']}: {facts['done_in_pass']}{of} devices{schedule}")
+    per_round = facts["devices_per_round"]
+    of = f" of {per_round}" if per_round else ""
+    out.append(f"round {facts['round']}: {facts['done_in_round']}{of} devices")
+    if facts["schedule"]:
+        out.append(f"schedule: {facts['schedule']}")
     counts = ", ".join(f"{n} {v}" for v, n in sorted(facts["verdicts"].items()))
     out.append(f"stored: {facts['stored']} devices" + (f" ({counts})" if counts else ""))
     out.append(f"output: {facts['output']}")

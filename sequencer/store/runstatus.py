@@ -41,13 +41,14 @@ class Holder:
 
 @dataclass(frozen=True)
 class Tally:
-    """The devices the journal holds: counts by verdict, the latest pass (repetition number),
-    the channels done in it, and when devices of the current session were measured."""
+    """The devices the journal holds: counts by verdict, the latest round (the repetition
+    number, stored as `pass` in today's journals), the channels done in it, and when devices
+    of the current session were measured."""
 
     stored: int = 0
     verdicts: dict[str, int] = field(default_factory=dict)
-    last_pass: int = 1
-    done_in_last_pass: int = 0
+    last_round: int = 1
+    done_in_last_round: int = 0
     session_devices: int = 0
     session_first: str | None = None
     session_last: str | None = None
@@ -89,21 +90,21 @@ def look(folder: Path) -> RunStatus:
 
 def tally(path: Path, session: int) -> Tally:
     verdicts: Counter[str] = Counter()
-    channels_by_pass: dict[int, set[object]] = {}
+    channels_by_round: dict[int, set[object]] = {}
     stored = in_session = 0
     first = last = None
     for entry in _entries(path):
         stored += 1
         verdicts[str(entry.get("verdict"))] += 1
-        number = int(entry.get("pass") or 1)
-        channels_by_pass.setdefault(number, set()).add(entry.get("channel", entry.get("device")))
+        number = int(entry.get("round", entry.get("pass")) or 1)
+        channels_by_round.setdefault(number, set()).add(entry.get("channel", entry.get("device")))
         if int(entry.get("session") or 1) == session:
             in_session += 1
             first = first or entry.get("measured")
             last = entry.get("measured") or last
-    last_pass = max(channels_by_pass, default=1)
-    done = len(channels_by_pass.get(last_pass, ()))
-    return Tally(stored, dict(verdicts), last_pass, done, in_session, first, last)
+    last_round = max(channels_by_round, default=1)
+    done = len(channels_by_round.get(last_round, ()))
+    return Tally(stored, dict(verdicts), last_round, done, in_session, first, last)
 
 
 def _entries(path: Path):

@@ -104,7 +104,7 @@ def test_status_counts_what_the_run_stored_and_how_it_ended(tmp_path):
     assert done.returncode == 0, done.stdout + done.stderr
     facts = status(out)
     rows = csv_rows(out)
-    assert facts["stored"] == len(rows) == facts["done_in_pass"] == facts["devices_per_pass"]
+    assert facts["stored"] == len(rows) == facts["done_in_round"] == facts["devices_per_round"]
     verdicts = {v: sum(r["verdict"] == v for r in rows) for v in {r["verdict"] for r in rows}}
     assert facts["verdicts"] == verdicts
     assert facts["state"] == "completed" and facts["holder"]["alive"] is False
@@ -205,7 +205,7 @@ def test_the_expected_end_comes_from_the_estimate_then_from_the_pace():
     from sequencer.store.runstatus import Tally
 
     now = dt.datetime(2026, 12, 3, 7, 10, tzinfo=dt.UTC)
-    planned = {"devices_per_pass": 20, "seconds_per_device": 0.5, "schedule": None}
+    planned = {"devices_per_round": 20, "seconds_per_device": 0.5, "schedule": None}
     one = Tally(1, {"pass": 1}, 1, 1, 1, "2026-12-03T07:09:59+00:00", "2026-12-03T07:09:59+00:00")
     eta = describe(_running(one, planned), now)["eta"]
     assert eta["seconds"] == pytest.approx(19 * 0.5) and "estimate" in eta["basis"]
@@ -213,10 +213,28 @@ def test_the_expected_end_comes_from_the_estimate_then_from_the_pace():
     five = Tally(5, {"pass": 5}, 1, 5, 5, "2026-12-03T07:09:50+00:00", "2026-12-03T07:09:58+00:00")
     eta = describe(_running(five, planned), now)["eta"]
     assert eta["pace_s"] == pytest.approx(2.0) and eta["seconds"] == pytest.approx(15 * 2.0)
-    # three passes, one every 60 s: the two passes still to come take 60 s each (40 s of work)
-    every = planned | {"schedule": {"every_s": 60.0, "for_s": None, "passes": 3}}
+    # three rounds, one every 60 s: the two rounds still to come take 60 s each (40 s of work)
+    every = planned | {"schedule": {"every_s": 60.0, "for_s": None, "rounds": 3}}
     eta = describe(_running(five, every), now)["eta"]
     assert eta["seconds"] == pytest.approx(15 * 2.0 + 2 * 60.0)
     # until stopped: no end to expect
-    open_ended = planned | {"schedule": {"every_s": 60.0, "for_s": None, "passes": None}}
+    open_ended = planned | {"schedule": {"every_s": 60.0, "for_s": None, "rounds": None}}
     assert describe(_running(five, open_ended), now)["eta"]["at"] is None
+
+
+def test_detach_into_a_folder_in_use_is_refused_before_writing_there(tmp_path):
+    recipe, out = bench(tmp_path, "1-2"), tmp_path / "busy"
+    run = subprocess.Popen(  # holds its folder while it waits a minute for its second round
+        [sys.executable, "-m", "sequencer.cli", "run", str(recipe), "--sim", "--out", str(out),
+         "--every", "60 s", "--passes", "2"],
+        cwd=ROOT, env=ENV, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+    )  # fmt: skip
+    try:
+        wait_for(lambda: status_running(out), what="a running run with a stored device")
+        done = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume", "--detach")
+        assert done.returncode == 2 and done.stdout.count("run started") == 0
+        assert f"in use by another run (pid {run.pid} on " in done.stderr, done.stderr
+        assert not (out / "screen.log").exists()  # nothing written into the busy folder
+    finally:
+        run.terminate()
+        run.wait(timeout=60)

@@ -119,7 +119,8 @@ def test_results_json_holds_every_stored_device(stored_run):
         assert d["regulated_current_A"] == pytest.approx(float(r["regulated_current_A"]))
     [run] = doc["runs"]
     assert run["devices"] == len(rows)
-    assert run["pass"] == sum(r["verdict"] == "pass" for r in rows)
+    assert run["verdicts"]["pass"] == sum(r["verdict"] == "pass" for r in rows)
+    assert run["rounds"] == 1 and {d["round"] for d in doc["devices"]} == {1}
     [group] = doc["yield_by"]["rows"]
     good = sum(r["bin_class"] == "pass" for r in rows)
     assert group["yield"] == pytest.approx(good / len(rows))
