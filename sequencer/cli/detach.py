@@ -21,6 +21,7 @@ from pathlib import Path
 
 from rich.console import Console
 
+from sequencer.bench.benchrun import Terminated
 from sequencer.model.errors import RecipeError, RunError, StoreError
 from sequencer.store.runfolder import LOCK_FILE, FolderRefused, read_manifest, unwritable
 from sequencer.store.runstatus import holder
@@ -28,6 +29,7 @@ from sequencer.store.runstatus import holder
 SCREEN_FILE = "screen.log"
 CHILD_FLAG = "--detached-child"  # hidden: marks the child, which runs in the foreground
 POLL_S = 0.05
+EXIT_SIGNAL = 130  # as the README's table: stopped by a signal
 LOCK_WAIT_S = 300.0  # start-up and a slow disk; far above what a start takes
 
 
@@ -78,7 +80,15 @@ def start(argv: list[str], out: Path, console: Console, named_out: bool) -> int:
             command, stdin=subprocess.DEVNULL, stdout=screen, stderr=subprocess.STDOUT,
             start_new_session=True, close_fds=True,
         )  # fmt: skip
-    code = _wait_for_lock(child, out)
+    try:
+        code = _wait_for_lock(child, out)
+    except (KeyboardInterrupt, Terminated) as exc:  # the wait is stopped, not the run
+        stopped = RunError(
+            f"{exc or 'stopped'} while waiting; the background run (pid {child.pid}) goes on "
+            f"without this terminal: ccbench status {out}"
+        )
+        stopped.exit_code = EXIT_SIGNAL
+        raise stopped from None
     if code is not None:
         raise ChildEnded(code, _last_line(out / SCREEN_FILE))
     console.print(
