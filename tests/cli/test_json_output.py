@@ -160,3 +160,26 @@ def test_report_json_for_an_unknown_device_is_exit_2_on_stderr(stored_run):
     done = ccbench("report", str(stored_run), "--json", "--device", "no-such-part")
     assert done.returncode == 2 and done.stdout == ""
     assert "no device 'no-such-part'" in done.stderr
+
+
+@pytest.mark.sim
+def test_results_json_from_the_shared_database_says_what_the_folder_says(tmp_path, pg_url):
+    from tests.support.stations import write_recipe, write_station
+
+    station = write_station(tmp_path / "recipes", channels=3, extra=f'results_database: "{pg_url}"')
+    recipe = write_recipe(tmp_path / "recipes", station)
+    out = tmp_path / "run"
+    lot = "FK2611-JSON"  # the session's database is shared with other tests: a lot of its own
+    done = ccbench("run", str(recipe), "--sim", "--out", str(out), "--send-dry-run", "--lot", lot)
+    assert done.returncode == 0, done.stdout + done.stderr
+    folder = document(ccbench("results", str(out), "--json", "--by", "lot", "--devices"), "results")
+    shared = document(
+        ccbench("results", "--database", pg_url, "--dry-runs", "--json", "--by", "lot",
+                "--devices", "--lot", lot),
+        "results",
+    )  # fmt: skip
+    assert shared["source"] == "database" and folder["source"] == "folders"
+    assert shared["yield_by"]["rows"] == folder["yield_by"]["rows"]
+    assert [(d["device"], d["verdict"], d["round"]) for d in shared["devices"]] == [
+        (d["device"], d["verdict"], d["round"]) for d in folder["devices"]
+    ]
