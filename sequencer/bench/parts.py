@@ -25,7 +25,7 @@ from sequencer.bench.prompts import Lid, Quit, Scanner
 from sequencer.judge.engine import Judgement, judge_curve, with_bin
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
-from sequencer.recipe.retest import Attempt, admit, stands
+from sequencer.recipe.retest import Admission, Attempt, admit, standing_attempt, stands
 from sequencer.run.device import measure_device
 from sequencer.run.recorder import Recorder, Smu
 from sequencer.safety.rules import Guard
@@ -50,6 +50,25 @@ class Parts:
     def add(self, serial: str, attempt: Attempt) -> None:
         self.attempts.setdefault(serial, []).append(attempt)
 
+    def tally(self) -> Tally:
+        """The run's parts so far, each counted once with the attempt that stands."""
+        results = [standing_attempt(a) for a in self.attempts.values()]
+        done = [r for r in results if r is not None and r.completed]
+        good = sum(r.good for r in done)
+        tests = sum(len(a) for a in self.attempts.values())
+        return Tally(len(self.attempts), good, len(done) - good, tests)
+
+
+@dataclass(frozen=True)
+class Tally:
+    """Parts seen, parts whose result is in a pass-class bin, parts whose result is not (an
+    aborted-only part is neither), and tests (attempts) in all."""
+
+    parts: int
+    passed: int
+    failed: int
+    tests: int
+
 
 def stored_parts(store: RunStore, channels: tuple[int, ...]) -> Parts:
     """The parts a resumed run holds already, so that retests count across sessions."""
@@ -63,11 +82,26 @@ def stored_parts(store: RunStore, channels: tuple[int, ...]) -> Parts:
 @dataclass(frozen=True)
 class PartResult:
     """One attempt's outcome for the screen: the judgement, its attempt number and, when an
-    earlier attempt stays the part's result, a note saying so."""
+    earlier attempt stays the part's result, a note saying so; whether the part may be tested
+    again (`again`, under the retest policy) and the run's count of parts so far."""
 
     judgement: Judgement
     attempt: int
     note: str = ""
+    again: Admission | None = None
+    tally: Tally | None = None
+    retests_left: int = 0  # further tests the policy allows this part (when `again` allows)
+
+
+@dataclass(frozen=True)
+class Refusal:
+    """A scanned part the retest policy does not let be tested; shown instead of a test."""
+
+    serial: str
+    why: str
+
+    def __str__(self) -> str:
+        return f"[bold red]not tested:[/] {self.serial}: {self.why}; set the part aside"
 
 
 @dataclass
@@ -98,7 +132,10 @@ def run_parts(
         except Quit:
             break
         judgement = measure_part(station, parts, serial, socket, attempt, summary, show)
-        show(PartResult(judgement, attempt, _standing_note(parts, serial)))
+        again = admit(parts.attempts[serial], station.recipe.part_by_part)
+        left = _retests_left(parts.attempts[serial], station.recipe.part_by_part.retests)
+        note = _standing_note(parts, serial)
+        show(PartResult(judgement, attempt, note, again, parts.tally(), left))
     summary.total, summary.seconds = summary.done, station.clock() - start
     summary.status = "completed"
     show(f"quit between parts: output off; {summary.done} tests stored in {station.store.folder}")
@@ -115,7 +152,7 @@ def _next_part(
         if admission.allowed:
             show(f"{serial}: {admission.why}")
             return serial, admission.attempt
-        show(f"[bold red]not tested:[/] {serial}: {admission.why}; set the part aside")
+        show(Refusal(serial, admission.why))
 
 
 def measure_part(
@@ -164,6 +201,11 @@ def _store(
     station.store.add_device(curve, judgement, {"standing": int(stood)})
     parts.add(serial, Attempt(attempt, judgement.verdict, judgement.bin_class, stood))
     summary.count(judgement)
+
+
+def _retests_left(attempts: list[Attempt], retests: int) -> int:
+    """Tests the policy still allows after these attempts (aborted ones do not count)."""
+    return max(retests + 1 - sum(a.completed for a in attempts), 0)
 
 
 def _standing_note(parts: Parts, serial: str) -> str:

@@ -35,6 +35,7 @@ class Scanner:
     readline: Callable[[], str]
     say: Callable[[str], None]
     pattern: str = ""
+    normalise: Callable[[str], str] = str  # the recipe's serial rule (recipe.serials)
 
     def next_serial(self, prompt: str) -> str:
         """The next valid serial; raises Quit at the quit word or the end of the input."""
@@ -48,6 +49,9 @@ class Scanner:
                 continue  # a stray Enter, or a scanner's empty read
             if serial.casefold() in QUIT_WORDS:
                 raise Quit(serial)
+            serial = self.normalise(serial).strip()
+            if not serial:
+                continue
             problem = self.problem(serial)
             if not problem:
                 return serial

@@ -23,8 +23,20 @@ from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import judgecmd, partcmd, reportcmd, results, studycmd, uploadcmd
+from sequencer.cli import (
+    detach,
+    jsonout,
+    judgecmd,
+    operatorview,
+    partcmd,
+    reportcmd,
+    results,
+    statuscmd,
+    studycmd,
+    uploadcmd,
+)
 from sequencer.cli import runcmd as runsession
+from sequencer.cli.checkjson import check_document
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
 from sequencer.cli.view import plan_summary, plan_table, showing_devices, summary_table
@@ -74,18 +86,22 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
     run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
+    run.add_argument("--operator-view", action="store_true", help=operatorview.FLAG_HELP)
     run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
     runsession.add_run_options(run)
+    detach.add_options(run)
 
     check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
     check.add_argument("recipe", type=Path)
     check.add_argument("--station", type=Path, help="station file instead of the recipe's")
     check.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
+    check.add_argument("--json", action="store_true", help=jsonout.FLAG_HELP)
 
     judgecmd.add_parsers(sub)
     reportcmd.add_parser(sub)
 
     results.add_parser(sub)
+    statuscmd.add_parser(sub)
     studycmd.add_parser(sub)
     uploadcmd.add_parser(sub)
 
@@ -105,18 +121,36 @@ def main(
 ) -> int:
     """Run one command; returns its exit code. `exiting`: the process ends after this (the
     `ccbench` program itself), so stop signals stay ignored once the command is over."""
-    console = console or Console(file=Screen(sys.stdout), highlight=False)
     args = build_parser().parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)  # for a --detach child
+    given = console is not None
+    console = console or Console(file=Screen(sys.stdout), highlight=False)
     try:
         with GATE.installed(ignore_after=exiting):  # the first signal raises; more cannot
             return COMMANDS[args.command](args, console)  # cut a shutdown short
     except CcbenchError as exc:
         # The message may quote a file: shown as written, never read as markup or emoji codes.
-        console.print(f"[bold red]ccbench:[/] {escape(str(exc))}", soft_wrap=True, emoji=False)
+        _error(console, args, given, f"[bold red]ccbench:[/] {escape(str(exc))}")
         return exc.exit_code
     except (KeyboardInterrupt, Terminated) as exc:
-        console.print(f"[bold yellow]ccbench:[/] {_why_stopped(exc)}", soft_wrap=True)
+        _error(console, args, given, f"[bold yellow]ccbench:[/] {escape(_why_stopped(exc))}")
         return EXIT_INTERRUPTED
+
+
+def _error(console: Console, args: argparse.Namespace, given: bool, line: str) -> None:
+    """The error line: on stderr under --json and whenever stdout is not a terminal (a script
+    reading stdout gets the document or nothing; a log file gets the screen and the person at
+    the terminal the error), on the screen otherwise. A console handed in (a test's) keeps it
+    unless --json asks for a clean stdout. If stderr cannot be written (its reader gone), the
+    line goes to the screen after all: it says how the output was left."""
+    json_mode = bool(getattr(args, "json", False))
+    if not json_mode and (given or console.file.isatty()):
+        console.print(line, soft_wrap=True, emoji=False)
+        return
+    errors = Console(file=Screen(sys.stderr, "stderr"), highlight=False)
+    errors.print(line, soft_wrap=True, emoji=False)
+    if errors.file.lost and not json_mode:  # type: ignore[attr-defined]
+        console.print(line, soft_wrap=True, emoji=False)
 
 
 def _why_stopped(exc: BaseException) -> str:
@@ -136,9 +170,13 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     problem = judgecover.unmeasured(plan, recipe.judge)
     if problem is not None:
         raise RecipeError(recipe.file, None, *problem)
-    for warning in judgecover.clamping(plan, recipe.judge):
-        console.print(f"[yellow]ccbench: warning:[/] {recipe.file}: {warning}", soft_wrap=True)
+    warnings = [f"{recipe.file}: {w}" for w in judgecover.clamping(plan, recipe.judge)]
     prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
+    if args.json:
+        jsonout.write(console, "check", check_document(recipe, plan, prediction, warnings))
+        return 0
+    for warning in warnings:
+        console.print(f"[yellow]ccbench: warning:[/] {warning}", soft_wrap=True)
     console.print(plan_table(recipe, plan))
     console.print(limits_table(recipe, plan))
     console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
@@ -163,13 +201,15 @@ def _lot_option(recipe: Recipe, lot: str | None) -> Recipe:
 
 
 def cmd_run(args: argparse.Namespace, console: Console) -> int:
+    partcmd.check_options(args)
     recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
     prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
     _cautions(console, recipe, plan)
-    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
+    if not args.operator_view:  # the production screen shows no plan or estimate
+        console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or _default_folder(recipe.lot, console)
     repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
     several = len(recipe.station.instruments) > 1
@@ -178,9 +218,12 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             f"{recipe.file}: 'temperatures:' runs on a station with one SMU and a tray only: "
             "use a station with one instrument, without --part-by-part"
         )
+    if detach.wanted(args):
+        return detach.start(args.argv, out, console, named_out=args.out is not None)
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
     manifest |= partcmd.manifest_extras(recipe, args, repeat)
+    manifest["planned"] = statuscmd.planned(plan, prediction, repeat, args.part_by_part)
     shipper.check_driver(recipe.station.results_database)
     store = runsession.open_store(out, manifest, args, console)
     if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
@@ -200,8 +243,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
             )  # fmt: skip
         else:
             summary = _on_one_bench(
-                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part
-            )
+                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part,
+                args.operator_view,
+            )  # fmt: skip
         status = summary.status
     except (Exception, KeyboardInterrupt, Terminated) as exc:
         status = "interrupted" if isinstance(exc, KeyboardInterrupt | Terminated) else "failed"
@@ -218,8 +262,9 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     console.print(summary_table(summary))
     if recipe.temperatures:
         _tempcos(console, recipe, store, out)
-    took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
-    console.print(took, soft_wrap=True)
+    if not args.operator_view:
+        took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
+        console.print(took, soft_wrap=True)
     reportcmd.after_run(console, out)
     console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
     return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
@@ -273,7 +318,9 @@ def _finish(console: Console, store, status: str, ended: str) -> None:
         console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
 
 
-def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, part_by_part):
+def _on_one_bench(
+    console, recipe, plan, resource, out, store, repeat, bench, part_by_part, operator_view=False
+):
     """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
     from instruments import connect  # start-up speed: `instruments` loads pyvisa
     from sequencer.run.startnotes import instrument_record  # start-up speed, as above
@@ -305,7 +352,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
             if part_by_part:
                 tester = PartBench(recipe, plan, conn.smu, store, guard)
                 write, sim = conn.smu.transport.write, resource == "sim"
-                return partcmd.from_command_line(console, tester, sim, write)
+                return partcmd.from_command_line(console, tester, sim, write, operator_view)
 
             def one_pass(part):
                 if chamber is not None:  # the output is off between passes: soak first
@@ -412,6 +459,7 @@ COMMANDS = {
     **judgecmd.COMMANDS,
     **reportcmd.COMMANDS,
     "results": results.cmd_results,
+    "status": statuscmd.cmd_status,
     "upload": uploadcmd.cmd_upload,
     "study": studycmd.cmd_study,
 }

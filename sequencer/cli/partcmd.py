@@ -13,6 +13,7 @@ from rich.console import Console, RenderableType
 from sequencer.bench.lotrun import RunSummary
 from sequencer.bench.parts import PartBench, PartResult, run_parts
 from sequencer.bench.prompts import EnterKey, InterlockLid, Lid, NoHands, Scanner, SimulatedHands
+from sequencer.cli import operatorview
 from sequencer.cli.verdictview import verdict_panel
 from sequencer.model.errors import RecipeError
 from sequencer.recipe.load import Recipe
@@ -37,6 +38,12 @@ def manifest_extras(recipe: Recipe, args: argparse.Namespace, repeat: Repeat | N
     return {"schedule": recipe.part_by_part.describe()}
 
 
+def check_options(args: argparse.Namespace) -> None:
+    """--operator-view belongs to part-by-part testing (before anything is opened)."""
+    if getattr(args, "operator_view", False) and not args.part_by_part:
+        raise RecipeError("command line", None, "--operator-view", "needs --part-by-part")
+
+
 def render(item: object) -> RenderableType:
     """What the loop shows, as the terminal draws it: an attempt's verdict as a big panel."""
     if isinstance(item, PartResult):
@@ -45,19 +52,26 @@ def render(item: object) -> RenderableType:
 
 
 def from_command_line(
-    console: Console, station: PartBench, simulated: bool, write: Callable[[str], None]
+    console: Console,
+    station: PartBench,
+    simulated: bool,
+    write: Callable[[str], None],
+    operator_view: bool = False,
 ) -> RunSummary:
     """`ccbench run --part-by-part`: serials from the terminal (or whatever feeds stdin), the
     lid from the interlock; on the simulator the lid is moved by `SimulatedHands` (`write`
-    sends its SCPI)."""
+    sends its SCPI). `operator_view`: the production screen (cli.operatorview)."""
+    draw = operatorview.render if operator_view else render
 
     def say(item: object) -> None:
-        shown = render(item)
+        shown = draw(item)
         console.print(shown, soft_wrap=isinstance(shown, str))  # panels keep their layout
 
     recipe = station.recipe
-    console.print(recipe.part_by_part.describe(), soft_wrap=True)
-    scanner = Scanner(sys.stdin.readline, say, recipe.part_by_part.serial_pattern)
+    policy = recipe.part_by_part
+    console.print(", ".join(filter(None, (policy.describe(), policy.serials.describe()))),
+                  soft_wrap=True)  # fmt: skip
+    scanner = Scanner(sys.stdin.readline, say, policy.serial_pattern, policy.serials.apply)
     lid: Lid
     if recipe.station.interlocked_fixture:
         hands = SimulatedHands(write) if simulated else NoHands()

@@ -11,6 +11,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.table import Table
 
+from sequencer.cli import jsonout
 from sequencer.model.errors import CcbenchError
 from sequencer.report.data import Lot, ReportError, bound_column, load_lot, u_column, value_column
 from sequencer.report.lotsummary import figure_value, label, limits_text, reported_figures, standing
@@ -30,12 +31,15 @@ def add_parser(sub) -> None:
         help="also plot this device's I-V curve (repeatable)",
     )
     report.add_argument("--text", action="store_true", help="print the summary; write no HTML")
+    report.add_argument("--json", action="store_true", help=f"with --text: {jsonout.FLAG_HELP}")
     report.add_argument("--stdf", type=Path, metavar="FILE", help="write the lot as STDF V4")
 
 
 def cmd_report(args: argparse.Namespace, console: Console) -> int:
     lot = load_lot(args.run_dirs)
     rows = device_rows(lot, args.device)
+    if args.json:
+        return _json(console, lot, rows, args)
     if args.text:
         from sequencer.cli.lotview import print_lot  # start-up speed: each form loads its own
 
@@ -49,6 +53,22 @@ def cmd_report(args: argparse.Namespace, console: Console) -> int:
 
         parts = write_stdf(lot, args.stdf)
         console.print(f"STDF V4: {args.stdf} ({parts} part records)", soft_wrap=True)
+    return 0
+
+
+def _json(console: Console, lot: Lot, rows: list[int], args: argparse.Namespace) -> int:
+    """The summary as JSON (--text implied: no HTML); an STDF file asked for is still written
+    and named in the document."""
+    from sequencer.cli.reportjson import report_document  # start-up speed: only when asked
+
+    if args.out:
+        raise ReportError("--json prints the summary and writes no HTML: leave out --out")
+    document = report_document(lot, rows)
+    if args.stdf:
+        from sequencer.report.stdf import write_stdf  # start-up speed: each form loads its own
+
+        document["stdf"] = {"file": str(args.stdf), "parts": write_stdf(lot, args.stdf)}
+    jsonout.write(console, "report", document)
     return 0
 
 

@@ -15,8 +15,9 @@ from rich import box
 from rich.console import Console
 from rich.table import Table
 
-from sequencer.cli import spcview
+from sequencer.cli import jsonout, spcview
 from sequencer.cli.figurenames import SHOWN_FIGURES, figure_column
+from sequencer.cli.runrows import run_rows
 from sequencer.model.errors import RecipeError
 from sequencer.model.units import format_si
 from sequencer.store.yields import GROUPS, yield_by
@@ -44,6 +45,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     )
     res.add_argument("--by", choices=GROUPS, help="yield per station, lot or day")
     spcview.add_options(res)
+    res.add_argument("--json", action="store_true", help=jsonout.FLAG_HELP)
     out = res.add_mutually_exclusive_group()
     out.add_argument("--csv", type=Path, metavar="OUT", help="write the merged table as CSV")
     out.add_argument("--parquet", type=Path, metavar="OUT", help="write it as Parquet")
@@ -65,6 +67,8 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
         folders = find_runs(args.run_dirs, args.under)
         table = merge_runs(folders, keep)
         source = f"of {len(folders)} runs"
+    if args.json:
+        return _json(args, console, table)
     console.print(runs_table(table, show_yield=args.verdict is None))
     if args.devices:
         console.print(devices_table(table))
@@ -79,6 +83,22 @@ def cmd_results(args: argparse.Namespace, console: Console) -> int:
     runs = table["folder"].nunique() if len(table) else 0
     saved = f"; written to {target}" if target is not None else ""
     console.print(f"{len(table)} devices from {runs} {source}{saved}", soft_wrap=True)
+    return 0
+
+
+def _json(args: argparse.Namespace, console: Console, table: pd.DataFrame) -> int:
+    from sequencer.cli.resultsjson import results_document  # start-up speed: only when asked
+
+    if args.spc:
+        raise RecipeError("command line", None, "--spc", "has no JSON form; leave out --json")
+    target, kind = (args.parquet, "parquet") if args.parquet else (args.csv, "csv")
+    if target is not None:
+        from sequencer.store.export import write_table  # start-up speed: pandas
+
+        write_table(table, target, kind)
+    where = "database" if args.database is not None else "folders"
+    document = results_document(table, run_rows(table), args, where, target)
+    jsonout.write(console, "results", document)
     return 0
 
 
@@ -109,21 +129,17 @@ def runs_table(frame: pd.DataFrame, *, show_yield: bool = True) -> Table:
         table.add_column(column, no_wrap=True)
     for column in ("devices", "pass", "fail", "yield"):
         table.add_column(column, justify="right", no_wrap=True)
-    if frame.empty:
-        return table
-    for folder, group in frame.groupby("folder", sort=False):
-        verdicts = group["verdict"].value_counts()
-        good, bad = int(verdicts.get("pass", 0)), int(verdicts.get("fail", 0))
-        passes = group["pass"].nunique()
+    for r in run_rows(frame):
+        share = r.judged_yield
         table.add_row(
-            str(folder),
-            _text(group["lot"].iloc[0]),
-            _text(group["run_started"].iloc[0])[:16].replace("T", " "),
-            _text(group["run_status"].iloc[0]),
-            f"{len(group)}" + (f" in {passes} passes" if passes > 1 else ""),
-            str(good),
-            str(bad),
-            f"{100 * good / (good + bad):.1f}%" if good + bad and show_yield else "—",
+            r.folder,
+            r.lot,
+            r.started[:16].replace("T", " "),
+            r.status,
+            f"{r.devices}" + (f" in {r.passes} passes" if r.passes > 1 else ""),
+            str(r.passed),
+            str(r.failed),
+            f"{100 * share:.1f}%" if not math.isnan(share) and show_yield else "—",
         )
     return table
 

@@ -3,6 +3,8 @@ it (station, recipe or device ratings), and what the plan asks of it."""
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 from rich.table import Table
 
 from sequencer.model.units import format_si
@@ -23,12 +25,20 @@ def _layer(bound: Bound) -> str:
     return LAYER.get(bound.source, bound.source)
 
 
-def limits_table(recipe: Recipe, plan: Plan) -> Table:
+@dataclass(frozen=True)
+class LimitRow:
+    """One effective limit: what it limits, its SI value and unit, who set it, the plan's peak."""
+
+    quantity: str
+    value: float
+    unit: str
+    set_by: str
+    plan_peak: float
+
+
+def limit_rows(recipe: Recipe, plan: Plan) -> list[LimitRow]:
+    """The effective limits with what the plan asks of each (the table and --json say the same)."""
     lim = recipe.effective_limits
-    table = Table(title="Effective limits (smallest of station, recipe, ratings)")
-    table.title_justify = "left"
-    for column in ("quantity", "limit", "set by", "plan peak"):
-        table.add_column(column)
     device_peak = max(lim.device_power_w(s.peak_voltage_v, s.compliance_a) for s in plan.segments)
     rows = [
         ("voltage", lim.voltage, "V", plan.peak_voltage_v),
@@ -37,8 +47,19 @@ def limits_table(recipe: Recipe, plan: Plan) -> Table:
     ]
     if lim.dissipation is not None:
         rows.append(("dissipation", lim.dissipation, "W", device_peak))
-    for name, bound, unit, peak in rows:
-        table.add_row(name, format_si(bound.value, unit), _layer(bound), format_si(peak, unit))
+    return [LimitRow(name, b.value, unit, _layer(b), peak) for name, b, unit, peak in rows]
+
+
+def limits_table(recipe: Recipe, plan: Plan) -> Table:
+    lim = recipe.effective_limits
+    table = Table(title="Effective limits (smallest of station, recipe, ratings)")
+    table.title_justify = "left"
+    for column in ("quantity", "limit", "set by", "plan peak"):
+        table.add_column(column)
+    for r in limit_rows(recipe, plan):
+        table.add_row(
+            r.quantity, format_si(r.value, r.unit), r.set_by, format_si(r.plan_peak, r.unit)
+        )
     hazardous = is_hazardous(plan, lim)
     reason = recipe.station.limits.touch_safe_reason
     table.add_row(

@@ -16,10 +16,11 @@ no completed attempt.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 from sequencer.recipe.fields import Fields
+from sequencer.recipe.serials import SerialRule, parse_serials
 from sequencer.recipe.yamlsource import Source
 
 RESULTS = ("last", "best", "first")
@@ -31,6 +32,7 @@ class RetestPolicy:
     retest_passed: bool = False
     result: str = "last"
     serial_pattern: str = ""
+    serials: SerialRule = field(default_factory=SerialRule)  # how a scan is written
 
     def __post_init__(self) -> None:
         if not 0 <= self.retests <= 100:
@@ -129,5 +131,6 @@ def parse_part_by_part(source: Source, value: Any) -> RetestPolicy:
             re.compile(pattern)
         except re.error as exc:
             f.check(False, "serial_pattern", f"is not a regular expression ({exc})")
+    serials = parse_serials(source, f.raw("serials", None))
     f.finish()
-    return RetestPolicy(retests, again, result, pattern)
+    return RetestPolicy(retests, again, result, pattern, serials)

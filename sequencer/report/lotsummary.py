@@ -20,6 +20,8 @@ from sequencer.judge.reasons import show
 from sequencer.model.judgesettings import FIGURE_INFO, FIGURES, VERDICTS, FigureLimit
 from sequencer.report.capability import Capability, capability, observed_ppm
 from sequencer.report.data import Lot
+from sequencer.report.margins import margin_text
+from sequencer.report.margins import margins as figure_margins
 from sequencer.report.softbins import soft_bin_numbers
 
 
@@ -54,7 +56,7 @@ class Standing:
     capability: Capability
     worst_device: str
     worst_value: float
-    margin: float  # of the worst device, as a fraction of the limit; negative: beyond it
+    margin: float  # of the worst device, a share of its scale (report.margins); < 0: beyond
     beyond: int  # devices outside the limits
     guarded: int  # devices in a guard band
     bounds: int  # lower bounds ("at least"), left out of the statistics
@@ -112,7 +114,7 @@ def standing(lot: Lot, figure: str) -> Standing:
     limit = lot.limit(figure)
     cap = capability(data.plain, limit.min, limit.max)
     status = decide.limit_status(data.value, data.at_least, lot.expanded(figure), limit)
-    margins = _margins(data.value, data.at_least, limit)
+    margins = figure_margins(data.value, data.at_least, limit)
     worst = int(np.nanargmin(margins)) if np.isfinite(margins).any() else -1
     return Standing(
         figure,
@@ -126,23 +128,6 @@ def standing(lot: Lot, figure: str) -> Standing:
         int(data.at_least.sum()),
         observed_ppm(data.plain, limit.min, limit.max),
     )
-
-
-def _margins(value: np.ndarray, at_least: np.ndarray, limit: FigureLimit) -> np.ndarray:
-    """Distance inside the nearest limit as a fraction of that limit (NaN with no limit). A
-    lower bound has a margin to a minimum only."""
-    margin = np.full(value.shape, np.inf)
-    if limit.min is not None:
-        margin = np.minimum(margin, (value - limit.min) / _scale(limit.min))
-    if limit.max is not None:
-        above = (limit.max - value) / _scale(limit.max)
-        margin = np.minimum(margin, np.where(at_least, np.inf, above))
-    margin[~np.isfinite(value) | np.isinf(margin)] = np.nan
-    return margin
-
-
-def _scale(limit: float) -> float:
-    return abs(limit) if limit else 1.0
 
 
 def standings(lot: Lot) -> list[Standing]:
@@ -226,14 +211,13 @@ def short_name(figure: str) -> str:
 
 
 def standing_cells(r: Standing, name: Callable[[str], str] = short_name) -> list[str]:
-    """The margin is the worst device's distance inside its nearest limit, as a share of that
-    limit; negative beyond it."""
+    """The margin is the worst device's distance inside its nearer limit (report.margins)."""
     return [
         name(r.figure),
         limits_text(r),
         r.worst_device,
         figure_value(r.figure, r.worst_value),
-        percent(r.margin),
+        margin_text(r.margin, r.limit),
         str(r.beyond),
         str(r.guarded),
         number(r.capability.cpk),

@@ -57,8 +57,8 @@ def test_a_soak_that_never_settles_is_one_line_output_off_chamber_safe_nothing_l
     temps = "[25 degC, {set: 85 degC, for: 2 min, timeout: 10 min}]"
     done = run(tmp_path, temps, faults=", faults: [weak]")  # the chamber gets 20 K from the room
     assert done.returncode != 0
-    lines = [line for line in done.stdout.splitlines() if line.startswith("ccbench:")]
-    assert len(lines) == 1, done.stdout
+    lines = [line for line in done.stderr.splitlines() if line.startswith("ccbench:")]
+    assert len(lines) == 1, done.stdout + done.stderr
     assert "did not settle at 85 degC within 600 s" in lines[0]
     assert "output off (read back" in lines[0] and "chamber set to 25 degC (read back)" in lines[0]
     assert [(r[0], r[2]) for r in stored(tmp_path)] == [(1, 25.0), (1, 25.0)]  # pass 1 kept

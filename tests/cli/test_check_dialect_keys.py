@@ -35,8 +35,8 @@ def test_a_null_switch_command_with_several_channels_is_refused_at_check(tmp_pat
     recipe = _station_with_dialect(tmp_path, text, channels=6)
     done = ccbench("check", str(recipe))
     assert done.returncode == 2, done.stdout + done.stderr
-    lines = done.stdout.strip().splitlines()
-    assert len(lines) == 1, done.stdout
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and not done.stdout, done.stdout + done.stderr
     line = text.splitlines().index("select_channel: null") + 1
     assert lines[0].startswith(f"ccbench: {tmp_path / 'no-switch.yaml'}:{line}: select_channel")
 

@@ -33,8 +33,8 @@ def test_check_broken_recipe_gives_one_line_and_exit_2(tmp_path):
     (tmp_path / "broken.yaml").write_text(text)
     done = ccbench("check", str(tmp_path / "broken.yaml"))
     assert done.returncode == 2
-    lines = done.stdout.strip().splitlines()
-    assert len(lines) == 1, done.stdout
+    lines = done.stderr.strip().splitlines()  # errors: stderr when stdout is not a terminal
+    assert len(lines) == 1 and not done.stdout, done.stdout + done.stderr
     line = text.splitlines().index("      compliance: 5") + 1
     assert lines[0].startswith(
         f"ccbench: {tmp_path / 'broken.yaml'}:{line}: steps[0].sweep.compliance"
@@ -51,7 +51,7 @@ def test_over_limit_recipe_is_refused_before_any_instrument(tmp_path):
     # A resource nobody listens on: if anything tried to connect, the error would differ.
     done = ccbench("run", str(tmp_path / "hot.yaml"), "--out", str(tmp_path / "out"))
     assert done.returncode == 3
-    assert "step 'iv' reaches 75 V, above the station's maximum 60 V" in done.stdout
+    assert "step 'iv' reaches 75 V, above the station's maximum 60 V" in done.stderr
     assert not (tmp_path / "out").exists()
 
 
@@ -75,8 +75,8 @@ def test_check_refuses_a_resource_that_cannot_name_an_instrument(tmp_path, writt
     )
     (tmp_path / "demo.yaml").write_text((ROOT / "recipes/demo.yaml").read_text())
     done = ccbench("check", str(tmp_path / "demo.yaml"))
-    lines = done.stdout.strip().splitlines()
-    assert done.returncode == 2 and len(lines) == 1, done.stdout
+    lines = done.stderr.strip().splitlines()
+    assert done.returncode == 2 and len(lines) == 1 and not done.stdout, done.stdout + done.stderr
     line = station.splitlines().index("  resource: sim") + 1
     where = f"ccbench: {tmp_path / 'demo-station.yaml'}:{line}: instrument.resource {problem}"
     assert lines[0].startswith(where), lines[0]
@@ -104,8 +104,8 @@ def test_check_refuses_a_figure_voltage_the_plan_does_not_measure(tmp_path, old,
     # Every device would fail for a missing figure: refused before anything runs.
     path = _variant(tmp_path, old, new)
     done = ccbench("check", str(path))
-    assert done.returncode == 2, done.stdout
-    (line,) = done.stdout.strip().splitlines()
+    assert done.returncode == 2 and not done.stdout, done.stdout + done.stderr
+    (line,) = done.stderr.strip().splitlines()
     assert line.startswith(f"ccbench: {path}: {field} "), line
     assert "not measured" in line or "no programmed level" in line, line
 

@@ -34,7 +34,7 @@ def test_a_set_point_beyond_the_chamber_is_one_line_and_exit_3(tmp_path):
     station = write_station(tmp_path, extra=CHAMBER)
     recipe = write_recipe(tmp_path, station, extra="temperatures: [25 degC, 150 degC]\n")
     done = ccbench("check", str(recipe))
-    lines = done.stdout.strip().splitlines()
-    assert done.returncode == 3 and len(lines) == 1, done.stdout + done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert done.returncode == 3 and len(lines) == 1 and not done.stdout, done.stdout + done.stderr
     assert lines[0].startswith("ccbench: temperatures[1]: set point 150 degC is outside")
     assert "Traceback" not in done.stderr

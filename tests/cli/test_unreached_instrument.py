@@ -71,12 +71,12 @@ def test_a_refused_first_connection_leaves_the_folder_reusable(tmp_path, free_po
     out = tmp_path / "run"
     first = ccbench("run", str(recipe), "--out", str(out))
     words = f"nothing answered at 127.0.0.1 port {free_port} (connection refused"
-    assert first.returncode == 4 and words in first.stdout, first.stdout
+    assert first.returncode == 4 and words in first.stderr, first.stdout + first.stderr
     uid = json.loads((out / "manifest.json").read_text())["uid"]
 
     again = ccbench("run", str(recipe), "--out", str(out))  # the same command, once more
-    assert again.returncode == 4 and words in again.stdout, again.stdout
-    assert HELD not in again.stdout and again.stdout.count(AGAIN) == 1
+    assert again.returncode == 4 and words in again.stderr, again.stdout + again.stderr
+    assert HELD not in again.stderr and again.stdout.count(AGAIN) == 1
 
     done = ccbench("run", str(recipe), "--sim", "--out", str(out))  # the instrument answers
     assert done.returncode == 0, done.stdout
@@ -87,7 +87,7 @@ def test_a_refused_first_connection_leaves_the_folder_reusable(tmp_path, free_po
     assert (out / "journal.jsonl").read_text().count("\n") == 3
 
     measured = ccbench("run", str(recipe), "--sim", "--out", str(out))  # now it holds results
-    assert measured.returncode == 2 and f"{HELD}; add --resume" in measured.stdout
+    assert measured.returncode == 2 and f"{HELD}; add --resume" in measured.stderr
 
 
 def test_a_connect_nobody_answers_is_said_in_words_not_a_status_number(tmp_path, unanswered_port):
@@ -95,11 +95,12 @@ def test_a_connect_nobody_answers_is_said_in_words_not_a_status_number(tmp_path,
     out = tmp_path / "run"
     for attempt in range(2):
         done = ccbench("run", str(recipe), "--out", str(out))
-        last = done.stdout.strip().splitlines()[-1]
-        assert done.returncode == 4, done.stdout
+        last = done.stderr.strip().splitlines()[-1]  # errors: stderr when piped
+        assert done.returncode == 4, done.stdout + done.stderr
         assert f"nothing answered at 127.0.0.1 port {unanswered_port} within 0.5 s" in last
-        assert "-1073807339" not in done.stdout and "VI_ERROR" not in done.stdout
-        assert HELD not in done.stdout and done.stdout.count(AGAIN) == attempt
+        screen = done.stdout + done.stderr
+        assert "-1073807339" not in screen and "VI_ERROR" not in screen
+        assert HELD not in screen and done.stdout.count(AGAIN) == attempt
 
 
 @pytest.mark.parametrize("evidence", ["journal", "scpi.log", "identity"])

@@ -241,7 +241,7 @@ def test_a_file_system_that_fills_up_mid_run_ends_with_code_5_and_the_output_off
             out = tmp_path / "tiny" / "run"
             command = run_command(ROOT / "recipes" / "demo.yaml", out, "--station", str(station))
             done = subprocess.run(command, cwd=ROOT, env=ENV, capture_output=True, text=True)
-            last = done.stdout.strip().splitlines()[-1]
+            last = done.stderr.strip().splitlines()[-1]  # the error line: stderr when piped
             assert done.returncode == 5, done.stdout + done.stderr
             assert "Traceback" not in done.stdout + done.stderr
             assert last.startswith("ccbench: ") and last.endswith(f"; {OFF}")

@@ -51,7 +51,7 @@ def test_a_reading_that_is_not_a_number_stops_the_run_with_the_output_off(
 ):
     done = run_cli(tmp_path, responder.resource, lists)
     assert done.returncode == 3, done.stdout + done.stderr
-    last = done.stdout.strip().splitlines()[-1]
+    last = done.stderr.strip().splitlines()[-1]  # errors: stderr when piped
     assert words in last and last.endswith("output off (read back from the instrument)"), last
     assert "Traceback" not in done.stderr
     assert read_output(responder.resource) == "0"  # a second connection asks the instrument

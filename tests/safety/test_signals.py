@@ -73,7 +73,7 @@ def test_a_signal_mid_sweep_leaves_the_output_off_and_keeps_the_data(tmp_path, s
     finally:
         run.kill()
     assert run.returncode == 130, stdout + stderr
-    last = stdout.strip().splitlines()[-1]
+    last = stderr.strip().splitlines()[-1]  # the error line: stderr when piped
     assert last.startswith(f"ccbench: stopped by {why}; output off (read back from the instrument)")
     assert "what was measured is kept in" in last
     assert "Traceback" not in stderr
@@ -114,5 +114,5 @@ def test_ctrl_c_at_the_terminal_does_not_stop_the_embedded_simulator_first(tmp_p
     finally:
         run.kill()
     assert run.returncode == 130, stdout + stderr
-    last = stdout.strip().splitlines()[-1]
+    last = stderr.strip().splitlines()[-1]  # the error line: stderr when piped
     assert last.startswith("ccbench: stopped by Ctrl-C; output off (read back from the instrument)")

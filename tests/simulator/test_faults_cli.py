@@ -59,7 +59,7 @@ def journal(folder: Path) -> list[dict]:
 
 
 def one_error_line(done: subprocess.CompletedProcess[str]) -> str:
-    lines = [line for line in done.stdout.splitlines() if line.startswith("ccbench:")]
+    lines = [line for line in done.stderr.splitlines() if line.startswith("ccbench:")]
     assert len(lines) == 1 and "Traceback" not in done.stdout + done.stderr
     return lines[0]
 
