@@ -212,6 +212,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or _default_folder(recipe.lot, console)
     repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
+    if args.resume and repeat is not None and (args.every, args.for_, args.passes) == (None,) * 3:
+        console.print(f"resume: the run's schedule goes on: {repeat.describe()}", soft_wrap=True)
     several = len(recipe.station.instruments) > 1
     if recipe.temperatures and (several or args.part_by_part):
         raise RunError(

@@ -16,10 +16,11 @@ from rich.console import Console
 
 from sequencer.bench.lotrun import RunSummary
 from sequencer.bench.schedule import Wait, run_passes, work_left
-from sequencer.model.errors import RecipeError
+from sequencer.model.errors import RecipeError, StoreError
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.repeat import Repeat, repeat_from_options
+from sequencer.store.runfolder import FolderRefused, read_manifest
 from sequencer.store.runstore import RunStore
 
 
@@ -47,8 +48,29 @@ def add_run_options(run: argparse.ArgumentParser) -> None:
 
 
 def repeat_for(recipe: Recipe, args: argparse.Namespace) -> Repeat | None:
-    """The schedule: the command line's options, else the recipe's `repeat`, else one pass."""
+    """The schedule: the command line's options, else (resuming) the one the run began with,
+    else the recipe's `repeat`, else one pass. A resumed overnight run given no options keeps
+    its passes: it used to finish the pass in flight and stop."""
+    given = (args.every, args.for_, args.passes) != (None, None, None)
+    if args.resume and not given and args.out is not None:
+        stored = stored_repeat(args.out)
+        if stored is not None:
+            return stored
     return repeat_from_options(args.every, args.for_, args.passes, recipe.repeat)
+
+
+def stored_repeat(folder: Path) -> Repeat | None:
+    """The schedule a run folder's manifest records (None: one pass, or an older manifest)."""
+    try:
+        kept = read_manifest(folder).get("repeat")
+    except (FolderRefused, StoreError, OSError, ValueError):
+        return None
+    if not isinstance(kept, dict):
+        return None
+    try:
+        return Repeat(float(kept["every_s"]), kept.get("for_s"), kept.get("passes"))
+    except (KeyError, TypeError, ValueError):
+        return None
 
 
 def manifest_extras(recipe: Recipe, resource: str, repeat: Repeat | None) -> dict[str, Any]:
@@ -57,6 +79,7 @@ def manifest_extras(recipe: Recipe, resource: str, repeat: Repeat | None) -> dic
     return {
         "simulator_seed": options.get("seed"),
         "schedule": None if repeat is None else repeat.describe(),
+        "repeat": None if repeat is None else repeat.as_dict(),  # what a resume continues
     }
 
 
