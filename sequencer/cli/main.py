@@ -43,6 +43,7 @@ from sequencer.cli.view import plan_summary, plan_table, showing_devices, summar
 from sequencer.model.errors import CcbenchError, RecipeError, RunError
 from sequencer.plan import judgecover
 from sequencer.plan.make import make_plan
+from sequencer.plan.segments import Plan
 from sequencer.recipe.fields import MAX_TEXT
 from sequencer.recipe.load import Recipe, load_recipe
 from sequencer.run.estimate import after_run, predict
@@ -167,10 +168,7 @@ def cmd_check(args: argparse.Namespace, console: Console) -> int:
     recipe = load_recipe(args.recipe, station_path=args.station)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)
-    problem = judgecover.unmeasured(plan, recipe.judge)
-    if problem is not None:
-        raise RecipeError(recipe.file, None, *problem)
-    warnings = [f"{recipe.file}: {w}" for w in judgecover.clamping(plan, recipe.judge)]
+    warnings = _judge_can_work(recipe, plan)
     prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
     if args.json:
         jsonout.write(console, "check", check_document(recipe, plan, prediction, warnings))
@@ -205,6 +203,8 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
     plan = make_plan(recipe)
     _preflight(recipe, plan, args)  # refuses before anything is started or opened
+    for warning in _judge_can_work(recipe, plan):  # else a plan the judge cannot use fails all
+        console.print(f"[yellow]ccbench: warning:[/] {warning}", soft_wrap=True)
     resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
     prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
     _cautions(console, recipe, plan)
@@ -370,6 +370,15 @@ def _on_one_bench(
 def _measure(console, recipe, plan, smu, store, guard):
     with showing_devices(console, len(plan.channels)) as shown:
         return run_lot(recipe, plan, smu, store, shown, guard=guard)
+
+
+def _judge_can_work(recipe: Recipe, plan: Plan) -> list[str]:
+    """Refuse a plan that does not measure what the judge needs; the warnings of compliance at
+    or below a regulated-current limit. The same for `check` and `run`."""
+    problem = judgecover.unmeasured(plan, recipe.judge)
+    if problem is not None:
+        raise RecipeError(recipe.file, None, *problem)
+    return [f"{recipe.file}: {w}" for w in judgecover.clamping(plan, recipe.judge)]
 
 
 def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:

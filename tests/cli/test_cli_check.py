@@ -116,3 +116,14 @@ def test_check_warns_when_compliance_is_at_or_below_a_current_limit(tmp_path):
     assert done.returncode == 0, done.stdout
     assert "warning" in done.stdout and "step 'iv'" in done.stdout.replace("\n", " ")
     assert "devices will clamp" in done.stdout.replace("\n", " ")
+
+
+@pytest.mark.robustness
+def test_run_refuses_the_same_plan_before_any_instrument(tmp_path):
+    # `run` applies check's rule too: no simulator started, no run folder made.
+    path = _variant(tmp_path, "test_voltage: 25 V", "test_voltage: 45 V")
+    out = tmp_path / "run"
+    done = ccbench("run", str(path), "--sim", "--out", str(out))
+    assert done.returncode == 2, done.stdout
+    assert done.stderr.strip().splitlines()[-1].startswith(f"ccbench: {path}: judge.test_voltage")
+    assert not out.exists()

@@ -113,7 +113,7 @@ def test_a_refused_run_never_connects_to_the_station_resource(tmp_path):
         path = write_bench(tmp_path, recipe={"steps": sweep("70 V", "1 mA")}, station=station)
         done = run_cli(["run", str(path), "--out", str(tmp_path / "run")])
         assert done.returncode == 3, done.stdout + done.stderr
-        assert "step 'iv' reaches 70 V, above the station's maximum 60 V" in done.stdout
+        assert "step 'iv' reaches 70 V, above the station's maximum 60 V" in done.stderr
         with pytest.raises(TimeoutError):
             listener.accept()
 

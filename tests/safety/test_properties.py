@@ -40,6 +40,7 @@ class Case:
     touch_v: float
     interlocked: bool
     acknowledged: bool
+    judged: bool  # a forward sweep holds the judge's voltages (else `run` refuses the plan)
 
     def station_refused(self) -> bool:
         """A touch-safe voltage above the station's maximum is a mistake in the station file."""
@@ -93,6 +94,7 @@ def cases(draw) -> Case:
     sw = draw(st.integers(10, 2000)) * 1e-3
     touch = draw(st.sampled_from([24.0, 42.0]))
     steps_yaml, steps = [], []
+    sweep_top = None  # the judge's voltages go at the first sweep's top level
     share = st.floats(0.1, 1.15)  # most examples within the limits, some just beyond
     for index in range(draw(st.integers(1, 3))):
         high = float(max(1, int(sv * draw(share))))
@@ -104,6 +106,7 @@ def cases(draw) -> Case:
             body = {"name": f"s{index}", "start": f"{low:g} V", "stop": f"{high:g} V",
                     "points": points, "compliance": f"{comp * 1e3:g} mA"}  # fmt: skip
             steps_yaml.append({"sweep": body})
+            sweep_top = high if sweep_top is None else sweep_top
         else:
             low = high = high * draw(st.sampled_from([1.0, -0.2]))
             body = {"name": f"s{index}", "voltage": f"{low:g} V",
@@ -136,8 +139,10 @@ def cases(draw) -> Case:
                              for k, v in ratings.items()}  # fmt: skip
     if acknowledged:
         recipe["hazardous_voltage"] = "acknowledged"
+    if sweep_top is not None:
+        recipe["judge"] = {"test_voltage": f"{sweep_top:g} V", "knee_voltage": f"{sweep_top:g} V"}
     return Case(station, recipe, steps, limits, ratings, sv, sa, sw, touch, interlocked,
-                acknowledged)  # fmt: skip
+                acknowledged, sweep_top is not None)  # fmt: skip
 
 
 def _optional(values: dict[str, float]):
@@ -170,7 +175,9 @@ def outcome(case: Case, code: int) -> str:
         return "station refused"
     if case.raises_a_limit():
         return "recipe raised a station limit"
-    return "refused by pre-flight" if not case.possible() else f"ran, exit {code}"
+    if not case.possible():
+        return "refused by pre-flight"
+    return "refused: the judge's voltages unmeasured" if not case.judged else f"ran, exit {code}"
 
 
 def check_sent(case: Case, points: list[tuple[float, float]]) -> None:
@@ -199,6 +206,9 @@ def test_random_recipes_are_refused_before_the_wire_or_stay_within_limits(case):
     elif not case.possible():
         assert code == 3, text
         assert bench.sent == []  # refused before the first command
+    elif not case.judged:  # no sweep: every part would fail for a missing figure
+        assert code == 2 and "is not measured" in text, text
+        assert bench.sent == []
     else:
         assert code in (0, 3), text  # 3: a device tripped the run-time guard
         assert bench.sent[0] == "*IDN?" and bench.sent[1] == "OUTP OFF"
@@ -223,6 +233,8 @@ def test_random_recipes_over_tcp_never_exceed_the_effective_limit(case):
     elif case.raises_a_limit() or not case.possible():
         assert code == 3, text
         assert count == 0
+    elif not case.judged:
+        assert code == 2 and count == 0, text
     else:
         assert code in (0, 3), text
         assert count > 0 and applied <= case.effective()[0]
