@@ -30,6 +30,13 @@ def _rebuild(cls: type[CcbenchError], state: dict) -> CcbenchError:
     return err
 
 
+def one_line(text: str) -> str:
+    """`text` with control characters written as escapes (a newline as \\n)."""
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
+
+
 class RecipeError(CcbenchError, ValueError):
     """A recipe or station file is wrong: names the file, line and field, and what was expected."""
 
@@ -37,6 +44,8 @@ class RecipeError(CcbenchError, ValueError):
 
     def __init__(self, file: str, line: int | None, field: str, problem: str) -> None:
         where = f"{file}:{line}" if line else file
+        # A key or value from the file may hold a line break: the message stays one line.
+        field, problem = one_line(field), one_line(problem)
         super().__init__(f"{where}: {field} {problem}" if field else f"{where}: {problem}")
         self.file, self.line, self.field, self.problem = file, line, field, problem
 

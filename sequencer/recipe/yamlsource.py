@@ -84,10 +84,15 @@ def _decode(raw: bytes, name: str) -> str:
 def parse_yaml(text: str, name: str) -> Source:
     try:
         node = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.reader.ReaderError as exc:  # a control character: no mark, a two-line text
+        line = text[: exc.position].count("\n") + 1
+        code = exc.character if isinstance(exc.character, int) else ord(str(exc.character)[:1])
+        problem = f"holds the control character U+{code:04X}, which YAML does not allow"
+        raise RecipeError(name, line, "", f"{problem}; remove it") from None
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         line = mark.line + 1 if mark else None
-        problem = getattr(exc, "problem", None) or str(exc)
+        problem = " ".join(str(getattr(exc, "problem", None) or exc).split())  # one line
         raise RecipeError(name, line, "", f"is not valid YAML: {problem}") from None
     except RecursionError:
         raise RecipeError(name, None, "", f"nests deeper than {MAX_DEPTH} levels") from None
