@@ -12,6 +12,7 @@ reason, at most 70 V d.c. (IEC 61010-1, from memory; REFERENCES.md s4).
 
 from __future__ import annotations
 
+import contextlib
 import math
 import shutil
 import tempfile
@@ -88,10 +89,9 @@ def edited(draw, original: dict) -> Any:
     for _ in range(draw(st.integers(1, 4))):
         path = draw(st.sampled_from(places))
         action = draw(st.sampled_from(["replace", "replace", "remove", "misspell", "add"]))
-        try:
-            tree = _edit(tree, path, action, draw(VALUES))
-        except (KeyError, IndexError, TypeError):
-            pass  # the place went with an earlier edit
+        value = draw(VALUES)
+        with contextlib.suppress(KeyError, IndexError, TypeError):  # gone with an earlier edit
+            tree = _edit(tree, path, action, value)
     return tree
 
 
