@@ -37,6 +37,11 @@ def test_the_simulator_holds_the_whole_tray(bench):
     assert load_station(station).simulator_options["devices"] == 25
 
 
+def test_a_tray_may_hold_a_whole_lot(bench):
+    station = _station(bench, "channels: 1-20", "channels: 1-100000")
+    assert load_station(station).simulator_options["devices"] == 100_000
+
+
 def test_the_station_may_name_the_simulated_lot_size(bench):
     station = _station(bench, "  seed: 2611\n", "  seed: 2611\n  devices: 500\n")
     assert load_station(station).simulator_options["devices"] == 500
