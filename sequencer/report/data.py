@@ -110,8 +110,13 @@ class Lot:
     notes: tuple[str, ...]
     sources: tuple[PointSource, ...] = ()  # one per run, in the order of `runs`
 
-    @property
+    @cached_property
+    def _final_names(self) -> np.ndarray:
+        return self.final["device"].to_numpy(str)  # once: text columns convert slowly
+
+    @cached_property
     def final(self) -> pd.DataFrame:
+        """The result row of each device (filtered once: the summaries ask for it per figure)."""
         return self.devices[self.devices["final"]]
 
     @property
@@ -129,7 +134,7 @@ class Lot:
         d = self.final
         return FigureData(
             figure,
-            d["device"].to_numpy(str),
+            self._final_names,
             d[value_column(figure)].to_numpy(float),
             d[u_column(figure)].to_numpy(float),
             d[bound_column(figure)].to_numpy(bool),
