@@ -191,7 +191,7 @@ class Lot:
     @cached_property
     def step_kinds(self) -> dict[str, str]:
         """A sweep always programs at least two levels, a spot one (as the re-judge reads it):
-        counted in SQL over the points that belong to a device row."""
+        the distinct levels of each step counted in SQL."""
         levels: dict[str, set[float]] = {}
         for source in self.sources:
             for step, level in _step_levels(source):
@@ -363,18 +363,13 @@ def _plain(value: object) -> object:
 
 
 def _step_levels(source: PointSource) -> list[tuple]:
-    """Each step and level programmed, over the points that have a device row."""
+    """Each step and level programmed in a run. Every point has its device row: the store
+    writes a device and its points in one transaction (store/database.py write_device)."""
     if "step" not in source.columns:
         return []
-    level = "p.level_V" if "level_V" in source.columns else "NULL"
-    keys = ("run_id", *source.keys) if source.run_id is not None else source.keys
-    joined = " AND ".join(f"p.{k} = d.{k}" for k in keys) or "1"
+    level = "level_V" if "level_V" in source.columns else "NULL"
     where, params = source.run_filter()
-    sql = (
-        f"SELECT DISTINCT p.step, {level} FROM point AS p WHERE p.{where} AND EXISTS "
-        f"(SELECT 1 FROM device AS d WHERE {joined})"
-    )
-    return source.read(sql.replace("p.1", "1"), params)[1]
+    return source.read(f"SELECT DISTINCT step, {level} FROM point WHERE {where}", params)[1]
 
 
 def _settings(runs: pd.DataFrame) -> tuple[JudgeSettings, list[str]]:
