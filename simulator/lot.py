@@ -39,6 +39,7 @@ class Lot:
     spread: float
     defect_rate: float
     count: int
+    held: tuple[LotDevice, ...] = ()  # devices given instead of drawn (with_devices)
 
     def __len__(self) -> int:
         return self.count
@@ -47,12 +48,18 @@ class Lot:
         """Device `channel` (1-based), drawn from its own seed on first use."""
         if not 1 <= channel <= self.count:
             raise IndexError(f"channel {channel} not in 1..{self.count}")
+        if self.held:
+            return self.held[channel - 1]
         return _device(self.seed, self.preset, self.spread, self.defect_rate, channel)
 
     @property
     def devices(self) -> tuple[LotDevice, ...]:
         """Every device, in channel order (for small lots: this draws them all)."""
-        return tuple(self.at(channel) for channel in range(1, self.count + 1))
+        return self.held or tuple(self.at(channel) for channel in range(1, self.count + 1))
+
+    def with_devices(self, devices: tuple[LotDevice, ...]) -> Lot:
+        """The same lot holding these devices instead (a test puts a part in the tray)."""
+        return replace(self, held=tuple(devices), count=len(devices))
 
 
 def make_lot(
