@@ -14,7 +14,10 @@ the store add. The column before it keeps it in, for the reader who prefers the 
 
 The raw round trip is a 6-byte message and its echo through a plain Python socket to a plain
 Python echo server in another process, TCP_NODELAY on both sides: what one exchange costs with
-no VISA, no SCPI and no instrument at all. Target: at most 1.5x that per measured point.
+no VISA, no SCPI and no instrument at all: the median of 5,000 round trips timed one by one
+(after 200 to warm up), printed with its spread (5-95 %, min, max), so that a burst of load on
+the machine moves neither the baseline nor the ratios built on it. Target: at most 1.5x that
+per measured point.
 
 A device also has a fixed cost whatever its number of points: its exchanges (channel switch,
 configuration, error checks, the list's start and fetch, the output off), judging it, and
@@ -59,23 +62,37 @@ while data := c.recv(65536):
 """
 
 
-def raw_round_trip_s(count: int = 3000) -> float:
-    """Median of 5 batches: one send and the echo's recv, seconds each."""
+WARM_UP = 200  # round trips before timing: the first ones pay for caches and the scheduler
+
+
+def raw_round_trips_s(count: int = 5000) -> list[float]:
+    """`count` single round trips (one send and the echo's recv), each timed alone, seconds."""
     server = subprocess.Popen([sys.executable, "-c", ECHO], stdout=subprocess.PIPE, text=True)
     try:
         port = int(server.stdout.readline())
         with socket.create_connection(("127.0.0.1", port)) as client:
             client.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-            batches = []
-            for _ in range(5):
-                t0 = time.perf_counter()
-                for _ in range(count):
-                    client.sendall(b"READ?\n")
-                    client.recv(64)
-                batches.append((time.perf_counter() - t0) / count)
-        return statistics.median(batches)
+            trips = []
+            for k in range(WARM_UP + count):
+                t0 = time.perf_counter_ns()
+                client.sendall(b"READ?\n")
+                client.recv(64)
+                if k >= WARM_UP:
+                    trips.append((time.perf_counter_ns() - t0) * 1e-9)
+        return trips
     finally:
         server.wait(timeout=10)
+
+
+def describe_trips(trips: list[float]) -> str:
+    """Median and spread of the round trips, in microseconds."""
+    ordered = sorted(trips)
+    cut = statistics.quantiles(ordered, n=20)  # 5 % steps
+    return (
+        f"median {1e6 * statistics.median(ordered):.1f} us of {len(ordered)} round trips; "
+        f"5-95 % {1e6 * cut[0]:.1f}-{1e6 * cut[-1]:.1f} us, "
+        f"min {1e6 * ordered[0]:.1f}, max {1e6 * ordered[-1]:.0f} us"
+    )
 
 
 def busy_s(smu) -> float:
@@ -149,9 +166,10 @@ def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--devices", type=int, default=40)
     args = parser.parse_args()
-    rtt = raw_round_trip_s()
+    trips = raw_round_trips_s()
+    rtt = statistics.median(trips)
     print(f"raw socket round trip on loopback (Python, echo in another process): "
-          f"{1e6 * rtt:.0f} us\n")  # fmt: skip
+          f"{describe_trips(trips)}\n")  # fmt: skip
     full = load_recipe(ROOT / "recipes" / "demo.yaml")
     production = load_recipe(ROOT / "recipes" / "demo-production.yaml")
     runs = (

@@ -119,7 +119,7 @@ class Remembered:
 def remember_physics(instrument) -> None:
     lot = instrument.lot
     devices = tuple(replace(d, device=Remembered(d.device)) for d in lot.devices)
-    instrument.lot = replace(lot, devices=devices)
+    instrument.lot = lot.with_devices(devices)
 
 
 class VirtualClock:

@@ -26,7 +26,6 @@ from instruments.errors import (
 from instruments.loopback import SpyTransport
 from instruments.protocol import Transport
 from instruments.smu import Reading, ScpiSmu
-from instruments.transport import open_visa
 
 logging.getLogger(__name__).addHandler(logging.NullHandler())
 log = logging.getLogger(__name__)
@@ -149,6 +148,8 @@ def connect(
 
 
 def _open(resource: str, timeout_s: float, spy_log: TextIO | None) -> Transport:
+    from instruments.transport import open_visa  # start-up speed: pyvisa loads when one is opened
+
     transport: Transport = open_visa(resource, timeout_s=timeout_s)
     return SpyTransport(transport, spy_log) if spy_log is not None else transport
 

@@ -1,7 +1,9 @@
 """A seeded lot of devices: one preset, process spread per parameter, and defects.
 
-Each device draws from its own child of `SeedSequence(seed)`, so device k is the same whatever the
-lot size, and changing the defect rate never changes the process parameters of any device.
+Each device draws from its own child of `SeedSequence(seed)` (the k-th child is
+`SeedSequence(seed, spawn_key=(k,))`), so device k is the same whatever the lot size, and changing
+the defect rate never changes the process parameters of any device. A device is drawn when it is
+first asked for, so a lot of a million devices starts at once and holds only those in use.
 
 Defect kinds (weights and ranges in data/presets.yaml): open and short replace the device;
 leaky puts a resistance across it (a lower dynamic impedance, more current everywhere, also in
@@ -11,6 +13,7 @@ reverse); out-of-spec scales its RS so that the regulated current misses the fam
 from __future__ import annotations
 
 from dataclasses import dataclass, replace
+from functools import lru_cache
 
 import numpy as np
 
@@ -35,13 +38,28 @@ class Lot:
     preset: str
     spread: float
     defect_rate: float
-    devices: tuple[LotDevice, ...]
+    count: int
+    held: tuple[LotDevice, ...] = ()  # devices given instead of drawn (with_devices)
 
     def __len__(self) -> int:
-        return len(self.devices)
+        return self.count
 
     def at(self, channel: int) -> LotDevice:
-        return self.devices[channel - 1]
+        """Device `channel` (1-based), drawn from its own seed on first use."""
+        if not 1 <= channel <= self.count:
+            raise IndexError(f"channel {channel} not in 1..{self.count}")
+        if self.held:
+            return self.held[channel - 1]
+        return _device(self.seed, self.preset, self.spread, self.defect_rate, channel)
+
+    @property
+    def devices(self) -> tuple[LotDevice, ...]:
+        """Every device, in channel order (for small lots: this draws them all)."""
+        return self.held or tuple(self.at(channel) for channel in range(1, self.count + 1))
+
+    def with_devices(self, devices: tuple[LotDevice, ...]) -> Lot:
+        """The same lot holding these devices instead (a test puts a part in the tray)."""
+        return replace(self, held=tuple(devices), count=len(devices))
 
 
 def make_lot(
@@ -56,13 +74,17 @@ def make_lot(
         got = f"got {count}, {spread}, {defect_rate}"
         problem = f"needs count >= 1, spread >= 0, 0 <= defect rate <= 1 ({got})"
         raise OptionError("lot", problem)
-    base = preset(preset_name)
-    children = np.random.SeedSequence(seed).spawn(count)
-    devices = tuple(
-        _draw(k + 1, np.random.default_rng(child), base, spread, defect_rate)
-        for k, child in enumerate(children)
-    )
-    return Lot(seed, preset_name, spread, defect_rate, devices)
+    preset(preset_name)  # an unknown preset is refused now, not at the first device
+    return Lot(seed, preset_name, spread, defect_rate, count)
+
+
+@lru_cache(maxsize=4096)  # the devices in use (a tray's worth), not the whole lot
+def _device(
+    seed: int, preset_name: str, spread: float, defect_rate: float, channel: int
+) -> LotDevice:
+    child = np.random.SeedSequence(seed, spawn_key=(channel - 1,))  # = .spawn()'s child
+    rng = np.random.default_rng(child)
+    return _draw(channel, rng, preset(preset_name), spread, defect_rate)
 
 
 def _draw(

@@ -17,6 +17,9 @@ from simulator.smu_model import Smu
 from simulator.thermal import Thermal, celsius_to_kelvin
 from simulator.version import __version__
 
+# Devices are drawn as they are reached (simulator/lot.py): any lot size costs nothing at start;
+# the bound only catches a slip of the keyboard.
+MAX_DEVICES = 100_000_000
 NOISE_STREAM = 0x5EED  # keeps the noise stream apart from the lot's streams of the same seed
 
 
@@ -55,7 +58,7 @@ class SimOptions:
             "host": (self.host == "127.0.0.1", "only 127.0.0.1 is served"),
             "port": (0 <= self.port <= 65535, "must be 0..65535"),
             "seed": (0 <= self.seed <= 999_999, "must be 0..999999 (it is the 6-digit serial)"),
-            "devices": (1 <= self.devices <= 10_000, "must be 1..10000"),
+            "devices": (1 <= self.devices <= MAX_DEVICES, f"must be 1..{MAX_DEVICES}"),
             "spread": (0 <= self.spread <= 10, "must be 0..10"),
             "defect_rate": (0 <= self.defect_rate <= 1, "must be 0..1"),
             "clock": (self.clock in ("real", "virtual"), "must be real or virtual"),

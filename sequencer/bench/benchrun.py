@@ -1,25 +1,29 @@
-"""A run on an open instrument, from the safe start to the confirmed output-off, and the signals
-that may end it.
+"""A run on an open instrument, from the safe start to the confirmed output-off.
 
-`SignalGate` turns the first SIGINT, SIGTERM, SIGHUP or SIGQUIT into an exception (so every
-`finally` on the way out switches the output off) and holds back any signal that arrives while
-the output is being switched off, so that a second Ctrl-C cannot cut the shutdown short.
-`on_bench` runs the lot between `start_safe` and `make_safe` and leaves the shutdown report in a
-`Bench` for the line the CLI prints.
+The signals that may end it are caught by the gate in sequencer/bench/signalgate.py (named here
+too, where the bench's callers have always found it). `on_bench` runs the lot between
+`start_safe` and `make_safe` and leaves the shutdown report in a `Bench` for the line the CLI
+prints.
 """
 
 from __future__ import annotations
 
 import contextlib
 import logging
-import signal
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, TextIO
 
 from sequencer.bench.lotrun import RunSummary, make_guard
+from sequencer.bench.signalgate import (  # noqa: F401 - named here for the bench's callers
+    GATE,
+    STOP_SIGNALS,
+    SignalGate,
+    Terminated,
+    stopped_by,
+)
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.safety.rules import Guard, is_hazardous
@@ -30,98 +34,12 @@ if TYPE_CHECKING:
 
 log = logging.getLogger(__name__)
 
-# Ctrl-C; `kill`; the terminal closed or the SSH session dropped; Ctrl-\ (POSIX, signal(7))
-STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM, signal.SIGHUP, signal.SIGQUIT)
-
 # What ccbench says when it could not talk to the instrument at all: it sent nothing that
 # switches an output on, but someone else may have left it on.
 UNTOUCHED = (
     "ccbench switched nothing on, but could not read the output's state: check it at the instrument"
 )
 NOTHING_SENT = "nothing was sent to the instrument"
-
-
-class Terminated(BaseException):
-    """SIGTERM, SIGHUP or SIGQUIT, turned into an exception so that every `finally` switches
-    the output off; the message names the signal."""
-
-
-def stopped_by(signum: int) -> BaseException:
-    if signum == signal.SIGINT:
-        return KeyboardInterrupt("stopped by Ctrl-C")
-    return Terminated(f"stopped by {signal.Signals(signum).name}")
-
-
-@dataclass
-class SignalGate:
-    """Signal handler for STOP_SIGNALS; install with `installed()` from the main thread."""
-
-    received: list[int] = field(default_factory=list)
-    raised: bool = False
-    holding: int = 0
-    settled: bool = False
-
-    def handler(self, signum: int, frame: object) -> None:
-        self.received.append(signum)
-        if not self.holding:
-            self.release()
-
-    def release(self) -> None:
-        """Raise for the first signal received, once; later ones only stay recorded."""
-        if self.received and not self.raised and not self.settled:
-            self.raised = True
-            raise stopped_by(self.received[0])
-
-    def settle(self) -> None:
-        """The measuring is over: from now on signals are only recorded, so that nothing can
-        cut short the run record, the last line or the exit code."""
-        self.settled = True
-
-    @contextmanager
-    def held(self) -> Iterator[None]:
-        """Signals arriving inside are only recorded; the first one raises when the block ends
-        normally (or at once inside a nested `raising()`). When the block ends with an error,
-        that error goes on and the signal stays recorded."""
-        self.holding += 1
-        try:
-            yield
-        finally:
-            self.holding -= 1
-        if not self.holding:
-            self.release()
-
-    @contextmanager
-    def raising(self) -> Iterator[None]:
-        """Inside a `held()` block: here a signal raises at once (one already recorded, too)."""
-        saved, self.holding = self.holding, 0
-        try:
-            self.release()
-            yield
-        finally:
-            self.holding = saved
-
-    @contextmanager
-    def installed(self, *, ignore_after: bool = False) -> Iterator[SignalGate]:
-        """Handle STOP_SIGNALS for the block. A SIGHUP that the parent set to be ignored
-        (nohup) stays ignored: the user asked for the run to outlive the terminal. After the
-        block the previous handlers come back, or, with `ignore_after` (the program is about
-        to exit), the signals are ignored: a storm that goes on after the shutdown then changes
-        neither the last line nor the exit code (a Python handler would be reset to the default
-        action, which ends the process, while the interpreter shuts down)."""
-        self.received.clear()
-        self.raised, self.holding, self.settled = False, 0, False
-        previous = {signum: signal.getsignal(signum) for signum in STOP_SIGNALS}
-        for signum, before in previous.items():
-            if not (signum == signal.SIGHUP and before == signal.SIG_IGN):
-                signal.signal(signum, self.handler)
-        try:
-            yield self
-        finally:
-            for signum, before in previous.items():
-                signal.signal(signum, signal.SIG_IGN if ignore_after else before)
-
-
-GATE = SignalGate()  # the process's one gate; `ccbench` installs it for the whole command
 
 
 @dataclass

@@ -1,117 +1,110 @@
-"""`ccbench`: the command line. Errors become one clear line and a non-zero exit code."""
+"""`ccbench`: the command line. Errors become one clear line and a non-zero exit code.
+
+This module loads only the standard library and the light signal gate: each command's module
+(and what it needs: numpy, pandas, pint, pyvisa) is imported when that command runs, so that
+`ccbench --help` and a mistyped command answer at once (docs/speed.md, "Start-up").
+"""
 
 from __future__ import annotations
 
 import argparse
-import dataclasses
-import datetime as dt
-import getpass
-import json
-import os
-import platform
-import subprocess
 import sys
-import traceback
-from collections.abc import Sequence
-from pathlib import Path
-
-from rich.console import Console
-from rich.markup import escape
+from collections.abc import Callable, Sequence
+from typing import TYPE_CHECKING
 
 from sequencer import __version__
-from sequencer.bench import multibench, temperaturerun
-from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
-from sequencer.bench.lotrun import run_lot
-from sequencer.bench.parts import PartBench
-from sequencer.cli import (
-    detach,
-    jsonout,
-    judgecmd,
-    operatorview,
-    partcmd,
-    reportcmd,
-    results,
-    statuscmd,
-    studycmd,
-    uploadcmd,
-)
-from sequencer.cli import runcmd as runsession
-from sequencer.cli.checkjson import check_document
-from sequencer.cli.safetyview import limits_table
-from sequencer.cli.screen import Screen
-from sequencer.cli.view import plan_summary, plan_table, showing_devices, summary_table
-from sequencer.model.errors import CcbenchError, RecipeError, RunError
-from sequencer.plan import judgecover
-from sequencer.plan.make import make_plan
-from sequencer.plan.segments import Plan
-from sequencer.recipe.fields import MAX_TEXT
-from sequencer.recipe.load import Recipe, load_recipe
-from sequencer.run.estimate import after_run, predict
-from sequencer.safety.chamber import preflight_temperatures
-from sequencer.safety.rules import CAUTION, check_hazard, is_hazardous, preflight
-from sequencer.store.runfolder import folder_name
-from sequencer.store.shared import shipper
-from sequencer.store.tempcofile import TEMPCO_FILE, write_tempcos
+from sequencer.bench.signalgate import GATE, Terminated
+from sequencer.cli.exits import EXIT_INTERRUPTED, why_stopped
+from sequencer.model.errors import CcbenchError
 
-EXIT_INTERRUPTED = 130
-EXIT_OUTPUT_MAY_BE_ON = 6  # wins over every other code: the one a supervising script must see
+if TYPE_CHECKING:
+    from rich.console import Console
+
+Handler = Callable[[argparse.Namespace, "Console"], int]
+Adder = Callable[[argparse._SubParsersAction], None]
+
+# Every command: the module that defines its arguments and runs it, and its line in
+# `ccbench --help` (in the order shown). tests/cli/test_startup.py keeps each line the same as
+# the one its module gives.
+COMMANDS: dict[str, tuple[str, str]] = {
+    "run": ("measurecmd", "measure, judge and store every device of a recipe"),
+    "check": ("checkcmd", "validate a recipe and its station; print the plan"),
+    "judge": ("judgecmd", "judge a curve recorded elsewhere (CSV voltage_V,current_A)"),
+    "rejudge": ("judgecmd", "re-decide a stored run under a new recipe"),
+    "report": ("reportcmd", "lot report: HTML with plots, a terminal summary, or an STDF V4 file"),
+    "results": ("results", "list, filter and merge stored runs into one table"),
+    "status": ("statuscmd", "how a run stands: progress, output, ending, ETA"),
+    "study": ("studycmd", "gauge study or station comparison from stored runs"),
+    "upload": ("uploadcmd", "send run folders' results to the shared database"),
+    "sim": ("simcmd", "serve the simulated SMU standalone over TCP"),
+}
 
 
-class Stopped(CcbenchError):
-    """A signal (Ctrl-C, SIGTERM, SIGHUP, SIGQUIT) ended a run; the message says how the
-    output was left."""
+def command_module(key: str) -> tuple[Adder, dict[str, Handler]]:
+    """A command module's parser hook and its commands, imported on first use."""
+    if key == "measurecmd":
+        from sequencer.cli import measurecmd as m  # start-up speed: loads the whole bench
 
-    exit_code = EXIT_INTERRUPTED
+        return m.add_parser, m.COMMANDS
+    if key == "checkcmd":
+        from sequencer.cli import checkcmd as m  # start-up speed: loads recipe, plan, safety
+
+        return m.add_parser, m.COMMANDS
+    if key == "judgecmd":
+        from sequencer.cli import judgecmd as m  # start-up speed: loads the judge and the store
+
+        return m.add_parsers, m.COMMANDS
+    if key == "reportcmd":
+        from sequencer.cli import reportcmd as m  # start-up speed: loads the report's data
+
+        return m.add_parser, m.COMMANDS
+    if key == "results":
+        from sequencer.cli import results as m  # start-up speed: loads the store's yields
+
+        return m.add_parser, {"results": m.cmd_results}
+    if key == "statuscmd":
+        from sequencer.cli import statuscmd as m  # start-up speed: loads the run folder's reader
+
+        return m.add_parser, {"status": m.cmd_status}
+    if key == "studycmd":
+        from sequencer.cli import studycmd as m  # start-up speed: loads the studies
+
+        return m.add_parser, {"study": m.cmd_study}
+    if key == "uploadcmd":
+        from sequencer.cli import uploadcmd as m  # start-up speed: loads the shared store
+
+        return m.add_parser, {"upload": m.cmd_upload}
+    from sequencer.cli import simcmd as m  # start-up speed: as every command
+
+    return m.add_parser, m.COMMANDS
 
 
-HAZARD_HELP = (
-    "acknowledge levels above the station's touch-safe voltage (instead of the recipe's "
-    "'hazardous_voltage: acknowledged')"
-)
-
-
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The command line. With `command`, only the module of that command (if it is one) is
+    loaded and its commands get their full arguments; every other command is named with its
+    help line alone, which is all `ccbench --help` and a mistyped name need. With None, every
+    command is complete (tests and the documentation)."""
     parser = argparse.ArgumentParser(
         prog="ccbench",
         description="Test and characterise two-terminal constant-current regulators with an SMU.",
     )
     parser.add_argument("--version", action="version", version=f"ccbench {__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
-
-    run = sub.add_parser("run", help="measure, judge and store every device of a recipe")
-    run.add_argument("recipe", type=Path)
-    run.add_argument("--sim", action="store_true", help="use the embedded simulated SMU")
-    run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
-    run.add_argument("--lot", help="the lot under test (default: the recipe's lot); recorded")
-    run.add_argument("--send-dry-run", action="store_true", help=uploadcmd.SEND_DRY_RUN_HELP)
-    run.add_argument("--station", type=Path, help="station file instead of the recipe's")
-    run.add_argument("--operator", default="", help="operator name for the records")
-    run.add_argument("--part-by-part", action="store_true", help=partcmd.FLAG_HELP)
-    run.add_argument("--operator-view", action="store_true", help=operatorview.FLAG_HELP)
-    run.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
-    runsession.add_run_options(run)
-    detach.add_options(run)
-
-    check = sub.add_parser("check", help="validate a recipe and its station; print the plan")
-    check.add_argument("recipe", type=Path)
-    check.add_argument("--station", type=Path, help="station file instead of the recipe's")
-    check.add_argument("--allow-hazardous-voltage", action="store_true", help=HAZARD_HELP)
-    check.add_argument("--json", action="store_true", help=jsonout.FLAG_HELP)
-
-    judgecmd.add_parsers(sub)
-    reportcmd.add_parser(sub)
-
-    results.add_parser(sub)
-    statuscmd.add_parser(sub)
-    studycmd.add_parser(sub)
-    uploadcmd.add_parser(sub)
-
-    sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
-    sim.add_argument("--port", type=int, default=0)
-    sim.add_argument("--seed", type=int, default=1)
-    sim.add_argument("--devices", type=int, default=20)
-    sim.add_argument("--preset", default="FLC-1.8")
+    chosen = COMMANDS[command][0] if command in COMMANDS else None
+    added: set[str] = set()
+    for name, (key, help_line) in COMMANDS.items():
+        if command is not None and key != chosen:
+            sub.add_parser(name, help=help_line, add_help=False)
+        elif key not in added:
+            added.add(key)
+            command_module(key)[0](sub)
     return parser
+
+
+def named_command(argv: Sequence[str]) -> str | None:
+    """The command an argument list names: its first word that is not an option (`ccbench`'s
+    own options, --help and --version, take no value)."""
+    return next((word for word in argv if not word.startswith("-")), None)
 
 
 def main(
@@ -122,19 +115,25 @@ def main(
 ) -> int:
     """Run one command; returns its exit code. `exiting`: the process ends after this (the
     `ccbench` program itself), so stop signals stay ignored once the command is over."""
-    args = build_parser().parse_args(argv)
-    args.argv = list(sys.argv[1:] if argv is None else argv)  # for a --detach child
+    argv = sys.argv[1:] if argv is None else list(argv)
+    args = build_parser(named_command(argv) or "").parse_args(argv)
+    args.argv = list(argv)  # for a --detach child
     given = console is not None
-    console = console or Console(file=Screen(sys.stdout), highlight=False)
+    console = console or _screen_console()
+    handler = command_module(COMMANDS[args.command][0])[1][args.command]
     try:
         with GATE.installed(ignore_after=exiting):  # the first signal raises; more cannot
-            return COMMANDS[args.command](args, console)  # cut a shutdown short
+            return handler(args, console)  # cut a shutdown short
     except CcbenchError as exc:
+        from rich.markup import escape  # start-up speed: rich loads once there is output
+
         # The message may quote a file: shown as written, never read as markup or emoji codes.
         _error(console, args, given, f"[bold red]ccbench:[/] {escape(str(exc))}")
         return exc.exit_code
     except (KeyboardInterrupt, Terminated) as exc:
-        _error(console, args, given, f"[bold yellow]ccbench:[/] {escape(_why_stopped(exc))}")
+        from rich.markup import escape  # start-up speed: as above
+
+        _error(console, args, given, f"[bold yellow]ccbench:[/] {escape(why_stopped(exc))}")
         return EXIT_INTERRUPTED
 
 
@@ -144,6 +143,10 @@ def _error(console: Console, args: argparse.Namespace, given: bool, line: str) -
     the terminal the error), on the screen otherwise. A console handed in (a test's) keeps it
     unless --json asks for a clean stdout. If stderr cannot be written (its reader gone), the
     line goes to the screen after all: it says how the output was left."""
+    from rich.console import Console  # start-up speed: rich loads once there is output
+
+    from sequencer.cli.screen import Screen  # start-up speed, as above
+
     json_mode = bool(getattr(args, "json", False))
     if not json_mode and (given or console.file.isatty()):
         console.print(line, soft_wrap=True, emoji=False)
@@ -154,326 +157,17 @@ def _error(console: Console, args: argparse.Namespace, given: bool, line: str) -
         console.print(line, soft_wrap=True, emoji=False)
 
 
-def _why_stopped(exc: BaseException) -> str:
-    """'stopped by SIGHUP', say (the signal gate names the signal in the exception)."""
-    return str(exc) or ("stopped by Ctrl-C" if isinstance(exc, KeyboardInterrupt) else "stopped")
+def _screen_console() -> Console:
+    from rich.console import Console  # start-up speed: not needed for --help
+
+    from sequencer.cli.screen import Screen  # start-up speed, as above
+
+    return Console(file=Screen(sys.stdout), highlight=False)
 
 
 def entry() -> None:
     """The `ccbench` program: main, then an exit that a late signal cannot change."""
     sys.exit(main(exiting=True))
-
-
-def cmd_check(args: argparse.Namespace, console: Console) -> int:
-    recipe = load_recipe(args.recipe, station_path=args.station)
-    plan = make_plan(recipe)
-    _preflight(recipe, plan, args)
-    warnings = _judge_can_work(recipe, plan)
-    prediction = predict(recipe, plan)  # reads the dialects: a refusal is the only line shown
-    if args.json:
-        jsonout.write(console, "check", check_document(recipe, plan, prediction, warnings))
-        return 0
-    for warning in warnings:
-        console.print(f"[yellow]ccbench: warning:[/] {warning}", soft_wrap=True)
-    console.print(plan_table(recipe, plan))
-    console.print(limits_table(recipe, plan))
-    console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
-    console.print(f"{recipe.file}: valid; within the limits of station {recipe.station.name}")
-    return 0
-
-
-def _default_folder(lot: str, console: Console) -> Path:
-    name = folder_name(lot)
-    if name != lot:
-        console.print(f"the lot {lot!r} is not a folder name; its run folder is named {name!r}")
-    return Path("runs") / f"{name}-{dt.datetime.now():%Y%m%d-%H%M%S}"
-
-
-def _lot_option(recipe: Recipe, lot: str | None) -> Recipe:
-    """`--lot`: the same recipe for another lot, so each lot needs no edit (and no new hash)."""
-    if lot is None:
-        return recipe
-    if not lot.strip() or len(lot) > MAX_TEXT or not lot.isprintable():
-        raise RecipeError("command line", None, "--lot", "must be a short printable name")
-    return dataclasses.replace(recipe, lot=lot.strip())
-
-
-def cmd_run(args: argparse.Namespace, console: Console) -> int:
-    partcmd.check_options(args)
-    recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
-    plan = make_plan(recipe)
-    _preflight(recipe, plan, args)  # refuses before anything is started or opened
-    for warning in _judge_can_work(recipe, plan):  # else a plan the judge cannot use fails all
-        console.print(f"[yellow]ccbench: warning:[/] {warning}", soft_wrap=True)
-    resource = "sim" if args.sim else "; ".join(i.resource for i in recipe.station.instruments)
-    prediction = predict(recipe, plan)  # reads the dialects before any caution is shown
-    _cautions(console, recipe, plan)
-    if not args.operator_view:  # the production screen shows no plan or estimate
-        console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
-    out = args.out or _default_folder(recipe.lot, console)
-    repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
-    if args.resume and repeat is not None and (args.every, args.for_, args.passes) == (None,) * 3:
-        console.print(f"resume: the run's schedule goes on: {repeat.describe()}", soft_wrap=True)
-    several = len(recipe.station.instruments) > 1
-    if recipe.temperatures and (several or args.part_by_part):
-        raise RunError(
-            f"{recipe.file}: 'temperatures:' runs on a station with one SMU and a tray only: "
-            "use a station with one instrument, without --part-by-part"
-        )
-    if detach.wanted(args):
-        return detach.start(args.argv, out, console, named_out=args.out is not None)
-    manifest = _manifest(recipe, plan, args, resource)
-    manifest |= runsession.manifest_extras(recipe, resource, repeat)
-    manifest |= partcmd.manifest_extras(recipe, args, repeat)
-    manifest["planned"] = statuscmd.planned(plan, prediction, repeat, args.part_by_part)
-    shipper.check_driver(recipe.station.results_database)
-    store = runsession.open_store(out, manifest, args, console)
-    if not args.part_by_part and runsession.nothing_left(console, store, plan, repeat, _now()):
-        return 0
-    bench = multibench.Benches() if several else Bench()
-    status, error, uploads = "failed", None, None
-    try:
-        database = recipe.station.results_database
-        dry = bool(manifest["dry_run"])
-        uploads = uploadcmd.start_for(database, store, console, dry_run=dry, send=args.send_dry_run)
-        if several:  # one worker per instrument; sequencer/multibench.py
-            summary = multibench.measure_on_benches(
-                recipe, plan, args.sim, out, store,
-                lambda one: runsession.measure_passes(console, store, plan, repeat, one),
-                lambda text: console.print(text, soft_wrap=True),
-                lambda total: showing_devices(console, total), bench, GATE,
-            )  # fmt: skip
-        else:
-            summary = _on_one_bench(
-                console, recipe, plan, resource, out, store, repeat, bench, args.part_by_part,
-                args.operator_view,
-            )  # fmt: skip
-        status = summary.status
-    except (Exception, KeyboardInterrupt, Terminated) as exc:
-        status = "interrupted" if isinstance(exc, KeyboardInterrupt | Terminated) else "failed"
-        error = _run_error(exc, bench, out)
-    finally:
-        GATE.settle()  # measuring is over: a late signal cannot cut the record or the last line
-        ended = error.message if error else f"{status}; {bench.ending()}"
-        _finish(console, store, status, ended)
-        uploadcmd.finish(uploads, console)
-    if error is not None:
-        if bench.may_be_on():
-            error.exit_code = EXIT_OUTPUT_MAY_BE_ON
-        raise error
-    console.print(summary_table(summary))
-    if recipe.temperatures:
-        _tempcos(console, recipe, store, out)
-    if not args.operator_view:
-        took = after_run(prediction, len(plan.channels), summary.done, summary.seconds)
-        console.print(took, soft_wrap=True)
-    reportcmd.after_run(console, out)
-    console.print(f"{bench.ending()}; results: {out / 'devices.csv'}", soft_wrap=True)
-    return EXIT_OUTPUT_MAY_BE_ON if bench.may_be_on() else 0
-
-
-def _tempcos(console: Console, recipe: Recipe, store, out: Path) -> None:
-    """Each device's temperature coefficient of the regulated current, on screen and in
-    tempco.csv."""
-    results = write_tempcos(out, store.run_id, recipe.tempco)
-    for r in results:
-        if r.fit is None:
-            console.print(f"tempco {r.device}: {r.verdict} ({r.reason})", soft_wrap=True)
-            continue
-        u = f" ± {r.fit.u_pct_per_k:.2g}" if r.fit.u_pct_per_k == r.fit.u_pct_per_k else ""
-        why = f" ({r.reason})" if r.reason else ""
-        console.print(
-            f"tempco {r.device}: {r.fit.pct_per_k:+.4f}{u} %/K over {r.fit.points} results: "
-            f"{r.verdict}{why}",
-            soft_wrap=True,
-        )
-    console.print(f"temperature coefficients: {out / TEMPCO_FILE}", soft_wrap=True)
-
-
-def _run_error(exc: BaseException, bench: Bench | multibench.Benches, out: Path) -> CcbenchError:
-    """The one error a run ends with, its last line saying how the output was left. The first
-    error wins: nothing that fails after it (a log file on a full disk) may take its place."""
-    from instruments import InstrumentError  # start-up speed: `instruments` loads pyvisa
-
-    ending = bench.ending()
-    if isinstance(exc, InstrumentError):
-        return RunError(f"instrument: {exc}; {ending}")
-    if isinstance(exc, CcbenchError):
-        exc.message = f"{exc.message}; {ending}"
-        return exc
-    if isinstance(exc, KeyboardInterrupt | Terminated):
-        return Stopped(f"{_why_stopped(exc)}; {ending}; what was measured is kept in {out}")
-    # a bug (in the judge, say): still one line, the output state in it
-    detail = f"internal error ({type(exc).__name__}: {exc}); {ending}"
-    try:
-        (out / "traceback.txt").write_text(traceback.format_exc(), encoding="utf-8")
-    except OSError as failed:
-        return RunError(f"{detail}; its traceback could not be saved ({failed.strerror})")
-    return RunError(f"{detail}; details in {out / 'traceback.txt'}")
-
-
-def _finish(console: Console, store, status: str, ended: str) -> None:
-    """Record how the session ended, with what the screen no longer showed."""
-    lost = getattr(console.file, "lost", "")
-    problem = store.finish(status, _now(), ended=f"{ended}; {lost}" if lost else ended)
-    if problem and status == "completed":  # after a failure, the failure is the news
-        console.print(f"[bold yellow]ccbench:[/] {problem}", soft_wrap=True)
-
-
-def _on_one_bench(
-    console, recipe, plan, resource, out, store, repeat, bench, part_by_part, operator_view=False
-):
-    """The run on the station's one instrument (benchrun.on_bench), its exchanges in scpi.log."""
-    from instruments import connect  # start-up speed: `instruments` loads pyvisa
-    from sequencer.run.startnotes import instrument_record  # start-up speed, as above
-
-    def chamber_left(line):
-        bench.chamber = line
-
-    def announce(text):
-        console.print(text, soft_wrap=True)
-
-    sim = resource == "sim"
-    with (
-        exchange_log(out / "scpi.log") as log,
-        GATE.held(),
-        temperaturerun.chamber_in_the_loop(recipe, sim, announce, chamber_left) as chamber,
-    ):
-        bench.connecting = True
-        conn = connect(
-            resource,
-            dialect=recipe.station.dialect,
-            timeout_s=recipe.station.timeout_s,
-            spy_log=log,
-            sim_options=recipe.station.simulator_options if resource == "sim" else None,
-        )
-
-        def measure(guard):
-            store.set_identity(conn.resource, conn.identity)
-            store.note_instrument("instrument", instrument_record(conn.smu))
-            if part_by_part:
-                tester = PartBench(recipe, plan, conn.smu, store, guard)
-                write, sim = conn.smu.transport.write, resource == "sim"
-                return partcmd.from_command_line(console, tester, sim, write, operator_view)
-
-            def one_pass(part):
-                if chamber is not None:  # the output is off between passes: soak first
-                    with GATE.raising():
-                        chamber.before_pass(store)
-                return _measure(console, recipe, part, conn.smu, store, guard)
-
-            return runsession.measure_passes(console, store, plan, repeat, one_pass)
-
-        return on_bench(conn, recipe, plan, measure, bench, GATE, announce)
-
-
-def _measure(console, recipe, plan, smu, store, guard):
-    with showing_devices(console, len(plan.channels)) as shown:
-        return run_lot(recipe, plan, smu, store, shown, guard=guard)
-
-
-def _judge_can_work(recipe: Recipe, plan: Plan) -> list[str]:
-    """Refuse a plan that does not measure what the judge needs; the warnings of compliance at
-    or below a regulated-current limit. The same for `check` and `run`."""
-    problem = judgecover.unmeasured(plan, recipe.judge)
-    if problem is not None:
-        raise RecipeError(recipe.file, None, *problem)
-    return [f"{recipe.file}: {w}" for w in judgecover.clamping(plan, recipe.judge)]
-
-
-def _preflight(recipe: Recipe, plan, args: argparse.Namespace) -> None:
-    """Every planned level against the effective limits, every set point against the station's
-    chamber range, then the hazardous-voltage rules."""
-    limits = preflight(plan, recipe.effective_limits)
-    preflight_temperatures(recipe.temperatures, recipe.station.chamber)
-    check_hazard(
-        plan,
-        limits,
-        station=recipe.station.name,
-        interlocked=recipe.station.interlocked_fixture,
-        acknowledged=recipe.hazardous_voltage_acknowledged or args.allow_hazardous_voltage,
-    )
-
-
-def _cautions(console: Console, recipe: Recipe, plan) -> None:
-    console.print(f"[yellow]{CAUTION}[/]", soft_wrap=True)
-    limits = recipe.effective_limits
-    if is_hazardous(plan, limits):
-        how = "in the recipe" if recipe.hazardous_voltage_acknowledged else "on the command line"
-        console.print(
-            f"[bold red]HAZARDOUS VOLTAGE:[/] this run applies up to {plan.peak_voltage_v:g} V "
-            f"(touch-safe limit {limits.touch_safe_v:g} V; acknowledged {how}). The fixture "
-            "lid must stay closed; the interlock is read before every such level and the run "
-            "stops if it opens.",
-            soft_wrap=True,
-        )
-
-
-def _manifest(recipe: Recipe, plan, args: argparse.Namespace, resource: str) -> dict[str, object]:
-    return {
-        "started": _now(),
-        "product": recipe.product,
-        "lot": recipe.lot,
-        "operator": args.operator or recipe.operator or getpass.getuser(),
-        "host": platform.node(),
-        "software_version": __version__,
-        "recipe_file": recipe.file,
-        "recipe_sha256": recipe.digest,
-        "recipe_text": recipe.text,
-        "station": recipe.station.name,
-        "station_text": recipe.station.text,
-        "resource": resource,
-        "simulator": json.dumps(recipe.station.simulator_options) if resource == "sim" else None,
-        # A simulated instrument (--sim, or a station whose resources are `sim`): never a
-        # production result.
-        "dry_run": all(part == "sim" for part in resource.split("; ")),
-        "hazardous_voltage": _acknowledgement(recipe, plan, args),
-    }
-
-
-def _acknowledgement(recipe: Recipe, plan, args: argparse.Namespace) -> str | None:
-    """Who allowed levels above the touch-safe voltage, for the run record (None: no such
-    level is planned, or nobody needed to)."""
-    if not is_hazardous(plan, recipe.effective_limits):
-        return None
-    if recipe.hazardous_voltage_acknowledged:
-        return f"acknowledged in the recipe ({recipe.file})"
-    if getattr(args, "allow_hazardous_voltage", False):
-        return "acknowledged on the command line (--allow-hazardous-voltage)"
-    return None
-
-
-def _now() -> str:
-    return dt.datetime.now(dt.UTC).isoformat(timespec="milliseconds")
-
-
-def cmd_sim(args: argparse.Namespace, console: Console) -> int:
-    console.print(
-        "simulated SMU: no real output. Put the resource below in a station file "
-        "(instrument.resource); Ctrl-C stops it."
-    )
-    command = [sys.executable, "-m", "simulator", "serve", "--port", str(args.port)]
-    command += ["--seed", str(args.seed), "--devices", str(args.devices), "--preset", args.preset]
-    child = subprocess.Popen(command, env=dict(os.environ))
-    try:
-        return child.wait()
-    except (KeyboardInterrupt, Terminated):
-        child.terminate()
-        child.wait(timeout=10)
-        return 0
-
-
-COMMANDS = {
-    "run": cmd_run,
-    "check": cmd_check,
-    "sim": cmd_sim,
-    **judgecmd.COMMANDS,
-    **reportcmd.COMMANDS,
-    "results": results.cmd_results,
-    "status": statuscmd.cmd_status,
-    "upload": uploadcmd.cmd_upload,
-    "study": studycmd.cmd_study,
-}
 
 
 if __name__ == "__main__":

@@ -4,18 +4,21 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
+from typing import TYPE_CHECKING
 
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 from rich.table import Table
 from rich.text import Text
 
-from sequencer.bench.lotrun import DeviceDone, RunSummary
-from sequencer.judge.engine import Figure, Judgement
 from sequencer.model.units import format_si
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
 from sequencer.run.estimate import Estimate, describe
+
+if TYPE_CHECKING:  # names for the hints only: `ccbench check` need not load the bench
+    from sequencer.bench.lotrun import DeviceDone, RunSummary
+    from sequencer.judge.engine import Figure, Judgement
 
 VERDICT_STYLE = {
     "pass": "bold green",

@@ -148,8 +148,10 @@ def _timing(f: Fields) -> tuple[float | None, float | None]:
     return out[0], out[1]
 
 
-# A tray or switch matrix of a bench has tens to a few thousand positions.
-MAX_CHANNELS = 10_000
+# A tray or switch matrix of a bench has tens to a few thousand positions; a lot measured one
+# position after another (a handler, or a dry run of a whole lot on the simulator) has up to
+# some hundred thousand. More is a slip of the keyboard.
+MAX_CHANNELS = 1_000_000
 
 
 def parse_channels(source: Source, path: str, value: Any) -> tuple[int, ...]:

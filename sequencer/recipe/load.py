@@ -67,7 +67,9 @@ class Station:
 
     @property
     def simulator_options(self) -> dict[str, object]:
-        return dict(self.simulator)
+        """The embedded simulator's options: the station's `simulator:` keys, holding as many
+        devices as the tray has channels unless `devices` says otherwise."""
+        return {"devices": max(self.channels, default=1)} | dict(self.simulator)
 
 
 @dataclass(frozen=True)
@@ -180,6 +182,7 @@ def load_station(path: Path) -> Station:
 
 SIM_KEYS: dict[str, Callable[[Any], bool]] = {
     "seed": lambda v: isinstance(v, int) and v >= 0,
+    "devices": lambda v: isinstance(v, int) and 1 <= v <= 100_000_000,
     "preset": lambda v: isinstance(v, str),
     "spread": lambda v: isinstance(v, int | float) and 0 <= v <= 10,
     "defect_rate": lambda v: isinstance(v, int | float) and 0 <= v <= 1,

@@ -7,6 +7,11 @@ finite; pint (one registry) is given the unit name alone and converts it. So `0*
 practitioners' spellings (`MOhm`, `kΩ`, `µA`, `uA`) are read as meant, while the case traps
 `mohm` (milliohm where a megaohm was meant), `MV`, `MA`, `MW` and `Ms` are refused with the
 spelling that was probably meant.
+
+pint stays the authority, but it takes longer to load than the rest of `ccbench check`: the
+common spellings (an SI symbol with a prefix from pico to giga, `2 mA`, `100 kohm`) are read
+from a table of their factors, which tests/recipe/test_units_fast.py holds to pint's own result
+bit for bit; every other unit goes to pint, loaded when it is first needed.
 """
 
 from __future__ import annotations
@@ -14,8 +19,10 @@ from __future__ import annotations
 import math
 import re
 from functools import lru_cache
+from typing import TYPE_CHECKING
 
-import pint
+if TYPE_CHECKING:
+    import pint
 
 # Dimension name -> (pint dimensionality, SI unit we convert to, example shown in messages).
 KINDS: dict[str, tuple[str, str, str]] = {
@@ -55,10 +62,24 @@ _TRAPS: dict[str, tuple[str, str, str]] = {
 _SYMBOL = {"voltage": "V", "current": "A", "power": "W", "time": "s", "resistance": "ohm",
            "frequency": "Hz"}  # fmt: skip
 _PREFIXES = ("p", "n", "u", "m", "", "k", "M", "G")
+_FACTORS = (1e-12, 1e-9, 1e-6, 1e-3, 1.0, 1e3, 1e6, 1e9)
+
+# The fast path: kind -> {unit name -> factor to the kind's SI unit}, every prefixed symbol
+# except the case traps (refused before this table is read, and kept out of it all the same).
+COMMON_UNITS: dict[str, dict[str, float]] = {
+    kind: {
+        prefix + symbol: factor
+        for prefix, factor in zip(_PREFIXES, _FACTORS, strict=True)
+        if prefix + symbol not in _TRAPS and prefix + symbol != "mohm"
+    }
+    for kind, symbol in _SYMBOL.items()
+}
 
 
 @lru_cache(maxsize=1)
 def registry() -> pint.UnitRegistry:
+    import pint  # start-up speed: the common units never need it (COMMON_UNITS)
+
     return pint.UnitRegistry()
 
 
@@ -100,9 +121,15 @@ def parse_quantity(value: object, kind: str) -> float:
     if not text:
         raise UnitProblem(f"must be a {kind} with a unit, e.g. '{example}' (got {value!r})")
     number_text, rest = _split_number(text, value, example)
-    unit = _unit(rest.strip(), kind, value, example)
+    name = _unit_name(rest.strip(), kind, value, example)
     number = _finite(number_text, value)
-    si = float(registry().Quantity(number, unit).to(si_unit).magnitude)
+    factor = COMMON_UNITS[kind].get(name)
+    if factor is not None:
+        si = number * factor  # what pint gives for these, bit for bit (see the module's note)
+    else:
+        si = float(
+            registry().Quantity(number, _unit(name, kind, value, example)).to(si_unit).magnitude
+        )
     if not math.isfinite(si) or (si and not SMALLEST_SI <= abs(si) <= LARGEST_SI):
         raise UnitProblem(
             f"must be 0 or lie between {SMALLEST_SI:g} and {LARGEST_SI:g} {si_unit} in size "
@@ -150,8 +177,8 @@ def _comma_hint(number: str, unit: str = "") -> str:
     return "has a comma in its number: write it with a decimal point and no thousands separators"
 
 
-def _unit(text: str, kind: str, value: object, example: str) -> pint.Unit:
-    """The pint unit of one unit name, checked against the kind and the case traps."""
+def _unit_name(text: str, kind: str, value: object, example: str) -> str:
+    """One unit name in the spelling pint reads, checked against the case traps."""
     if not text:
         raise UnitProblem(f"needs a unit, e.g. '{example}' (got {value!r})")
     name = _NAMES.get(text, text)
@@ -163,6 +190,11 @@ def _unit(text: str, kind: str, value: object, example: str) -> pint.Unit:
     if not _UNIT_NAME.fullmatch(name):
         raise UnitProblem(f"needs one unit name after the number, e.g. '{example}' (got {value!r})")
     _refuse_traps(name, kind, value)
+    return name
+
+
+def _unit(name: str, kind: str, value: object, example: str) -> pint.Unit:
+    """The pint unit of a unit name from `_unit_name`, checked against the kind."""
     try:
         unit = registry().parse_units(name)
     except Exception:  # pint raises several unrelated types for a name it does not know
@@ -211,7 +243,8 @@ _RATE_UNITS = {"K/s": 1.0, "K/min": 1 / 60, "K/h": 1 / 3600}
 def parse_temperature_c(value: object) -> float:
     """An absolute temperature in degC from '85 degC', '-20 degC' or '253.15 K'."""
     number, unit = _number_and_unit(value, "a temperature", "85 degC", _TEMPERATURE_UNITS)
-    kelvin_to_c = registry().Quantity(number, _TEMPERATURE_UNITS[unit]).to("degC").magnitude
+    # degC as written; kelvin less 273.15, as pint converts it (tests/recipe/test_units_fast.py)
+    kelvin_to_c = number if _TEMPERATURE_UNITS[unit] == "degC" else number - 273.15
     celsius = round(float(kelvin_to_c), 9)  # 253.15 K is -20 degC, not -19.99999999999997
     if celsius < -273.15:
         raise UnitProblem(f"is below absolute zero (got {value!r})")

@@ -5,7 +5,11 @@ Tables are read by column name (`SELECT *`), so columns the store adds later are
 and columns an older schema lacks are filled in. A device measured more than once (a retest in
 a later run folder of the same lot, or a later pass in one folder) keeps every row in
 `devices`; the last one is its result (`final`). Points are matched to their device row by every
-column the point and device tables share (today run and device; a pass number tomorrow).
+column the point and device tables share (today run, pass and device).
+
+Points are not loaded with the lot: a lot of 100,000 devices holds some 9 million of them, and
+the summaries need none. A device's readings are read from its run's SQLite when a picture or
+the STDF file asks for them (`curve`, `curves`), by the point table's own key.
 
 The limits, decision rule and bins come from the recipe text stored with each run, so a
 report shows what the devices were judged against, not what a recipe file says today.
@@ -26,6 +30,7 @@ from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, Jud
 from sequencer.recipe.judgeconfig import parse_judge
 from sequencer.recipe.yamlsource import parse_yaml
 from sequencer.store.crosscheck import check_folder
+from sequencer.store.frames import read_frame
 from sequencer.store.readonly import open_for_reading
 from sequencer.store.yields import final_mask
 
@@ -72,20 +77,51 @@ class FigureData:
 
 
 @dataclass(frozen=True, eq=False)
+class PointSource:
+    """Where the points of one run are: its results.sqlite, its run id, and the columns that
+    tie a point to its device besides the run (`pass`, `device`)."""
+
+    path: Path
+    run_id: object
+    keys: tuple[str, ...]
+    columns: tuple[str, ...]  # the point table's
+
+    def read(self, sql: str, params: tuple = ()) -> tuple[list[str], list[tuple]]:
+        try:
+            db = open_for_reading(self.path)
+        except sqlite3.Error as exc:
+            raise StoreReadError(f"{self.path}: cannot be read ({exc})") from None
+        try:
+            cursor = db.execute(sql, params)
+            return [d[0] for d in cursor.description], cursor.fetchall()
+        except sqlite3.Error as exc:
+            raise StoreReadError(f"{self.path}: cannot be read ({exc})") from None
+        finally:
+            db.close()
+
+    def run_filter(self) -> tuple[str, tuple]:
+        return ("run_id = ?", (self.run_id,)) if self.run_id is not None else ("1", ())
+
+
+@dataclass(frozen=True, eq=False)
 class Lot:
     """What the reports work from. `runs`: one row per run (column `run` is its index);
-    `devices`: every stored device row in test order, with `run`, `row` and `final`;
-    `points`: every reading with the `row` of its device."""
+    `devices`: every stored device row in test order, with `run`, `row` and `final`; the
+    points of a device row through `curve` (all of them, once, through `points`)."""
 
     runs: pd.DataFrame
     devices: pd.DataFrame
-    points: pd.DataFrame
     settings: JudgeSettings
-    step_kinds: dict[str, str]
     notes: tuple[str, ...]
+    sources: tuple[PointSource, ...] = ()  # one per run, in the order of `runs`
 
-    @property
+    @cached_property
+    def _final_names(self) -> np.ndarray:
+        return self.final["device"].to_numpy(str)  # once: text columns convert slowly
+
+    @cached_property
     def final(self) -> pd.DataFrame:
+        """The result row of each device (filtered once: the summaries ask for it per figure)."""
         return self.devices[self.devices["final"]]
 
     @property
@@ -103,7 +139,7 @@ class Lot:
         d = self.final
         return FigureData(
             figure,
-            d["device"].to_numpy(str),
+            self._final_names,
             d[value_column(figure)].to_numpy(float),
             d[u_column(figure)].to_numpy(float),
             d[bound_column(figure)].to_numpy(bool),
@@ -128,13 +164,83 @@ class Lot:
         return np.where(np.isnan(stored), fixed, stored)
 
     def curve(self, row: int) -> pd.DataFrame:
-        """The readings of one device row, in the order they were taken."""
-        where = self._rows.get(row)
-        return self.points.iloc[where if where is not None else []]
+        """The readings of one device row, in the order they were taken (none for a row whose
+        points belong to a later row of the same key, as the store keeps one set per key)."""
+        row = int(row)
+        if row not in self._owners:
+            return _typed(pd.DataFrame(columns=[*POINT_COLUMNS, "row"]))
+        device = self.devices.iloc[row]
+        source = self.sources[int(device["run"])]
+        where, params = source.run_filter()
+        for key in source.keys:
+            where += f" AND {key} = ?"
+            params += (_plain(device[key]),)
+        names, rows = source.read(f"SELECT * FROM point WHERE {where} ORDER BY rowid", params)
+        points = pd.DataFrame.from_records(rows, columns=names)
+        points = points.assign(run=int(device["run"]), row=row)
+        return _typed(_with_point_columns(points))
+
+    def curves(self, rows) -> pd.DataFrame:
+        """The readings of several device rows, row after row."""
+        frames = [self.curve(row) for row in rows]
+        if not frames:
+            return self.curve(-1)
+        return pd.concat(frames, ignore_index=True)
 
     @cached_property
-    def _rows(self) -> dict[int, np.ndarray]:
-        return self.points.groupby("row", sort=False).indices
+    def points(self) -> pd.DataFrame:
+        """Every reading with the `row` of its device: the whole lot at once, for a caller
+        that really needs it (the reports read by device)."""
+        return self.curves(self.devices["row"])
+
+    @cached_property
+    def step_kinds(self) -> dict[str, str]:
+        """A sweep always programs at least two levels, a spot one (as the re-judge reads it):
+        the distinct levels of each step counted in SQL."""
+        levels: dict[str, set[float]] = {}
+        for source in self.sources:
+            for step, level in _step_levels(source):
+                if step is None:
+                    continue
+                found = levels.setdefault(str(step), set())
+                if level is not None and level == level:
+                    found.add(float(level))
+        return {step: "sweep" if len(found) > 1 else "spot" for step, found in levels.items()}
+
+    def last_reading_s(self, row: int) -> float:
+        """When the last reading of a device row was taken (its `time_s`; NaN for none), from
+        one grouped query per run rather than a read of every curve."""
+        return self._last_readings.get(int(row), float("nan"))
+
+    @cached_property
+    def _last_readings(self) -> dict[int, float]:
+        out: dict[int, float] = {}
+        owners = self.devices[self.devices["row"].isin(self._owners)]
+        for run, source in enumerate(self.sources):
+            if "time_s" not in source.columns:
+                continue
+            where, params = source.run_filter()
+            keys = ", ".join(source.keys) or "1"
+            sql = (
+                f"SELECT {keys}, MAX(time_s) FROM point WHERE {where} "
+                f"AND abs(time_s) < 1e308 GROUP BY {keys}"
+            )  # abs(...) < 1e308: finite readings only, as a curve's own maximum takes them
+            last = {tuple(found[:-1]): found[-1] for found in source.read(sql, params)[1]}
+            mine = owners[owners["run"] == run]
+            columns = [mine[k].map(_plain) for k in source.keys] or [pd.Series(1, mine.index)]
+            for row, *key in zip(mine["row"], *columns, strict=True):
+                if last.get(tuple(key)) is not None:
+                    out[int(row)] = float(last[tuple(key)])
+        return out
+
+    @cached_property
+    def _owners(self) -> set[int]:
+        """The device rows that own points: the last row of each key (run and the shared
+        columns), as the points were matched when the whole table was read."""
+        keys = ["run", *sorted({k for source in self.sources for k in source.keys})]
+        keys = [k for k in keys if k in self.devices]
+        rows = self.devices.drop_duplicates(keys, keep="last")["row"]
+        return {int(r) for r in rows}
 
     def rows_of(self, device: str) -> pd.DataFrame:
         """Every stored row of a device (several where it was retested)."""
@@ -153,10 +259,9 @@ def load_lot(folders: list[Path]) -> Lot:
     runs = pd.DataFrame([e[0] for e in entries])
     runs["run"] = runs.index
     devices = _devices([e[1].assign(run=k, lot=e[0]["lot"]) for k, e in enumerate(entries)])
-    points = _points([e[2].assign(run=k) for k, e in enumerate(entries)], devices)
     settings, notes = _settings(runs)
     notes += _status_notes(runs) + _dry_run_notes(runs)
-    return Lot(runs, devices, points, settings, _step_kinds(points), tuple(notes))
+    return Lot(runs, devices, settings, tuple(notes), tuple(e[2] for e in entries))
 
 
 def _dry_run_notes(runs: pd.DataFrame) -> list[str]:
@@ -170,11 +275,12 @@ def _dry_run_notes(runs: pd.DataFrame) -> list[str]:
     return [f"DRY RUN: {which} measured the simulated instrument, not real parts"]
 
 
-Entry = tuple[dict, pd.DataFrame, pd.DataFrame]
+Entry = tuple[dict, pd.DataFrame, PointSource]
 
 
 def _read_folder(folder: Path) -> list[Entry]:
-    """(run, its devices, its points) for every run a folder's results.sqlite holds."""
+    """(run, its devices, where its points are) for every run a folder's results.sqlite
+    holds."""
     path = folder / "results.sqlite"
     if not path.is_file():
         raise StoreError(f"{folder}: not a run folder (no results.sqlite)")
@@ -185,8 +291,8 @@ def _read_folder(folder: Path) -> list[Entry]:
     try:
         check_folder(folder, db)
         runs = pd.read_sql_query("SELECT * FROM run ORDER BY id", db)
-        devices = pd.read_sql_query("SELECT * FROM device ORDER BY rowid", db)
-        points = pd.read_sql_query("SELECT * FROM point ORDER BY rowid", db)
+        devices = read_frame(db, "SELECT * FROM device ORDER BY rowid")
+        point_columns = [r[1] for r in db.execute("PRAGMA table_info(point)")]
     except (sqlite3.Error, pd.errors.DatabaseError) as exc:
         raise StoreReadError(f"{path}: cannot be read ({exc})") from None
     finally:
@@ -194,10 +300,13 @@ def _read_folder(folder: Path) -> list[Entry]:
     if runs.empty:
         raise StoreError(f"{path}: holds no run")
     runs = runs.rename(columns={"id": "run_id"})
+    keys = tuple(c for c in point_columns if c in devices.columns and c not in ("run_id", "row"))
+    by_run = "run_id" in point_columns and "run_id" in devices.columns
     out = []
     for run in runs.to_dict("records"):
         run = {c: run.get(c) for c in RUN_TEXT} | run | {"folder": str(folder)}
-        out.append((run, _of_run(devices, run["run_id"]), _of_run(points, run["run_id"])))
+        source = PointSource(path, run["run_id"] if by_run else None, keys, tuple(point_columns))
+        out.append((run, _of_run(devices, run["run_id"]), source))
     return out
 
 
@@ -242,24 +351,34 @@ def _fill_missing(devices: pd.DataFrame) -> None:
     devices["reasons"] = devices["reasons"].fillna("").astype(str)
 
 
-def _points(frames: list[pd.DataFrame], devices: pd.DataFrame) -> pd.DataFrame:
-    points = pd.concat(frames, ignore_index=True)
+def _with_point_columns(points: pd.DataFrame) -> pd.DataFrame:
     for column in POINT_COLUMNS:
         if column not in points:
             points[column] = np.nan
-    keys = [c for c in points.columns if c in devices.columns and c not in ("run_id", "row")]
-    rows = devices[[*keys, "row"]].drop_duplicates(keys, keep="last")
-    points = points.merge(rows, on=keys, how="inner", sort=False)
-    for column in ("level_V", "voltage_V", "current_A", "time_s"):
-        points[column] = pd.to_numeric(points[column], errors="coerce").astype(float)
-    points["in_compliance"] = points["in_compliance"].fillna(0).astype(bool)
     return points
 
 
-def _step_kinds(points: pd.DataFrame) -> dict[str, str]:
-    """A sweep always programs at least two levels, a spot one (as the re-judge reads it)."""
-    levels = points.groupby("step", sort=False)["level_V"].nunique()
-    return {str(step): "sweep" if n > 1 else "spot" for step, n in levels.items()}
+def _typed(points: pd.DataFrame) -> pd.DataFrame:
+    for column in ("level_V", "voltage_V", "current_A", "time_s"):
+        points[column] = pd.to_numeric(points[column], errors="coerce").astype(float)
+    points["in_compliance"] = points["in_compliance"].fillna(0).astype(bool)
+    points["row"] = points["row"].astype(int)
+    return points
+
+
+def _plain(value: object) -> object:
+    """A key value as SQLite takes it (numpy integers are not bound as numbers)."""
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def _step_levels(source: PointSource) -> list[tuple]:
+    """Each step and level programmed in a run. Every point has its device row: the store
+    writes a device and its points in one transaction (store/database.py write_device)."""
+    if "step" not in source.columns:
+        return []
+    level = "level_V" if "level_V" in source.columns else "NULL"
+    where, params = source.run_filter()
+    return source.read(f"SELECT DISTINCT step, {level} FROM point WHERE {where}", params)[1]
 
 
 def _settings(runs: pd.DataFrame) -> tuple[JudgeSettings, list[str]]:

@@ -120,7 +120,7 @@ def _vl_marks(ax, lot: Lot, rows, scale: float) -> None:
 def _current_range(lot: Lot, rows, clamped: bool = False) -> tuple[float, float]:
     """Current axis: the readings (unclamped ones only, unless `clamped`) and the IP limit,
     with headroom; from 0 unless some reading is negative."""
-    pts = lot.points[lot.points["row"].isin(list(rows))]
+    pts = lot.curves(rows)
     if not clamped:
         pts = pts[~pts["in_compliance"]]
     current = pts["current_A"].to_numpy(float)
@@ -133,7 +133,7 @@ def _current_range(lot: Lot, rows, clamped: bool = False) -> tuple[float, float]
 
 def _voltage_span(lot: Lot, rows) -> tuple[float, float]:
     """From 0 (or the lowest reading) to the highest level programmed or measured."""
-    pts = lot.points[lot.points["row"].isin(list(rows))]
+    pts = lot.curves(rows)
     volts = np.r_[pts["voltage_V"].to_numpy(float), pts["level_V"].to_numpy(float)]
     volts = volts[np.isfinite(volts)]
     low, high = min(0.0, float(volts.min(initial=0.0))), float(volts.max(initial=1.0))

@@ -248,9 +248,8 @@ def _status(lot: Lot, figure: str, value: float, at_least: bool, big_u: float) -
 
 
 def _millis(lot: Lot, row: int) -> int:
-    t = lot.curve(row)["time_s"].to_numpy(float)
-    t = t[np.isfinite(t)]
-    return round(1000 * float(t.max())) if len(t) else 0
+    last = lot.last_reading_s(row)
+    return round(1000 * last) if math.isfinite(last) else 0
 
 
 def _summary(lot: Lot, numbers: dict) -> list[bytes]:

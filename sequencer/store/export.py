@@ -18,6 +18,7 @@ import pandas as pd
 
 from sequencer.model.errors import RecipeError, StoreError, StoreReadError
 from sequencer.store.crosscheck import check_folder
+from sequencer.store.frames import read_frame
 from sequencer.store.readonly import open_for_reading
 
 DATABASE_FILE = "results.sqlite"
@@ -83,10 +84,10 @@ def _query(db: sqlite3.Connection, folder: Path) -> pd.DataFrame:
         raise sqlite3.DatabaseError(f"no {missing} table: the file is empty or damaged")
     order = "device.pass, device.seq" if "seq" in device_cols else "device.rowid"
     wanted = [f'device."{c}"' for c in device_cols if c != "run_id"]
-    frame = pd.read_sql_query(
+    frame = read_frame(
+        db,
         f"SELECT {', '.join(picked + wanted)} FROM device JOIN run ON device.run_id = run.id "
         f"ORDER BY run.id, {order}",
-        db,
     )
     frame.insert(0, "folder", str(folder))
     if "pass" not in frame:

@@ -3,15 +3,19 @@
 from __future__ import annotations
 
 import csv
+import io
 import json
 import shutil
 import sqlite3
 
 import numpy as np
+import pandas as pd
 import pytest
+from rich.console import Console
 
 from sequencer.model.errors import StoreError
 from sequencer.report.data import ReportError, load_lot, value_column
+from sequencer.store.frames import read_frame
 
 DRY = "DRY RUN: every run measured the simulated instrument, not real parts"
 
@@ -141,3 +145,42 @@ def test_notes_for_other_limits_and_an_unfinished_run(lot_folder, retest_folder,
     notes = load_lot([lot_folder, folder]).notes
     assert any("other limits" in n for n in notes)
     assert any("run running" in n for n in notes)
+
+
+def test_the_summaries_read_no_point(lot_folder, tmp_path):
+    """The text report and the summary after a run read the device table alone: with the
+    point table gone they are the same (the points are read only for pictures and STDF)."""
+    from sequencer.cli.lotview import print_after_run
+
+    folder = tmp_path / "no-points"
+    shutil.copytree(lot_folder, folder)
+    db = sqlite3.connect(folder / "results.sqlite")
+    with db:
+        db.execute("DROP TABLE point")
+    db.close()
+
+    def shown(where):
+        console = Console(file=io.StringIO(), width=100, color_system=None)
+        print_after_run(console, load_lot([where]))
+        return console.file.getvalue()
+
+    assert shown(folder) == shown(lot_folder)
+
+
+def test_a_curve_is_read_by_device_as_the_whole_table_matched_it(lot_folder, retest_folder):
+    lot = load_lot([lot_folder, retest_folder])
+    db = sqlite3.connect(lot_folder / "results.sqlite")
+    stored = db.execute("SELECT current_A FROM point WHERE device = 'FK2611-07-002' ORDER BY rowid")
+    (row,) = lot.rows_of("FK2611-07-002")["row"]
+    assert lot.curve(row)["current_A"].tolist() == [r[0] for r in stored]
+    retested = lot.rows_of("FK2611-07-004")["row"].tolist()
+    assert all(len(lot.curve(r)) for r in retested)  # each run's row has its own points
+    assert len(lot.curves(retested)) == sum(len(lot.curve(r)) for r in retested)
+
+
+def test_devices_read_in_chunks_are_the_table_read_at_once(lot_folder):
+    db = sqlite3.connect(lot_folder / "results.sqlite")
+    sql = "SELECT * FROM device ORDER BY rowid"
+    whole = pd.read_sql_query(sql, db)
+    for size in (1, 3, 5, 7):  # some chunks hold only NULLs in a figure column
+        pd.testing.assert_frame_equal(read_frame(db, sql, size), whole)

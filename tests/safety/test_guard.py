@@ -26,7 +26,7 @@ def put_device(inst: Instrument, channel: int, device, kind: str = "short") -> N
     lot = inst.lot
     devices = list(lot.devices)
     devices[channel - 1] = dataclasses.replace(devices[channel - 1], kind=kind, device=device)
-    inst.lot = dataclasses.replace(lot, devices=tuple(devices))
+    inst.lot = lot.with_devices(tuple(devices))
 
 
 def run_loop(tmp_path: Path, monkeypatch, bench: LoopBench, *args: str, **keys):

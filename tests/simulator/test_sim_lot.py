@@ -109,3 +109,31 @@ def test_bad_lot_arguments_raise_option_error():
         make_lot(1, 0)
     with pytest.raises(OptionError):
         make_lot(1, 5, defect_rate=1.5)
+
+
+def test_device_k_is_drawn_from_the_kth_child_of_the_seed():
+    """Drawn on demand, as `SeedSequence(seed).spawn(count)` always gave them: the stored demo
+    lots keep their devices (numpy's SeedSequence.spawn)."""
+    from simulator.lot import _draw
+
+    lot = make_lot(7, 30, defect_rate=0.3)
+    for k, child in enumerate(np.random.SeedSequence(7).spawn(30), start=1):
+        drawn = _draw(k, np.random.default_rng(child), preset("FLC-1.8"), 1.0, 0.3)
+        assert (lot.at(k).params, lot.at(k).kind) == (drawn.params, drawn.kind)
+
+
+def test_a_lot_of_any_size_holds_the_same_devices_and_statistics():
+    huge = make_lot(3, 10_000_000)  # drawn as reached: nothing is drawn here
+    assert len(huge) == 10_000_000
+    small = make_lot(3, 400)
+    assert [huge.at(k).params for k in range(1, 401)] == [d.params for d in small.devices]
+    assert huge.at(10_000_000).channel == 10_000_000
+    with pytest.raises(IndexError):
+        huge.at(10_000_001)
+
+
+def test_the_simulator_serves_lots_beyond_ten_thousand_devices():
+    from simulator.__main__ import build_parser, options_from
+
+    options = options_from(build_parser().parse_args(["serve", "--devices", "100000"]))
+    assert options.devices == 100_000

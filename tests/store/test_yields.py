@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 
 from sequencer.store.yields import final_mask, yield_by
@@ -46,3 +47,23 @@ def test_a_tray_run_without_bins_or_standing_counts_by_verdict():
     by_lot = yield_by(rows, "lot").set_index("lot")
     assert by_lot.loc["FK2611-07", "yield"] == 1.0  # every part's last row passed
     assert yield_by(rows.iloc[0:0], "lot").empty
+
+
+def test_the_final_rows_are_those_the_isin_rule_gives_on_a_large_random_table():
+    """The part none of whose rows stood is found by grouping (fast on pyarrow text); the rule
+    is unchanged: its last row is its result."""
+    rng = np.random.default_rng(5)
+    n = 5000
+    frame = pd.DataFrame({
+        "lot": rng.choice(["A", "B", None], n),
+        "device": pd.array(rng.integers(0, 900, n).astype(str), dtype="string[pyarrow]"),
+        "standing": rng.choice([1.0, 0.0, np.nan], n, p=[0.2, 0.7, 0.1]),
+    })  # fmt: skip
+    key = frame["lot"].fillna("").astype(str) + "\0" + frame["device"].astype(str)
+    stood = frame["standing"].isna() | (frame["standing"] != 0)
+    expected = pd.Series(False, index=frame.index)
+    expected[key[stood].drop_duplicates(keep="last").index] = True
+    never = ~key.isin(key[stood])
+    expected[key[never].drop_duplicates(keep="last").index] = True
+    assert never.any()  # the table has such parts
+    pd.testing.assert_series_equal(final_mask(frame), expected)
