@@ -1,7 +1,8 @@
 """Talking to real instruments: transports, SCPI helpers, dialects and the SMU driver.
 
 `connect()` is the front door: it opens a resource (or starts the embedded simulator for "sim"),
-asks *IDN? at once (a refused connection only shows on the first write) and hands back a
+asks the dialect's identification (*IDN?) at once (a refused connection only shows on the
+first write) and hands back a
 `Connection` holding the `ScpiSmu`.
 """
 
@@ -24,8 +25,8 @@ from instruments.errors import (
     ScpiError,
 )
 from instruments.loopback import SpyTransport
-from instruments.protocol import Transport
-from instruments.smu import Reading, ScpiSmu
+from instruments.protocol import TERMINATORS, Transport
+from instruments.smu import NOT_IDENTIFIED, Reading, ScpiSmu
 from instruments.transport import open_visa
 
 logging.getLogger(__name__).addHandler(logging.NullHandler())
@@ -79,17 +80,19 @@ class Connection:
 
     def _reopen(self) -> ScpiSmu:
         self.smu.close()
-        transport = _open(self.resource, self._timeout_s, self._spy_log)
+        transport = open_transport(self.resource, self.smu.dialect, self._timeout_s, self._spy_log)
         smu = ScpiSmu(transport, self.smu.dialect)
         try:
             identity = smu.identify()
         except BaseException:
             smu.close()
             raise
-        if identity != self.identity:
+        if identity != self.identity and identity != NOT_IDENTIFIED:
             smu.close()
             detail = f"reconnected to {identity!r}, not the original {self.identity!r}"
             raise InstrumentError(self.resource, None, detail, hint="check the cabling")
+        smu.channels_used = set(self.smu.channels_used)  # a mainframe: switch every one off
+        smu.channel = self.smu.channel
         self.smu = smu
         return smu
 
@@ -126,8 +129,11 @@ def connect(
     timeout_s: float = 2.0,
     spy_log: TextIO | None = None,
     sim_options: Mapping[str, object] | None = None,
+    channels: tuple[int, ...] = (1,),
 ) -> Connection:
-    """Open `resource` (a VISA resource string, or "sim" for the embedded simulator)."""
+    """Open `resource` (a VISA resource string, or "sim" for the embedded simulator).
+    `channels`: the tray channels wired to it; on a mainframe (a dialect naming {channel} in
+    its commands) each is one source channel, and every one is switched off at each ending."""
     chosen = load_dialect(dialect)  # a bad dialect fails before anything is started or opened
     if sim_options and resource != SIM_RESOURCE:
         detail = f"simulator options were given for the resource {resource!r}"
@@ -135,7 +141,9 @@ def connect(
     simulator = EmbeddedSimulator() if resource == SIM_RESOURCE else None
     try:
         real = simulator.start(sim_options) if simulator is not None else resource
-        smu = ScpiSmu(_open(real, timeout_s, spy_log), chosen)
+        smu = ScpiSmu(open_transport(real, chosen, timeout_s, spy_log), chosen)
+        if chosen.addresses_channels:
+            smu.channels_used = set(channels) | {1}
         try:
             smu.identify()
         except BaseException:
@@ -148,8 +156,19 @@ def connect(
     return Connection(smu, real, timeout_s=timeout_s, spy_log=spy_log, simulator=simulator)
 
 
-def _open(resource: str, timeout_s: float, spy_log: TextIO | None) -> Transport:
-    transport: Transport = open_visa(resource, timeout_s=timeout_s)
+def open_transport(
+    resource: str, dialect: Dialect, timeout_s: float = 2.0, spy_log: TextIO | None = None
+) -> Transport:
+    """The link as the dialect has it: its terminators, its identification query asked first
+    (none where the dialect has none: then only a refused connection is caught here)."""
+    read, write = (TERMINATORS[name] for name in dialect.terminators)
+    transport: Transport = open_visa(
+        resource,
+        timeout_s=timeout_s,
+        probe=dialect.identify,
+        read_termination=read,
+        write_termination=write,
+    )
     return SpyTransport(transport, spy_log) if spy_log is not None else transport
 
 
@@ -168,4 +187,5 @@ __all__ = [
     "ScpiSmu",
     "connect",
     "load_dialect",
+    "open_transport",
 ]

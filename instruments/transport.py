@@ -47,7 +47,7 @@ from instruments.errors import (
     InstrumentTimeout,
     ReplyError,
 )
-from instruments.protocol import PROBE, Transport, check_timeout
+from instruments.protocol import PROBE, TERMINATORS, Transport, check_timeout
 from instruments.scpi import (
     block_dtype,
     check_message,
@@ -89,25 +89,38 @@ def _resource_manager() -> pyvisa.ResourceManager:
     return manager
 
 
-def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
-    """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers *IDN?."""
+def open_visa(
+    resource: str,
+    *,
+    timeout_s: float = 2.0,
+    probe: str | None = PROBE,
+    read_termination: str = "\n",
+    write_termination: str = "\n",
+) -> VisaTransport:
+    """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers
+    `probe` (*IDN? by default; the query whose constant answer also resynchronises the link).
+    With `probe` None the instrument is asked nothing: the link is only checked for a refused
+    connection, and a resynchronisation can only drain the input until it is quiet."""
     millis = round(check_timeout(timeout_s) * 1000)
     problem = resource_problem(resource)
     if problem:
         raise InstrumentError(resource, None, f"the resource {problem}", hint=RESOURCE_HINT)
+    for text in (read_termination, write_termination):
+        if text not in TERMINATORS.values():
+            raise ValueError(f"a line terminator is LF, CR or CRLF (got {text!r})")
     try:
         inst = _resource_manager().open_resource(
             resource,
-            read_termination="\n",
-            write_termination="\n",
+            read_termination=read_termination,
+            write_termination=write_termination,
             timeout=millis,
             open_timeout=millis,
         )
     except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
         raise _open_error(resource, exc, timeout_s) from exc
-    transport = VisaTransport(inst, resource, timeout_s)
+    transport = VisaTransport(inst, resource, timeout_s, read_termination, write_termination)
     try:
-        transport.learn_probe()
+        transport.learn_probe(probe)
     except BaseException:
         transport.close()
         raise
@@ -235,9 +248,21 @@ _VISA_WORDS = {int(k): words for k, words in visa_errors.completion_and_error_me
 class VisaTransport:
     """A Transport over a pyvisa message-based resource; use `open_visa` to make one."""
 
-    def __init__(self, inst: Any, resource: str, timeout_s: float) -> None:
+    def __init__(
+        self,
+        inst: Any,
+        resource: str,
+        timeout_s: float,
+        read_termination: str = "\n",
+        write_termination: str = "\n",
+    ) -> None:
         self._inst = inst
         self.resource = resource
+        # pyvisa ends a read at the last character of the read termination (SCPI.md 1.2)
+        self._end = read_termination.encode()[-1:]
+        self._read_term = read_termination.encode()
+        self._write_term = write_termination
+        self._probe: str | None = PROBE
         self._timeout_s = check_timeout(timeout_s)
         self._session = _pyvisa_py_session(inst)
         self._socket = _tcp_socket(self._session)
@@ -261,13 +286,21 @@ class VisaTransport:
         with self._mapped(None):
             self._inst.timeout = round(self._timeout_s * 1000)
 
-    def learn_probe(self) -> str:
-        """Ask *IDN? once (also proves the connection) and remember it for resynchronising."""
-        self._probe_reply = self.query(PROBE)
+    def learn_probe(self, probe: str | None = PROBE) -> str | None:
+        """Ask `probe` once (also proves the connection) and remember its answer for
+        resynchronising; None: ask nothing, only check that the link was not refused."""
+        self._probe = probe
+        if probe is None:
+            with self._mapped(None):
+                self._check_alive(None)
+            return None
+        self._probe_reply = self.query(probe)
         return self._probe_reply
 
     def write(self, message: str) -> None:
         check_message(message)
+        if any(c in message for c in self._write_term):
+            raise ValueError(f"SCPI message {message!r} must not contain its line terminator")
         with self._mapped(message):
             self._check_alive(message)
             self._inst.write(message)
@@ -278,12 +311,17 @@ class VisaTransport:
             return self._read(message)
 
     def query_block(
-        self, message: str, *, datatype: str = "f", big_endian: bool = False
+        self,
+        message: str,
+        *,
+        datatype: str = "f",
+        big_endian: bool = False,
+        items: int | None = None,
     ) -> np.ndarray:
         dtype = block_dtype(datatype, big_endian)
         self.write(self._in_step(message))
         with self._mapped(message):
-            return self._read_block(message, dtype, time.monotonic() + self._timeout_s)
+            return self._read_block(message, dtype, time.monotonic() + self._timeout_s, items)
 
     def clear(self) -> None:
         """Drop everything the instrument sent and nobody read, then check the stream is in step."""
@@ -369,9 +407,9 @@ class VisaTransport:
 
     def _fill_line(self, command: str, deadline: float) -> None:
         """Read until pyvisa-py's buffer holds a whole line (its own read then ends at once)."""
-        if self._socket is None or b"\n" in self._session._pending_buffer:
+        if self._socket is None or self._end in self._session._pending_buffer:
             return  # not a socket: pyvisa's own timeout, which restarts with each chunk
-        while b"\n" not in self._more(command, deadline):
+        while self._end not in self._more(command, deadline):
             pass
 
     def _fill_bytes(self, command: str, deadline: float, count: int) -> None:
@@ -412,29 +450,36 @@ class VisaTransport:
             return f"connection lost ({exc.strerror or exc})"
         return None
 
-    def _read_block(self, command: str, dtype: np.dtype, deadline: float) -> np.ndarray:
+    def _read_block(
+        self, command: str, dtype: np.dtype, deadline: float, items: int | None
+    ) -> np.ndarray:
         # Reads the payload with the termchar off, so LF bytes in it do not cost a read each.
+        # An indefinite block (#0) has no length and, on a socket, no END: it is read as the
+        # `items` values the caller expects, and must then end with the terminator.
         self._fill_bytes(command, deadline, 2)
         head = self._inst.read_bytes(2)
         digits = int(head[1:2]) if head[:1] == b"#" and head[1:2].isdigit() else 0
         self._fill_bytes(command, deadline, digits)
         length_text = self._inst.read_bytes(digits) if digits else b""
-        _, length = parse_block_header(head + length_text)
-        self._fill_bytes(command, deadline, length + 1)
+        _, length = parse_block_header(head + length_text, items=items, itemsize=dtype.itemsize)
+        tail = len(self._read_term)
+        self._fill_bytes(command, deadline, length + tail)
         attribute = constants.ResourceAttribute.termchar_enabled
         self._inst.set_visa_attribute(attribute, constants.VI_FALSE)
         try:
-            payload = self._inst.read_bytes(length + 1)
+            payload = self._inst.read_bytes(length + tail)
         finally:
             self._inst.set_visa_attribute(attribute, constants.VI_TRUE)
-        if payload[-1:] != b"\n":
-            raise reply_error(f"<block ending {payload[-4:]!r}>", "a block followed by LF")
-        return decode_payload(payload[:-1], dtype)
+        if payload[-tail:] != self._read_term:
+            ended = {b"\n": "LF", b"\r": "CR", b"\r\n": "CRLF"}[self._read_term]
+            expected = f"a block of the expected length followed by {ended}"
+            raise reply_error(f"<block ending {payload[-6:]!r}>", expected)
+        return decode_payload(payload[:-tail], dtype)
 
     def _resync(self, command: str) -> None:
         self._drain(command)
-        if self._probe_reply is not None:
-            self._inst.write(PROBE)
+        if self._probe_reply is not None and self._probe is not None:
+            self._inst.write(self._probe)
             self._probes_out += 1
             self._await_probes(command)
         self._out_of_step = False
@@ -445,7 +490,7 @@ class VisaTransport:
         deadline = time.monotonic() + max(self._timeout_s, RESYNC_WAIT_S)
         stale = 0
         while self._probes_out:
-            reply = self._read(PROBE, max(deadline - time.monotonic(), 1e-3))
+            reply = self._read(self._probe or PROBE, max(deadline - time.monotonic(), 1e-3))
             if reply == self._probe_reply:
                 self._probes_out -= 1
                 continue
@@ -466,10 +511,7 @@ class VisaTransport:
                 raise
             limit_s = max(self._timeout_s, RESYNC_WAIT_S)
             dropped = _read_until_quiet(self._inst, _QUIET_S, limit_s)
-            if self._probe_reply is not None:  # probe answers drained here are answered, too
-                lines = dropped.replace(b"\r", b"").split(b"\n")
-                answered = lines.count(self._probe_reply.encode())
-                self._probes_out = max(self._probes_out - answered, 0)
+            self._count_answered(dropped)
 
     def _drain(self, command: str) -> None:
         """Read and drop input until it has been quiet for 0.1 s (for at most RESYNC_WAIT_S)."""
@@ -490,9 +532,16 @@ class VisaTransport:
             if time.monotonic() > deadline:
                 detail = "the instrument keeps sending; its output has no end to find"
                 raise InstrumentError(self.resource, command, detail, hint="reset it, reconnect")
-        if self._probe_reply is not None:  # probe answers drained here are answered, too
-            answered = dropped.replace(b"\r", b"").split(b"\n").count(self._probe_reply.encode())
-            self._probes_out = max(self._probes_out - answered, 0)
+        self._count_answered(dropped)
+
+    def _count_answered(self, dropped: bytes) -> None:
+        """Probe answers drained are answered, too (lines split at the read terminator)."""
+        if self._probe_reply is None:
+            return
+        lines = dropped.split(self._end)
+        other = b"\n" if self._end == b"\r" else b"\r"
+        answered = [line.strip(other) for line in lines].count(self._probe_reply.encode())
+        self._probes_out = max(self._probes_out - answered, 0)
 
 
 def _read_until_quiet(inst: Any, quiet_s: float, limit_s: float) -> bytes:
