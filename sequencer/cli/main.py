@@ -23,7 +23,7 @@ from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import judgecmd, partcmd, reportcmd, results, studycmd, uploadcmd
+from sequencer.cli import judgecmd, partcmd, probecmd, reportcmd, results, studycmd, uploadcmd
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
@@ -88,6 +88,7 @@ def build_parser() -> argparse.ArgumentParser:
     results.add_parser(sub)
     studycmd.add_parser(sub)
     uploadcmd.add_parser(sub)
+    probecmd.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -297,6 +298,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
             timeout_s=recipe.station.timeout_s,
             spy_log=log,
             sim_options=recipe.station.simulator_options if resource == "sim" else None,
+            channels=recipe.station.channels,
         )
 
         def measure(guard):
@@ -414,6 +416,7 @@ COMMANDS = {
     "results": results.cmd_results,
     "upload": uploadcmd.cmd_upload,
     "study": studycmd.cmd_study,
+    "probe": probecmd.cmd_probe,
 }
 
 
