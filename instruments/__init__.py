@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Mapping
+from dataclasses import dataclass
 from pathlib import Path
 from types import TracebackType
 from typing import TextIO
@@ -55,6 +56,7 @@ class Connection:
         self._timeout_s = timeout_s
         self._spy_log = spy_log
         self._simulator = simulator
+        self.link: _Link | None = None  # the station's link settings, to reopen the same way
         self.closed = False
 
     def __enter__(self) -> Connection:
@@ -80,7 +82,9 @@ class Connection:
 
     def _reopen(self) -> ScpiSmu:
         self.smu.close()
-        transport = open_transport(self.resource, self.smu.dialect, self._timeout_s, self._spy_log)
+        transport = open_transport(
+            self.resource, self.smu.dialect, self._timeout_s, self._spy_log, self.link
+        )
         smu = ScpiSmu(transport, self.smu.dialect)
         try:
             identity = smu.identify()
@@ -130,10 +134,15 @@ def connect(
     spy_log: TextIO | None = None,
     sim_options: Mapping[str, object] | None = None,
     channels: tuple[int, ...] = (1,),
+    visa_library: str = "@py",
+    terminators: tuple[str | None, str | None] = (None, None),
+    serial: Mapping[str, object] | None = None,
 ) -> Connection:
     """Open `resource` (a VISA resource string, or "sim" for the embedded simulator).
     `channels`: the tray channels wired to it; on a mainframe (a dialect naming {channel} in
-    its commands) each is one source channel, and every one is switched off at each ending."""
+    its commands) each is one source channel, and every one is switched off at each ending.
+    `visa_library`, `terminators` (read, write: LF, CR or CRLF; None: the dialect's) and
+    `serial` (line settings of an ASRL resource) are the station's link settings."""
     chosen = load_dialect(dialect)  # a bad dialect fails before anything is started or opened
     if sim_options and resource != SIM_RESOURCE:
         detail = f"simulator options were given for the resource {resource!r}"
@@ -141,7 +150,8 @@ def connect(
     simulator = EmbeddedSimulator() if resource == SIM_RESOURCE else None
     try:
         real = simulator.start(sim_options) if simulator is not None else resource
-        smu = ScpiSmu(open_transport(real, chosen, timeout_s, spy_log), chosen)
+        link = _Link(visa_library, terminators, serial)
+        smu = ScpiSmu(open_transport(real, chosen, timeout_s, spy_log, link), chosen)
         if chosen.addresses_channels:
             smu.channels_used = set(channels) | {1}
         try:
@@ -153,21 +163,38 @@ def connect(
         if simulator is not None:
             simulator.stop()
         raise
-    return Connection(smu, real, timeout_s=timeout_s, spy_log=spy_log, simulator=simulator)
+    conn = Connection(smu, real, timeout_s=timeout_s, spy_log=spy_log, simulator=simulator)
+    conn.link = link
+    return conn
+
+
+@dataclass(frozen=True)
+class _Link:
+    visa_library: str = "@py"
+    terminators: tuple[str | None, str | None] = (None, None)
+    serial: Mapping[str, object] | None = None
 
 
 def open_transport(
-    resource: str, dialect: Dialect, timeout_s: float = 2.0, spy_log: TextIO | None = None
+    resource: str,
+    dialect: Dialect,
+    timeout_s: float = 2.0,
+    spy_log: TextIO | None = None,
+    link: _Link | None = None,
 ) -> Transport:
     """The link as the dialect has it: its terminators, its identification query asked first
     (none where the dialect has none: then only a refused connection is caught here)."""
-    read, write = (TERMINATORS[name] for name in dialect.terminators)
+    link = link or _Link()
+    names = (given or own for given, own in zip(link.terminators, dialect.terminators, strict=True))
+    read, write = (TERMINATORS[name] for name in names)
     transport: Transport = open_visa(
         resource,
         timeout_s=timeout_s,
         probe=dialect.identify,
         read_termination=read,
         write_termination=write,
+        visa_library=link.visa_library,
+        serial=link.serial,
     )
     return SpyTransport(transport, spy_log) if spy_log is not None else transport
 

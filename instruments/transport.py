@@ -32,7 +32,7 @@ import re
 import select
 import socket
 import time
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from typing import Any
 
@@ -72,21 +72,42 @@ RESYNC_WAIT_S = 5.0  # how long a resync waits for its probe's answer (at least 
 
 
 @functools.cache
-def _cached_manager() -> pyvisa.ResourceManager:
-    # One manager for the process: closing a manager closes every resource it opened.
-    return pyvisa.ResourceManager("@py")
+def _cached_manager(library: str) -> pyvisa.ResourceManager:
+    # One manager per VISA library for the process: closing a manager closes every resource
+    # it opened.
+    return pyvisa.ResourceManager(library)
 
 
-def _resource_manager() -> pyvisa.ResourceManager:
+def _resource_manager(library: str = "@py") -> pyvisa.ResourceManager:
     # pyvisa hands every caller the same manager object, so anyone's rm.close() closes ours
     # too (measured, pyvisa 1.16.2): open a fresh one then instead of failing every open.
-    manager = _cached_manager()
+    manager = _cached_manager(library)
     try:
         manager.session  # noqa: B018 - the property raises once the manager is closed
     except visa_errors.InvalidSession:
         _cached_manager.cache_clear()
-        manager = _cached_manager()
+        manager = _cached_manager(library)
     return manager
+
+
+# Serial line settings by the words a station file uses (sequencer/recipe/linkspec.py).
+_PARITY = {p.name: p for p in constants.Parity}
+_STOP_BITS = {1: constants.StopBits.one, 1.5: constants.StopBits.one_and_a_half}
+_STOP_BITS[2] = constants.StopBits.two
+_FLOW = {"none": constants.VI_ASRL_FLOW_NONE, "xon_xoff": constants.VI_ASRL_FLOW_XON_XOFF}
+_FLOW |= {"rts_cts": constants.VI_ASRL_FLOW_RTS_CTS, "dtr_dsr": constants.VI_ASRL_FLOW_DTR_DSR}
+
+
+def _serial_options(serial: Mapping[str, Any] | None) -> dict[str, Any]:
+    if not serial:
+        return {}
+    return {
+        "baud_rate": int(serial.get("baud", 9600)),
+        "data_bits": int(serial.get("data_bits", 8)),
+        "parity": _PARITY[serial.get("parity", "none")],
+        "stop_bits": _STOP_BITS[serial.get("stop_bits", 1)],
+        "flow_control": _FLOW[serial.get("flow_control", "none")],
+    }
 
 
 def open_visa(
@@ -96,11 +117,16 @@ def open_visa(
     probe: str | None = PROBE,
     read_termination: str = "\n",
     write_termination: str = "\n",
+    visa_library: str = "@py",
+    serial: Mapping[str, Any] | None = None,
 ) -> VisaTransport:
     """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers
     `probe` (*IDN? by default; the query whose constant answer also resynchronises the link).
     With `probe` None the instrument is asked nothing: the link is only checked for a refused
-    connection, and a resynchronisation can only drain the input until it is quiet."""
+    connection, and a resynchronisation can only drain the input until it is quiet.
+    `visa_library`: pyvisa's backend ("@py", or the path of an installed VISA library);
+    `serial`: line settings for an ASRL resource (baud, data_bits, parity, stop_bits,
+    flow_control as words, and echo: the instrument sends each command back first)."""
     millis = round(check_timeout(timeout_s) * 1000)
     problem = resource_problem(resource)
     if problem:
@@ -109,16 +135,24 @@ def open_visa(
         if text not in TERMINATORS.values():
             raise ValueError(f"a line terminator is LF, CR or CRLF (got {text!r})")
     try:
-        inst = _resource_manager().open_resource(
+        manager = _resource_manager(visa_library)
+    except Exception as exc:  # pyvisa raises OSError, ValueError or its own for a bad library
+        detail = f"the VISA library {visa_library!r} cannot be loaded ({exc})"
+        hint = "leave visa_library out (the pure-Python @py), or give an installed library's path"
+        raise InstrumentError(resource, None, detail, hint=hint) from exc
+    try:
+        inst = manager.open_resource(
             resource,
             read_termination=read_termination,
             write_termination=write_termination,
             timeout=millis,
             open_timeout=millis,
+            **(_serial_options(serial) if resource.upper().startswith("ASRL") else {}),
         )
     except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
         raise _open_error(resource, exc, timeout_s) from exc
     transport = VisaTransport(inst, resource, timeout_s, read_termination, write_termination)
+    transport.echo = bool(serial and serial.get("echo"))
     try:
         transport.learn_probe(probe)
     except BaseException:
@@ -263,6 +297,7 @@ class VisaTransport:
         self._read_term = read_termination.encode()
         self._write_term = write_termination
         self._probe: str | None = PROBE
+        self.echo = False  # the instrument sends every command back before anything else
         self._timeout_s = check_timeout(timeout_s)
         self._session = _pyvisa_py_session(inst)
         self._socket = _tcp_socket(self._session)
@@ -304,6 +339,15 @@ class VisaTransport:
         with self._mapped(message):
             self._check_alive(message)
             self._inst.write(message)
+            if self.echo:
+                self._take_echo(message)
+
+    def _take_echo(self, message: str) -> None:
+        """Read the instrument's echo of `message`; anything else means the stream is out of
+        step (refused, never read as a reply)."""
+        echoed = self._read(message)
+        if echoed.strip() != message:
+            raise reply_error(echoed[:60], f"the echo of {message[:60]!r}")
 
     def query(self, message: str) -> str:
         self.write(self._in_step(message))
@@ -494,6 +538,8 @@ class VisaTransport:
             if reply == self._probe_reply:
                 self._probes_out -= 1
                 continue
+            if self.echo and reply == self._probe:
+                continue  # the echo of the probe itself
             log.warning("%s: discarded a late reply %r", self.resource, reply)
             stale += 1
             if stale >= _MAX_STALE:

@@ -120,6 +120,7 @@ def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection
         spy_log=log,
         sim_options=options,
         channels=spec.channels,
+        **spec.link.connect_options(),
     )
 
 

@@ -299,6 +299,7 @@ def _on_one_bench(console, recipe, plan, resource, out, store, repeat, bench, pa
             spy_log=log,
             sim_options=recipe.station.simulator_options if resource == "sim" else None,
             channels=recipe.station.channels,
+            **recipe.station.instruments[0].link.connect_options(),
         )
 
         def measure(guard):

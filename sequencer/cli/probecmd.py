@@ -86,6 +86,7 @@ def _probe(station: Station, spec: InstrumentSpec, dialect, limit_a: float, with
             timeout_s=spec.timeout_s,
             sim_options=station.simulator_options if sim else None,
             channels=spec.channels,
+            **spec.link.connect_options(),
         )
     except InstrumentError as exc:
         raise RunError(f"instrument: {exc}; the output was not switched on") from None
