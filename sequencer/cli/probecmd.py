@@ -37,7 +37,8 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def cmd_probe(args: argparse.Namespace, console: Console) -> int:
     if args.station is None:
         if args.dialect is None:
-            raise RecipeError("command line", None, "probe", "give a station file or --dialect")
+            detail = "needs a station file (ccbench probe STATION) or --dialect FILE"
+            raise RecipeError("command line", None, "probe", detail)
         return _dialect_alone(args.dialect, console)
     station = load_station(args.station)
     spec = _instrument(station, args.instrument)
@@ -135,9 +136,10 @@ def _dialect_alone(path: Path, console: Console) -> int:
     console.print(table)
     rules = dialect.compliance_rules()
     read, write = dialect.terminators
+    lists = f"yes, clamp told by {rules['list']}" if dialect.has_lists else "no (point by point)"
     console.print(
-        f"{path}: valid dialect {dialect.name}; lists: {'yes' if dialect.has_lists else 'no'}; "
-        f"clamp told by {rules['single']} (single), {rules['list']} (lists); "
+        f"{path}: valid dialect {dialect.name}; single readings: clamp told by "
+        f"{rules['single']}; lists: {lists}; "
         f"terminators: read {read}, write {write}; "
         f"identify: {dialect.identify or 'none'}",
         soft_wrap=True,

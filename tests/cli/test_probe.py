@@ -112,7 +112,7 @@ def test_the_default_dialect_on_an_instrument_without_idn_is_one_line(tmp_path: 
 def test_a_dialect_file_alone(tmp_path: Path) -> None:
     code, text = _ccbench("probe", "--dialect", str(PACKAGED))
     assert code == 0, text
-    assert "valid dialect scpi1999; lists: yes" in text
+    assert "valid dialect scpi1999; single readings: clamp told by status bit 1" in text
     broken = tmp_path / "broken.yaml"
     broken.write_text(PACKAGED.read_text().replace("binary_bits: null", "binary_bits: 48"))
     code, text = _ccbench("probe", "--dialect", str(broken))
