@@ -84,6 +84,7 @@ class ScpiSmu:
         # and every one addressed in this session, each switched off by `safe_state`.
         self.channel = 1
         self.channels_used: set[int] = {1}
+        self._fetched = "the reply"  # the last fetch's reply, quoted in part, for errors
 
     @property
     def resource(self) -> str:
@@ -388,12 +389,14 @@ class ScpiSmu:
             "fetch", count=points, first=1, last=points, **self.address("fetch")
         )
         fetch = self._with_pending(text)
+        self._fetched = "a binary block"
         if binary:
             big = bool(self.dialect.binary_big_endian)
             items = points * len(self.dialect.fetch_fields or ())
             datatype = self.dialect.block_datatype
             return self.transport.query_block(fetch, datatype=datatype, big_endian=big, items=items)
         reply = self.transport.query(fetch)
+        self._fetched = f"reply {_excerpt(reply)}"
         numbers_ = [self._parse("fetch", field, parse_number) for field in flat_fields(reply)]
         return np.array(numbers_, dtype=float)
 
@@ -402,6 +405,7 @@ class ScpiSmu:
         if data.size != points * len(names):
             self._unread = True
             detail = f"{data.size} values for {points} points of {list(names)}"
+            detail += f" ({self._fetched})"
             raise ReplyError(self.resource, self.dialect.fetch, detail)
         table = {name: data[k :: len(names)].astype(float) for k, name in enumerate(names)}
         voltage, current = (special_values(table[name]) for name in ("voltage", "current"))
@@ -522,6 +526,13 @@ class ScpiSmu:
         if self._limit_a is None or math.isnan(current_a):
             return False
         return abs(current_a) >= self.dialect.fraction * self._limit_a
+
+
+def _excerpt(reply: str, most: int = 60) -> str:
+    """A reply quoted for an error message, cut to `most` characters with its length said."""
+    if len(reply) <= most:
+        return repr(reply)
+    return f"{reply[:most]!r}... ({len(reply)} characters)"
 
 
 def _done(text: str) -> int:

@@ -156,6 +156,12 @@ def test_a_reading_with_an_extra_field_is_refused_naming_the_reply_then_flushed(
             smu.close()
 
 
+def test_a_list_reply_with_an_extra_field_is_refused_quoting_the_reply() -> None:
+    ascii_only = _variant(binary_format=None, binary_big_endian=None)
+    with pytest.raises(ReplyError, match=r"15 values for 5 points .* \(reply '\+0\.000000E\+00,"):
+        _list(StandardSmu(extra_element=True), ascii_only)
+
+
 def test_an_extra_field_named_ignore_in_the_dialect_is_read_past() -> None:
     dialect = _variant(
         measure_fields=("voltage", "current", "ignore", "status", "errors"),
