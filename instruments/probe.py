@@ -41,10 +41,12 @@ NULL_MEANS = {
     "binary_format": "lists come back as ASCII",
 }
 
-# Keys a run sends only for levels above the touch-safe voltage: refused, they limit a run to
-# safe levels (a run stops before such a level when the interlock cannot be read).
-NOT_NEEDED_BELOW_TOUCH_SAFE = {
+# Keys a run sends only when its recipe asks for what they do: refused, they limit which runs
+# can work (a run stops before such a level when the interlock cannot be read; a fixed current
+# range is asked only by a recipe that sets one).
+LIMITING_KEYS = {
     "interlock_query": "runs are limited to the touch-safe voltage (the interlock cannot be read)",
+    "set_current_range": "only recipes without a fixed current range can run (autorange)",
 }
 
 
@@ -72,8 +74,8 @@ class ProbeReport:
 
     def add(self, key: str, outcome: str, detail: str = "") -> None:
         self.results.append(KeyResult(key, outcome, detail))
-        if outcome == REFUSED and key in NOT_NEEDED_BELOW_TOUCH_SAFE:
-            self.notes.append(f"{key} was refused: {NOT_NEEDED_BELOW_TOUCH_SAFE[key]}")
+        if outcome == REFUSED and key in LIMITING_KEYS:
+            self.notes.append(f"{key} was refused: {LIMITING_KEYS[key]}")
         elif outcome == REFUSED:
             self.problems.append(f"{key} was refused: {detail}")
 

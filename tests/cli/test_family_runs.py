@@ -16,7 +16,7 @@ from rich.console import Console
 
 from instruments.dialect import DIALECT_DIR
 from sequencer.cli.main import main
-from tests.instruments.families import MainframeSmu, SourceLimitSmu
+from tests.instruments.families import MainframeSmu, SenseProtectionSmu, SourceLimitSmu, SupplySmu
 from tests.instruments.linkserver import serving
 from tests.instruments.standardsmu import Regulator, Resistor, StandardSmu
 
@@ -58,12 +58,12 @@ judge:
 """
 
 
-def _files(folder: Path, resource: str, dialect: str, lists: bool) -> Path:
+def _files(folder: Path, resource: str, dialect: str, lists: bool, channels: str = "1-4") -> Path:
     path = DIALECT_DIR / f"{dialect}.yaml"
     (folder / "station.yaml").write_text(
         "station: family-bench\n"
         f'instrument: {{resource: "{resource}", timeout: 2 s, dialect: {path}}}\n'
-        "tray: {channels: 1-4}\n"
+        f"tray: {{channels: {channels}}}\n"
         "limits: {max_voltage: 40 V, max_current: 20 mA, max_power: 500 mW}\n"
     )
     recipe = folder / "recipe.yaml"
@@ -110,3 +110,47 @@ def test_a_family_checks_probes_and_runs_a_small_lot(tmp_path: Path, family: str
         assert ip == pytest.approx(device.current(25.0), rel=1e-4)
     assert rows[3]["verdict"] == "fail" and "short" in rows[3]["reasons"], rows[3]
     assert rows[4]["verdict"] == "fail" and "compliance" in rows[4]["reasons"], rows[4]
+
+
+# Families without a switch matrix: one device on the terminals, so one run per device.
+SINGLE = {
+    "sense_protection_elements": SenseProtectionSmu,
+    "supply_separate_queries": SupplySmu,
+}
+
+
+def _lines(respond):
+    """A plainsmu.py responder (bytes ending in LF) as a linkserver.py one (text)."""
+
+    def text(message: str) -> str | None:
+        reply = respond(message)
+        return None if reply is None else reply.decode().removesuffix("\n")
+
+    return text
+
+
+@pytest.mark.parametrize("family", sorted(SINGLE))
+def test_a_family_without_a_switch_runs_each_kind_of_device(tmp_path: Path, family: str) -> None:
+    verdicts = {}
+    for channel, device in LOT.items():
+        responder = SINGLE[family](device=device, errors=['-350,"Queue overflow"'])
+        folder = tmp_path / f"device-{channel}"
+        folder.mkdir()
+        with serving(_lines(responder.respond)) as server:
+            recipe = _files(folder, server.resource, family, False, channels="1")
+            for argv in (("check", str(recipe)), ("probe", str(folder / "station.yaml"))):
+                code, text = _ccbench(*argv)
+                assert code == 0, text
+            # this family's responder has no fixed ranges: a note, runs autorange
+            ranges = "note: set_current_range was refused" in text
+            assert ranges == (family == "sense_protection_elements"), text
+            code, text = _ccbench("run", str(recipe), "--out", str(folder / "run"))
+            assert code == 0, text
+            assert not responder.output_on
+        with open(folder / "run" / "devices.csv", newline="") as f:
+            (verdicts[channel],) = list(csv.DictReader(f))
+    for channel, device in zip((1, 2), GOOD, strict=True):
+        assert verdicts[channel]["verdict"] == "pass", verdicts[channel]
+        ip = float(verdicts[channel]["regulated_current_A"])
+        assert ip == pytest.approx(device.current(25.0), rel=1e-4)
+    assert "short" in verdicts[3]["reasons"] and "compliance" in verdicts[4]["reasons"]
