@@ -234,3 +234,11 @@ def test_binary_bits_without_a_binary_format_is_refused(tmp_path) -> None:
     )
     with pytest.raises(DialectError, match="key 'binary_bits': is set but binary_format is null"):
         load_dialect(path)
+
+
+def test_identify_null_still_catches_a_refused_connection(free_port: int) -> None:
+    from instruments.errors import InstrumentDisconnected
+
+    resource = f"TCPIP0::127.0.0.1::{free_port}::SOCKET"
+    with pytest.raises(InstrumentDisconnected, match="connection refused"):
+        open_transport(resource, _variant(identify=None), 1.0)
