@@ -150,7 +150,9 @@ def connect(
     simulator = EmbeddedSimulator() if resource == SIM_RESOURCE else None
     try:
         real = simulator.start(sim_options) if simulator is not None else resource
-        link = _Link(visa_library, terminators, serial)
+        # the embedded simulator is reached its own way (TCP, LF, no echo), whatever the
+        # station says of the real instrument's link
+        link = _Link() if simulator is not None else _Link(visa_library, terminators, serial)
         smu = ScpiSmu(open_transport(real, chosen, timeout_s, spy_log, link), chosen)
         if chosen.addresses_channels:
             smu.channels_used = set(channels) | {1}

@@ -143,3 +143,11 @@ def test_the_station_terminators_win_over_the_dialect() -> None:
 def test_a_visa_library_that_cannot_be_loaded_is_one_clear_error() -> None:
     with pytest.raises(InstrumentError, match=r"VISA library '/no/such/libvisa\.so' cannot be"):
         connect("TCPIP0::127.0.0.1::9::SOCKET", visa_library="/no/such/libvisa.so")
+
+
+def test_the_embedded_simulator_ignores_the_real_instruments_link_settings() -> None:
+    conn = connect("sim", serial={"echo": True}, terminators=("CR", "CR"), sim_options={})
+    try:
+        assert conn.identity.startswith("CCBENCH,SIMULATED-SMU")
+    finally:
+        conn.close()
