@@ -65,6 +65,7 @@ OPTIONAL_KEYS = frozenset(
     | {"setup", "list_compliance_bit", "clamp_fraction"}
     | {"boolean_words", "error_text_quoted", "status_as_float"}
     | {"read_termination", "write_termination", "binary_bits", "initiate_wait"}
+    | {"list_clamp_event"}
 )
 TERMINATOR_NAMES = ("LF", "CR", "CRLF")
 # Without a status bit, a reading counts as clamped from this fraction of the programmed limit
@@ -143,6 +144,12 @@ class Dialect:
     # it works through a list): a query such as *OPC? whose answer 1 comes when it is done, or
     # a command such as *WAI that holds later commands until then. None: not needed.
     initiate_wait: str | None = None
+    # Where list readings are told clamped by the clamp-fraction rule: a query of the status
+    # event register whose `compliance_bit` latches while the limit is active (SCPI-1999
+    # STAT:QUES:EVEN?, cleared by reading). Read before and after each list: set after it with
+    # no reading counted as clamped, the list is refused (a clamp below the fraction would
+    # otherwise be stored as data). None: no such check.
+    list_clamp_event: str | None = None
     source: str = "<built in>"
     key_lines: tuple[tuple[str, int], ...] = ()  # where each key stands in the file
 
@@ -455,6 +462,9 @@ def _check_lists(values: dict[str, Any], lines: dict[str, int], source: str | Pa
     if values["binary_bits"] is not None and values["binary_format"] is None:
         detail = "is set but binary_format is null: give the command that selects REAL blocks"
         raise DialectError(source, "binary_bits", lines.get("binary_bits"), detail)
+    if values["list_clamp_event"] is not None and values["compliance_bit"] is None:
+        detail = "needs compliance_bit: the bit of the event register that latches a clamp"
+        raise DialectError(source, "list_clamp_event", lines.get("list_clamp_event"), detail)
     if values["initiate_wait"] is not None and values["initiate"] is None:
         detail = "is set but the dialect has no lists (initiate is null)"
         raise DialectError(source, "initiate_wait", lines.get("initiate_wait"), detail)

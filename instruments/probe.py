@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 
 from instruments.dialect import Dialect
 from instruments.errors import InstrumentTimeout, ReplyError, ScpiError
-from instruments.scpi import parse_bool
+from instruments.scpi import parse_bool, parse_status
 from instruments.smu import ScpiSmu
 
 ACCEPTED, REFUSED, NULL, UNTRIED = "accepted", "refused", "null", "untried"
@@ -39,6 +39,7 @@ NULL_MEANS = {
     "interlock_query": "no interlock can be read: levels above the touch-safe voltage are refused",
     "list_voltage": "no source lists: sweeps go point by point",
     "binary_format": "lists come back as ASCII",
+    "list_clamp_event": "a clamp below the clamp fraction in a list is not caught",
 }
 
 # Keys a run sends only when its recipe asks for what they do: refused, they limit which runs
@@ -142,6 +143,8 @@ def _try_off_keys(
     _command(smu, report, "select_channel", channel=channels[0])
     _command(smu, report, "open_all_channels")
     _query(smu, report, "interlock_query", lambda text: parse_bool(text, words=words) in (0, 1))
+    status = bool(d.status_as_float)
+    _query(smu, report, "list_clamp_event", lambda text: parse_status(text, as_float=status) >= 0)
     _command(smu, report, "list_voltage", values="0.000000E+00,0.000000E+00", count=2)
     _command(smu, report, "binary_format")
     _command(smu, report, "ascii_format")

@@ -20,7 +20,7 @@ from typing import TypeVar
 import numpy as np
 
 from instruments.dialect import Dialect
-from instruments.errors import ReplyError, ScpiError
+from instruments.errors import InstrumentError, ReplyError, ScpiError
 from instruments.protocol import Transport
 from instruments.scpi import (
     flat_fields,
@@ -363,6 +363,7 @@ class ScpiSmu:
     def _run_list(self, levels: np.ndarray, nplc: float, settle_s: float) -> Sweep:
         values = ",".join(format_number(float(v)) for v in levels)
         binary = self.dialect.binary_format is not None
+        self._clamp_events()  # read now, so that what is set afterwards is this list's
         with self.batch():  # the list, its start and the error check: one message
             try:
                 self._write("list_voltage", values=values, count=int(levels.size))
@@ -381,7 +382,26 @@ class ScpiSmu:
             finally:
                 for key in ("ascii_format", "fixed_mode"):
                     self._write_if_known(key)
-        return self._split(data, levels.size)
+        sweep = self._split(data, levels.size)
+        self._check_clamp_events(sweep[2])
+        return sweep
+
+    def _clamp_events(self) -> int:
+        """The status event bits since the last read (0 where the dialect has no such query)."""
+        if self.dialect.list_clamp_event is None or self.dialect.list_compliance_bit is not None:
+            return 0
+        return self._parse("list_clamp_event", self._query("list_clamp_event"), self._status)
+
+    def _check_clamp_events(self, limited: np.ndarray) -> None:
+        """A clamp the instrument latched during the list, while no reading was counted as
+        clamped: the clamp-fraction rule missed it, so the readings cannot be stored as data."""
+        bit = self.dialect.compliance_bit
+        if bit is None or not (self._clamp_events() >> bit) & 1 or limited.any():
+            return
+        detail = f"the instrument latched its current limit (status event bit {bit}) during the "
+        detail += f"list, but no reading came within {self.dialect.fraction:g} of the limit"
+        hint = "lower clamp_fraction in the dialect, from the limit accuracy in the manual"
+        raise InstrumentError(self.resource, self.dialect.list_clamp_event, detail, hint=hint)
 
     def _fetch(self, binary: bool, points: int) -> np.ndarray:
         self._flush_unread()

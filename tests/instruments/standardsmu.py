@@ -7,7 +7,8 @@ The description: short forms, optional nodes ([SOURce:], [SENSe:], [:LEVel], [:I
 message unit of a compound message starts again from the root (";:"). A reading carries the
 functions SENSe:FUNCtion names, in that order (after *RST: current only); there is no status
 word per buffered reading. The QUEStionable condition has bit 1 (CURRent) set while the
-current limit is active. FORMat ASCii, or REAL with 32 or 64 bits, in the byte order FORMat:BORDer
+current limit is active, and latches into the event register (STAT:QUES[:EVEN]?, cleared
+by reading). FORMat ASCii, or REAL with 32 or 64 bits, in the byte order FORMat:BORDer
 sets (NORMal: most significant byte first); the block is definite (#<n><len>) or, as an option,
 indefinite (#0 ... terminator). Errors queue as code,"text"; unknown headers are -113. The
 tray's switch matrix closes one channel at a time with ROUTe:CLOSe (@n).
@@ -90,6 +91,7 @@ class StandardSmu:
     limiting: bool = False
     running: bool = False  # an overlapped acquisition not yet waited for
     levels_applied: list[float] = field(default_factory=list)
+    ques_event: int = 0
 
     def respond(self, message: str) -> str | bytes | None:
         replies = [r for r in (self._unit(u) for u in message.split(";")) if r is not None]
@@ -115,6 +117,7 @@ class StandardSmu:
         if abs(wanted) < self.limit_a:
             return volts, wanted, False
         amps = self.limit_a * (1 - self.clamp_low)
+        self.ques_event |= 2  # QUEStionable CURRent latches (read and cleared by STAT:QUES?)
         return device.voltage_at(amps, volts), amps, True
 
     # -- program message units -------------------------------------------------------------
@@ -145,6 +148,8 @@ class StandardSmu:
             "READ?": self._read,
             "FETC?": self._fetch,
             "STAT:QUES:COND?": lambda: str(2 if self.limiting else 0),
+            "STAT:QUES:EVEN?": self._take_event,
+            "STAT:QUES?": self._take_event,
             "VOLT?": lambda: f"{self.level_v:+.6E}",
         }
         if head == "*IDN?" and self.answers_idn:
@@ -221,6 +226,10 @@ class StandardSmu:
 
     def _wait(self) -> None:
         self.running = False
+
+    def _take_event(self) -> str:
+        value, self.ques_event = self.ques_event, 0
+        return str(value)
 
     def _operation_complete(self) -> str:
         self._wait()

@@ -31,6 +31,7 @@ def test_one_list_run_and_one_block_fetch(dialect: Dialect, make_instrument) -> 
     assert list(limited) == [False, False, True]  # at the limit: the clamp-fraction rule
     after_configure = instrument.sent[instrument.sent.index("SYST:ERR?") + 1 :]
     assert after_configure == [
+        "STAT:QUES:EVEN?",  # cleared before the list: what is latched after it is the list's
         LIST,
         "FORM REAL,32;:FORM:BORD SWAP",
         "INIT",
@@ -38,6 +39,7 @@ def test_one_list_run_and_one_block_fetch(dialect: Dialect, make_instrument) -> 
         "FETC?",
         "FORM ASC",
         "SOUR:VOLT:MODE FIX;:TRIG:COUN 1",
+        "STAT:QUES:EVEN?",  # nothing latched: no clamp was missed
     ]
 
 

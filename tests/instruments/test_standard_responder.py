@@ -72,3 +72,29 @@ def test_a_single_reading_on_a_standard_instrument() -> None:
             smu.close()
     assert reading.current_a == pytest.approx(device.current(25.0), rel=1e-6)
     assert not reading.in_compliance
+
+
+def test_a_clamp_below_the_clamp_fraction_is_refused_by_the_latched_event() -> None:
+    # a source clamping 5 % inside its limit (a poor limit accuracy): 2 % of room is not enough
+    from instruments.errors import InstrumentError
+
+    responder = StandardSmu(devices={1: Resistor(5.0)}, clamp_low=0.05)
+    with pytest.raises(InstrumentError, match=r"latched its current limit \(status event bit 1\)"):
+        _list(responder)
+
+
+def test_without_the_event_check_that_clamp_would_pass_as_data() -> None:
+    # what the check is for: the same list, the check left out, stores clamped readings as data
+    import dataclasses
+
+    responder = StandardSmu(devices={1: Resistor(5.0)}, clamp_low=0.05)
+    dialect = dataclasses.replace(load_dialect("scpi1999"), list_clamp_event=None)
+    with serving(responder.respond) as server:
+        smu = ScpiSmu(open_visa(server.resource, timeout_s=2.0), dialect)
+        try:
+            smu.output(True)
+            _, current, limited = smu.list_sweep(LEVELS, limit_a=5e-3, nplc=1, settle_s=0)
+        finally:
+            smu.safe_state()
+            smu.close()
+    assert current[-1] == pytest.approx(4.75e-3) and not limited.any()
