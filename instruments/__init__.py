@@ -1,7 +1,8 @@
 """Talking to real instruments: transports, SCPI helpers, dialects and the SMU driver.
 
 `connect()` is the front door: it opens a resource (or starts the embedded simulator for "sim"),
-asks *IDN? at once (a refused connection only shows on the first write) and hands back a
+asks the dialect's identification (*IDN?) at once (a refused connection only shows on the
+first write) and hands back a
 `Connection` holding the `ScpiSmu`.
 """
 
@@ -9,6 +10,7 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Mapping
+from dataclasses import dataclass
 from pathlib import Path
 from types import TracebackType
 from typing import TextIO
@@ -24,8 +26,8 @@ from instruments.errors import (
     ScpiError,
 )
 from instruments.loopback import SpyTransport
-from instruments.protocol import Transport
-from instruments.smu import Reading, ScpiSmu
+from instruments.protocol import TERMINATORS, Transport
+from instruments.smu import NOT_IDENTIFIED, Reading, ScpiSmu
 
 logging.getLogger(__name__).addHandler(logging.NullHandler())
 log = logging.getLogger(__name__)
@@ -53,6 +55,7 @@ class Connection:
         self._timeout_s = timeout_s
         self._spy_log = spy_log
         self._simulator = simulator
+        self.link: _Link | None = None  # the station's link settings, to reopen the same way
         self.closed = False
 
     def __enter__(self) -> Connection:
@@ -78,17 +81,21 @@ class Connection:
 
     def _reopen(self) -> ScpiSmu:
         self.smu.close()
-        transport = _open(self.resource, self._timeout_s, self._spy_log)
+        transport = open_transport(
+            self.resource, self.smu.dialect, self._timeout_s, self._spy_log, self.link
+        )
         smu = ScpiSmu(transport, self.smu.dialect)
         try:
             identity = smu.identify()
         except BaseException:
             smu.close()
             raise
-        if identity != self.identity:
+        if identity != self.identity and identity != NOT_IDENTIFIED:
             smu.close()
             detail = f"reconnected to {identity!r}, not the original {self.identity!r}"
             raise InstrumentError(self.resource, None, detail, hint="check the cabling")
+        smu.channels_used = set(self.smu.channels_used)  # a mainframe: switch every one off
+        smu.channel = self.smu.channel
         self.smu = smu
         return smu
 
@@ -125,8 +132,16 @@ def connect(
     timeout_s: float = 2.0,
     spy_log: TextIO | None = None,
     sim_options: Mapping[str, object] | None = None,
+    channels: tuple[int, ...] = (1,),
+    visa_library: str = "@py",
+    terminators: tuple[str | None, str | None] = (None, None),
+    serial: Mapping[str, object] | None = None,
 ) -> Connection:
-    """Open `resource` (a VISA resource string, or "sim" for the embedded simulator)."""
+    """Open `resource` (a VISA resource string, or "sim" for the embedded simulator).
+    `channels`: the tray channels wired to it; on a mainframe (a dialect naming {channel} in
+    its commands) each is one source channel, and every one is switched off at each ending.
+    `visa_library`, `terminators` (read, write: LF, CR or CRLF; None: the dialect's) and
+    `serial` (line settings of an ASRL resource) are the station's link settings."""
     chosen = load_dialect(dialect)  # a bad dialect fails before anything is started or opened
     if sim_options and resource != SIM_RESOURCE:
         detail = f"simulator options were given for the resource {resource!r}"
@@ -134,7 +149,12 @@ def connect(
     simulator = EmbeddedSimulator() if resource == SIM_RESOURCE else None
     try:
         real = simulator.start(sim_options) if simulator is not None else resource
-        smu = ScpiSmu(_open(real, timeout_s, spy_log), chosen)
+        # the embedded simulator is reached its own way (TCP, LF, no echo), whatever the
+        # station says of the real instrument's link
+        link = _Link() if simulator is not None else _Link(visa_library, terminators, serial)
+        smu = ScpiSmu(open_transport(real, chosen, timeout_s, spy_log, link), chosen)
+        if chosen.addresses_channels:
+            smu.channels_used = set(channels) | {1}
         try:
             smu.identify()
         except BaseException:
@@ -144,13 +164,41 @@ def connect(
         if simulator is not None:
             simulator.stop()
         raise
-    return Connection(smu, real, timeout_s=timeout_s, spy_log=spy_log, simulator=simulator)
+    conn = Connection(smu, real, timeout_s=timeout_s, spy_log=spy_log, simulator=simulator)
+    conn.link = link
+    return conn
 
 
-def _open(resource: str, timeout_s: float, spy_log: TextIO | None) -> Transport:
+@dataclass(frozen=True)
+class _Link:
+    visa_library: str = "@py"
+    terminators: tuple[str | None, str | None] = (None, None)
+    serial: Mapping[str, object] | None = None
+
+
+def open_transport(
+    resource: str,
+    dialect: Dialect,
+    timeout_s: float = 2.0,
+    spy_log: TextIO | None = None,
+    link: _Link | None = None,
+) -> Transport:
+    """The link as the dialect has it: its terminators, its identification query asked first
+    (none where the dialect has none: then only a refused connection is caught here)."""
     from instruments.transport import open_visa  # start-up speed: pyvisa loads when one is opened
 
-    transport: Transport = open_visa(resource, timeout_s=timeout_s)
+    link = link or _Link()
+    names = (given or own for given, own in zip(link.terminators, dialect.terminators, strict=True))
+    read, write = (TERMINATORS[name] for name in names)
+    transport: Transport = open_visa(
+        resource,
+        timeout_s=timeout_s,
+        probe=dialect.identify,
+        read_termination=read,
+        write_termination=write,
+        visa_library=link.visa_library,
+        serial=link.serial,
+    )
     return SpyTransport(transport, spy_log) if spy_log is not None else transport
 
 
@@ -169,4 +217,5 @@ __all__ = [
     "ScpiSmu",
     "connect",
     "load_dialect",
+    "open_transport",
 ]

@@ -31,10 +31,28 @@ PLACEHOLDERS: dict[str, frozenset[str]] = {
     "select_channel": frozenset({"channel"}),
     "list_voltage": frozenset({"values", "count"}),
 }
+# Placeholders a text may use, any of them or none: a buffer read-out may name how many readings
+# it wants and the indices of the first and last (1-based), as instruments that read a buffer by
+# index need ("TRAC:DATA? {first},{last}").
+OPTIONAL_PLACEHOLDERS: dict[str, frozenset[str]] = {
+    "fetch": frozenset({"count", "first", "last"}),
+}
+# Keys sent for one device that may also name its `{channel}`: on a mainframe of several source
+# channels, each tray channel is one of them, addressed in every command (a numeric suffix,
+# "OUTP{channel} ON", or a channel list, "OUTP ON,(@{channel})") instead of being switched.
+CHANNEL_KEYS = frozenset(
+    {"source_voltage_mode", "set_voltage", "set_current_limit", "set_settle"}
+    | {"set_aperture_nplc", "set_current_range", "set_current_range_auto", "sense_functions"}
+    | {"output", "output_query", "measure", "list_voltage", "initiate", "initiate_wait"}
+    | {"fetch", "binary_format", "ascii_format", "fixed_mode"}
+)
+# Where one of them names a channel, these must all do: an output switched on one channel must
+# never be set, measured or read back on another.
+CHANNEL_CORE = ("set_voltage", "set_current_limit", "output", "output_query", "measure")
 # Operations the driver cannot do without (output_query: every ending reads the output back as
 # off); every other SCPI key may be null (see the driver).
 REQUIRED = frozenset(
-    {"name", "identify", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
+    {"name", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
     | {"measure", "measure_fields", "output_query"}
 )
 MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "errors", "ignore"})
@@ -46,7 +64,10 @@ OPTIONAL_KEYS = frozenset(
     | {"ascii_format", "fixed_mode", "list_max_points", "max_message_bytes"}
     | {"setup", "list_compliance_bit", "clamp_fraction"}
     | {"boolean_words", "error_text_quoted", "status_as_float"}
+    | {"read_termination", "write_termination", "binary_bits", "initiate_wait"}
+    | {"list_clamp_event"}
 )
+TERMINATOR_NAMES = ("LF", "CR", "CRLF")
 # Without a status bit, a reading counts as clamped from this fraction of the programmed limit
 # up. A real source clamps within its limit accuracy, a few tenths of a percent (plus an offset)
 # below the limit as often as above it; 2 % below covers that with room (common practice, no
@@ -64,7 +85,9 @@ class Dialect:
 
     name: str
     description: str | None
-    identify: str
+    # The identification query, asked once after connecting and used (its answer constant) to
+    # resynchronise the link; None: the instrument answers no such query, nothing is asked.
+    identify: str | None
     reset: str
     clear_status: str | None
     operation_complete: str | None
@@ -111,6 +134,22 @@ class Dialect:
     boolean_words: bool | None = None
     error_text_quoted: bool | None = None
     status_as_float: bool | None = None
+    # Line terminators of program messages (write) and of replies (read): LF, CR or CRLF;
+    # None: LF, as IEEE 488.2 has it.
+    read_termination: str | None = None
+    write_termination: str | None = None
+    # REAL,32 or REAL,64 in binary blocks (None: 32).
+    binary_bits: int | None = None
+    # Sent after `initiate` on an overlapped instrument (one that reads further commands while
+    # it works through a list): a query such as *OPC? whose answer 1 comes when it is done, or
+    # a command such as *WAI that holds later commands until then. None: not needed.
+    initiate_wait: str | None = None
+    # Where list readings are told clamped by the clamp-fraction rule: a query of the status
+    # event register whose `compliance_bit` latches while the limit is active (SCPI-1999
+    # STAT:QUES:EVEN?, cleared by reading). Read before and after each list: set after it with
+    # no reading counted as clamped, the list is refused (a clamp below the fraction would
+    # otherwise be stored as data). None: no such check.
+    list_clamp_event: str | None = None
     source: str = "<built in>"
     key_lines: tuple[tuple[str, int], ...] = ()  # where each key stands in the file
 
@@ -126,10 +165,17 @@ class Dialect:
     def line_of(self, key: str) -> int | None:
         return dict(self.key_lines).get(key)
 
+    @property
+    def addresses_channels(self) -> bool:
+        """Whether every command names its channel (a mainframe of source channels)."""
+        return "{channel}" in self.set_voltage
+
     def channels_problem(self, channels: tuple[int, ...]) -> DialectError | None:
         """Why this dialect cannot reach `channels` (None when it can): without a switch
         command only channel 1, the device on the terminals themselves, can be measured."""
-        if self.select_channel is not None or all(c == 1 for c in channels):
+        if self.select_channel is not None or self.addresses_channels:
+            return None
+        if all(c == 1 for c in channels):
             return None
         detail = f"is null, but the station uses channels {list(channels)}: give the switch "
         detail += "command with {channel}, or use channel 1 alone (no switch matrix)"
@@ -145,10 +191,22 @@ class Dialect:
             "list": rule if lists is None else f"status bit {lists} of the list reading",
         }
 
+    @property
+    def terminators(self) -> tuple[str, str]:
+        """(read, write) line terminators by name: LF unless the dialect says otherwise."""
+        return self.read_termination or "LF", self.write_termination or "LF"
+
+    @property
+    def block_datatype(self) -> str:
+        """The struct letter of a binary block's values: 'f' (REAL,32) or 'd' (REAL,64)."""
+        return "d" if self.binary_bits == 64 else "f"
+
     def render(self, key: str, **values: object) -> str:
         """The SCPI text of `key` with its placeholders filled (floats as NR3, ints as NR1)."""
         template = self.template(key)
-        wanted = PLACEHOLDERS.get(key, frozenset())
+        wanted = PLACEHOLDERS.get(key, OPTIONAL_PLACEHOLDERS.get(key, frozenset()))
+        if key in CHANNEL_KEYS and "{channel}" in template:
+            wanted = wanted | {"channel"}
         if set(values) != wanted:
             detail = f"needs values for {sorted(wanted)}, was given {sorted(values)}"
             raise DialectError(self.source, key, None, detail, hint="this is a driver bug")
@@ -171,6 +229,7 @@ _NON_TEXT = frozenset(
     | {"binary_big_endian", "list_max_points", "max_message_bytes"}
     | {"setup", "list_compliance_bit", "clamp_fraction"}
     | {"boolean_words", "error_text_quoted", "status_as_float"}
+    | {"read_termination", "write_termination", "binary_bits"}
 )
 _TEXT_KEYS = frozenset(_ALL_KEYS) - _NON_TEXT
 
@@ -217,6 +276,7 @@ def parse_dialect(text: str, source: str | Path = "<text>") -> Dialect:
     _check_measure(values, lines, source)
     _check_lists(values, lines, source)
     _check_no_reset_per_device(values, lines, source)
+    _check_channel_addressing(values, lines, source)
     return Dialect(**values, source=str(source), key_lines=tuple(lines.items()))
 
 
@@ -292,6 +352,15 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
         return value
     if key == "setup":
         return _check_setup(value, line, source)
+    if key in ("read_termination", "write_termination"):
+        if value not in TERMINATOR_NAMES:
+            detail = f"must be one of {', '.join(TERMINATOR_NAMES)} (got {value!r})"
+            raise DialectError(source, key, line, detail)
+        return value
+    if key == "binary_bits":
+        if isinstance(value, bool) or value not in (32, 64):
+            raise DialectError(source, key, line, f"must be 32 or 64 (got {value!r})")
+        return value
     if key == "clamp_fraction":
         number = value if isinstance(value, (int, float)) and not isinstance(value, bool) else None
         if number is None or not 0.5 <= number <= 1.0:
@@ -342,16 +411,39 @@ def check_placeholders(
     line: int | None,
     source: str | Path,
     placeholders: dict[str, frozenset[str]] = PLACEHOLDERS,
+    optional: dict[str, frozenset[str]] = OPTIONAL_PLACEHOLDERS,
 ) -> None:
-    """The braces of a command text name exactly the placeholders its key is filled with."""
+    """The braces of a command text name exactly the placeholders its key is filled with (or,
+    for a key of `optional`, some of them)."""
     try:
         found = {name for _, name, _, _ in string.Formatter().parse(text) if name is not None}
     except ValueError as exc:
         raise DialectError(source, key, line, f"bad braces in {text!r}: {exc}") from exc
+    if key in CHANNEL_KEYS and placeholders is PLACEHOLDERS:
+        found = found - {"channel"}  # a mainframe's commands name their channel (checked apart)
+    if key in optional:
+        if not found <= optional[key]:
+            allowed = ", ".join(f"{{{n}}}" for n in sorted(optional[key]))
+            raise DialectError(source, key, line, f"may contain only {allowed} (got {text!r})")
+        return
     wanted = placeholders.get(key, frozenset())
     if found != wanted:
         expected = ", ".join(f"{{{n}}}" for n in sorted(wanted)) or "no placeholder"
         raise DialectError(source, key, line, f"must contain {expected} (got {text!r})")
+
+
+def _check_channel_addressing(
+    values: dict[str, Any], lines: dict[str, int], source: str | Path
+) -> None:
+    """All of CHANNEL_CORE name {channel}, or none of CHANNEL_KEYS does."""
+    naming = [k for k in sorted(CHANNEL_KEYS) if "{channel}" in (values[k] or "")]
+    if not naming:
+        return
+    for key in CHANNEL_CORE:
+        if "{channel}" not in values[key]:
+            detail = f"must name {{channel}} too, as {naming[0]} does: on a mainframe an output "
+            detail += "switched on one channel must never be set or read back on another"
+            raise DialectError(source, key, lines.get(key), detail)
 
 
 def _check_lists(values: dict[str, Any], lines: dict[str, int], source: str | Path) -> None:
@@ -367,6 +459,15 @@ def _check_lists(values: dict[str, Any], lines: dict[str, int], source: str | Pa
     if values["binary_format"] is not None and values["binary_big_endian"] is None:
         detail = "binary_big_endian must say the byte order that binary_format selects"
         raise DialectError(source, "binary_format", lines.get("binary_format"), detail)
+    if values["binary_bits"] is not None and values["binary_format"] is None:
+        detail = "is set but binary_format is null: give the command that selects REAL blocks"
+        raise DialectError(source, "binary_bits", lines.get("binary_bits"), detail)
+    if values["list_clamp_event"] is not None and values["compliance_bit"] is None:
+        detail = "needs compliance_bit: the bit of the event register that latches a clamp"
+        raise DialectError(source, "list_clamp_event", lines.get("list_clamp_event"), detail)
+    if values["initiate_wait"] is not None and values["initiate"] is None:
+        detail = "is set but the dialect has no lists (initiate is null)"
+        raise DialectError(source, "initiate_wait", lines.get("initiate_wait"), detail)
 
 
 def _check_list_status(values: dict[str, Any], lines: dict[str, int], source: str | Path) -> None:

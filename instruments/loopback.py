@@ -61,11 +61,16 @@ class CallableTransport:
         return reply
 
     def query_block(
-        self, message: str, *, datatype: str = "f", big_endian: bool = False
+        self,
+        message: str,
+        *,
+        datatype: str = "f",
+        big_endian: bool = False,
+        items: int | None = None,
     ) -> np.ndarray:
         data = self.query(message).encode("latin-1")
         try:
-            return parse_block(data, datatype=datatype, big_endian=big_endian)
+            return parse_block(data, datatype=datatype, big_endian=big_endian, items=items)
         except ReplyError as exc:
             raise ReplyError(self.resource, message, exc.detail) from exc
 
@@ -132,10 +137,17 @@ class SpyTransport:
         return self._exchange(message, lambda: self.inner.query(message), str)
 
     def query_block(
-        self, message: str, *, datatype: str = "f", big_endian: bool = False
+        self,
+        message: str,
+        *,
+        datatype: str = "f",
+        big_endian: bool = False,
+        items: int | None = None,
     ) -> np.ndarray:
         def call() -> np.ndarray:
-            return self.inner.query_block(message, datatype=datatype, big_endian=big_endian)
+            return self.inner.query_block(
+                message, datatype=datatype, big_endian=big_endian, items=items
+            )
 
         return self._exchange(message, call, _describe_block)
 

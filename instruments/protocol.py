@@ -12,6 +12,9 @@ import numpy as np
 # IEEE 488.2 makes *IDN? mandatory, so it is the one query every instrument can answer: the probe
 # that tells a fresh reply from a stale one when resynchronising.
 PROBE = "*IDN?"
+# Line terminators by the names dialects and stations use (IEEE 488.2 ends messages in NL; some
+# instruments, serial ones most often, use CR or CR LF).
+TERMINATORS = {"LF": "\n", "CR": "\r", "CRLF": "\r\n"}
 
 
 @runtime_checkable
@@ -19,6 +22,8 @@ class Transport(Protocol):
     """What a driver may do with an instrument connection. Messages carry no terminator.
 
     `resource` is the resource string; `timeout_s` the reply timeout in seconds (finite, > 0).
+    `query_block` reads one IEEE 488.2 block; `items` is how many values it must hold, which an
+    indefinite block (#0) needs (it carries no length).
     """
 
     @property
@@ -35,7 +40,12 @@ class Transport(Protocol):
     def query(self, message: str) -> str: ...
 
     def query_block(
-        self, message: str, *, datatype: str = "f", big_endian: bool = False
+        self,
+        message: str,
+        *,
+        datatype: str = "f",
+        big_endian: bool = False,
+        items: int | None = None,
     ) -> np.ndarray: ...
 
     def clear(self) -> None: ...

@@ -192,16 +192,24 @@ def make_block(payload: bytes) -> bytes:
     return b"#" + str(len(length)).encode() + length + payload
 
 
-def parse_block_header(data: bytes) -> tuple[int, int]:
-    """(offset of the payload, payload length) of a definite-length block at the start of data.
+def parse_block_header(
+    data: bytes, *, items: int | None = None, itemsize: int = 4
+) -> tuple[int, int]:
+    """(offset of the payload, payload length) of a block at the start of data.
 
-    The indefinite form '#0' is refused: on a socket its end cannot be found reliably.
+    The indefinite form '#0' (IEEE 488.2 7.7.6: the payload runs to the terminator with END) has
+    no length; on a socket its end cannot be found in the bytes, so it is taken only where the
+    caller knows how many `items` of `itemsize` bytes it must hold (refused otherwise).
     """
     if data[:1] != b"#" or len(data) < 2 or not data[1:2].isdigit():
-        raise reply_error(repr(data[:12]), "an IEEE 488.2 definite-length block (#<n><len>...)")
+        raise reply_error(
+            repr(data[:12]), "an IEEE 488.2 definite-length block (#<n><len>...) or #0 block"
+        )
     digits = int(data[1:2])
     if digits == 0:
-        raise reply_error(repr(data[:12]), "a definite-length block (got indefinite '#0')")
+        if items is None:
+            raise reply_error(repr(data[:12]), "a definite-length block (got indefinite '#0')")
+        return 2, items * itemsize
     length_text = data[2 : 2 + digits]
     if len(length_text) != digits or not length_text.isdigit():
         raise reply_error(repr(data[: 2 + digits]), "a block header with a decimal length")
@@ -216,15 +224,19 @@ def decode_payload(payload: bytes, dtype: np.dtype) -> np.ndarray:
     return np.frombuffer(payload, dtype).copy()
 
 
-def parse_block(data: bytes, *, datatype: str = "f", big_endian: bool = False) -> np.ndarray:
+def parse_block(
+    data: bytes, *, datatype: str = "f", big_endian: bool = False, items: int | None = None
+) -> np.ndarray:
     """The array in a complete block reply; an optional single trailing LF is allowed.
 
-    The payload must be exactly as long as the header says: a short or long block means the
-    reply and the stream are out of step, which must never pass as data.
+    The payload must be exactly as long as the header says (or, for '#0', as `items` values
+    take): a short or long block means the reply and the stream are out of step, which must
+    never pass as data.
     """
-    offset, length = parse_block_header(data)
+    dtype = block_dtype(datatype, big_endian)
+    offset, length = parse_block_header(data, items=items, itemsize=dtype.itemsize)
     rest = data[offset:]
     rest = rest[:-1] if len(rest) == length + 1 and rest.endswith(b"\n") else rest
     if len(rest) != length:
         raise reply_error(f"<block of {len(rest)} bytes>", f"a block of {length} bytes")
-    return decode_payload(rest, block_dtype(datatype, big_endian))
+    return decode_payload(rest, dtype)

@@ -20,7 +20,7 @@ from typing import TypeVar
 import numpy as np
 
 from instruments.dialect import Dialect
-from instruments.errors import ReplyError, ScpiError, in_part
+from instruments.errors import InstrumentError, ReplyError, ScpiError, in_part
 from instruments.protocol import Transport
 from instruments.scpi import (
     flat_fields,
@@ -43,6 +43,7 @@ _RECENT = 8  # commands kept to say, in an error message, what the instrument wa
 _LIST_MARGIN_S = 0.01
 _SLOWEST_LINE_HZ = 50.0
 Sweep = tuple[np.ndarray, np.ndarray, np.ndarray]  # voltage, current, in_compliance
+NOT_IDENTIFIED = "not identified (the dialect's identify is null)"
 
 
 @dataclass(frozen=True)
@@ -79,6 +80,11 @@ class ScpiSmu:
         self._unread = False
         # What the error queue held before this session sent anything (see `start_up`).
         self.stale_errors: list[tuple[int, str]] = []
+        # A mainframe (the dialect names {channel} in its commands): the channel addressed now,
+        # and every one addressed in this session, each switched off by `safe_state`.
+        self.channel = 1
+        self.channels_used: set[int] = {1}
+        self._fetched = "the reply"  # the last fetch's reply, quoted in part, for errors
 
     @property
     def resource(self) -> str:
@@ -90,6 +96,11 @@ class ScpiSmu:
         return self._identity if self._identity is not None else self.identify()
 
     def identify(self) -> str:
+        """The answer to the dialect's identification query; where the dialect has none, a
+        text saying so (nothing is sent)."""
+        if self.dialect.identify is None:
+            self._identity = NOT_IDENTIFIED
+            return self._identity
         self._identity = self._query("identify").strip()
         return self._identity
 
@@ -118,6 +129,13 @@ class ScpiSmu:
         self._limit_a = None  # a reset in the setup drops the limit, too
         return self.stale_errors
 
+    def all_off(self) -> None:
+        """Output off, then level 0 V, on every channel used (one, unless a mainframe); raises
+        on the first failure, as a start must."""
+        for _ in self._every_channel():
+            self.output(False)
+            self.set_voltage(0.0)
+
     def safe_state(self) -> bool:
         """Output off, then level 0 V. Never raises (it runs in `finally` blocks).
 
@@ -130,13 +148,25 @@ class ScpiSmu:
             ("output off", lambda: self.output(False)),
             ("level 0 V", lambda: self.set_voltage(0.0)),
         )
-        for name, step in steps:
-            try:
-                step()
-            except Exception as exc:  # any failure here must not hide the one being handled
-                log.warning("safe state: %s failed on %s: %s", name, self.resource, exc)
-                sent = False
+        for _ in self._every_channel():
+            for name, step in steps:
+                try:
+                    step()
+                except Exception as exc:  # any failure here must not hide the one being handled
+                    log.warning("safe state: %s failed on %s: %s", name, self.resource, exc)
+                    sent = False
         return sent
+
+    def _every_channel(self) -> Iterator[int]:
+        """Each channel used in turn (a mainframe), the current one last; or just the one."""
+        if not self.dialect.addresses_channels:
+            yield self.channel
+            return
+        current = self.channel
+        for channel in [*sorted(self.channels_used - {current}), current]:
+            self.channel = channel
+            yield channel
+        self.channel = current
 
     def configure(
         self,
@@ -197,12 +227,17 @@ class ScpiSmu:
             return
         # Off goes out now, as a message of its own, after whatever was held before it.
         self._flush_quietly()
-        message = self.dialect.render("output", state="OFF")
+        message = self.dialect.render("output", state="OFF", **self.address("output"))
         self._recent.append(message)
         self.transport.write(message)
 
     def output_is_on(self) -> bool:
-        return self._parse("output_query", self._query("output_query"), self._bool)
+        """The output read back (on a mainframe: whether any channel used reads on)."""
+        states = [
+            self._parse("output_query", self._query("output_query"), self._bool)
+            for _ in self._every_channel()
+        ]
+        return any(states)
 
     def measure(self) -> Reading:
         """One reading with one query; compliance from the status bit the dialect names.
@@ -272,6 +307,10 @@ class ScpiSmu:
         problem = self.dialect.channels_problem((int(channel),))
         if problem is not None:
             raise problem
+        if self.dialect.addresses_channels and channel != self.channel:
+            self.output(False)  # the channel left behind is switched off before moving on
+            self.channel = int(channel)
+            self.channels_used.add(self.channel)
         if self.dialect.select_channel is None:
             return  # no switch matrix: channel 1 is the device on the terminals
         with self.batch():
@@ -325,28 +364,60 @@ class ScpiSmu:
     def _run_list(self, levels: np.ndarray, nplc: float, settle_s: float) -> Sweep:
         values = ",".join(format_number(float(v)) for v in levels)
         binary = self.dialect.binary_format is not None
+        self._clamp_events()  # read now, so that what is set afterwards is this list's
         with self.batch():  # the list, its start and the error check: one message
             try:
                 self._write("list_voltage", values=values, count=int(levels.size))
                 if binary:
                     self._write("binary_format")
                 self._write("initiate")
+                wait = self.dialect.initiate_wait
+                if wait is not None and not wait.rstrip().endswith("?"):
+                    self._write("initiate_wait")  # holds what follows until the run is over
                 run_s = levels.size * (settle_s + nplc / _SLOWEST_LINE_HZ + _LIST_MARGIN_S)
                 with self._patience(2 * run_s):
+                    if wait is not None and wait.rstrip().endswith("?"):
+                        self._parse("initiate_wait", self._query("initiate_wait"), _done)
                     self.check_errors()  # answered once the run is over; a refused list stops
-                data = self._fetch(binary)
+                data = self._fetch(binary, int(levels.size))
             finally:
                 for key in ("ascii_format", "fixed_mode"):
                     self._write_if_known(key)
-        return self._split(data, levels.size)
+        sweep = self._split(data, levels.size)
+        self._check_clamp_events(sweep[2])
+        return sweep
 
-    def _fetch(self, binary: bool) -> np.ndarray:
+    def _clamp_events(self) -> int:
+        """The status event bits since the last read (0 where the dialect has no such query)."""
+        if self.dialect.list_clamp_event is None or self.dialect.list_compliance_bit is not None:
+            return 0
+        return self._parse("list_clamp_event", self._query("list_clamp_event"), self._status)
+
+    def _check_clamp_events(self, limited: np.ndarray) -> None:
+        """A clamp the instrument latched during the list, while no reading was counted as
+        clamped: the clamp-fraction rule missed it, so the readings cannot be stored as data."""
+        bit = self.dialect.compliance_bit
+        if bit is None or not (self._clamp_events() >> bit) & 1 or limited.any():
+            return
+        detail = f"the instrument latched its current limit (status event bit {bit}) during the "
+        detail += f"list, but no reading came within {self.dialect.fraction:g} of the limit"
+        hint = "lower clamp_fraction in the dialect, from the limit accuracy in the manual"
+        raise InstrumentError(self.resource, self.dialect.list_clamp_event, detail, hint=hint)
+
+    def _fetch(self, binary: bool, points: int) -> np.ndarray:
         self._flush_unread()
-        fetch = self._with_pending(self.dialect.render("fetch"))
+        text = self.dialect.render(
+            "fetch", count=points, first=1, last=points, **self.address("fetch")
+        )
+        fetch = self._with_pending(text)
+        self._fetched = "a binary block"
         if binary:
             big = bool(self.dialect.binary_big_endian)
-            return self.transport.query_block(fetch, datatype="f", big_endian=big)
+            items = points * len(self.dialect.fetch_fields or ())
+            datatype = self.dialect.block_datatype
+            return self.transport.query_block(fetch, datatype=datatype, big_endian=big, items=items)
         reply = self.transport.query(fetch)
+        self._fetched = f"reply {_excerpt(reply)}"
         numbers_ = [self._parse("fetch", field, parse_number) for field in flat_fields(reply)]
         return np.array(numbers_, dtype=float)
 
@@ -355,6 +426,7 @@ class ScpiSmu:
         if data.size != points * len(names):
             self._unread = True
             detail = f"{data.size} values for {points} points of {list(names)}"
+            detail += f" ({self._fetched})"
             raise ReplyError(self.resource, self.dialect.fetch, detail)
         table = {name: data[k :: len(names)].astype(float) for k, name in enumerate(names)}
         voltage, current = (special_values(table[name]) for name in ("voltage", "current"))
@@ -376,8 +448,17 @@ class ScpiSmu:
         finally:
             self.transport.timeout_s = before
 
+    def address(self, key: str) -> dict[str, int]:
+        """{channel} for a key that names it (a mainframe's command), else nothing."""
+        text = getattr(self.dialect, key)
+        return (
+            {"channel": self.channel}
+            if text and key != "select_channel" and ("{channel}" in text)
+            else {}
+        )
+
     def _write(self, key: str, **values: object) -> None:
-        message = self.dialect.render(key, **values)
+        message = self.dialect.render(key, **values, **self.address(key))
         self._recent.append(message)
         if not self._batching:
             self.transport.write(message)
@@ -421,7 +502,8 @@ class ScpiSmu:
 
     def _query(self, key: str) -> str:
         self._flush_unread()
-        return self.transport.query(self._with_pending(self.dialect.render(key)))
+        text = self.dialect.render(key, **self.address(key))
+        return self.transport.query(self._with_pending(text))
 
     def _flush_unread(self) -> None:
         if self._unread:
@@ -465,6 +547,20 @@ class ScpiSmu:
         if self._limit_a is None or math.isnan(current_a):
             return False
         return abs(current_a) >= self.dialect.fraction * self._limit_a
+
+
+def _excerpt(reply: str, most: int = 60) -> str:
+    """A reply quoted for an error message, cut to `most` characters with its length said."""
+    if len(reply) <= most:
+        return repr(reply)
+    return f"{reply[:most]!r}... ({len(reply)} characters)"
+
+
+def _done(text: str) -> int:
+    """The answer of a wait such as *OPC?: 1 once the operation is over."""
+    if parse_int(text) != 1:
+        raise ReplyError("", None, f"reply {text!r} is not 1 (operation complete)")
+    return 1
 
 
 def _joined(commands: list[str]) -> str:

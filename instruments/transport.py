@@ -32,7 +32,7 @@ import re
 import select
 import socket
 import time
-from collections.abc import Iterator
+from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
 from typing import Any
 
@@ -47,7 +47,7 @@ from instruments.errors import (
     InstrumentTimeout,
     ReplyError,
 )
-from instruments.protocol import PROBE, Transport, check_timeout
+from instruments.protocol import PROBE, TERMINATORS, Transport, check_timeout
 from instruments.scpi import (
     block_dtype,
     check_message,
@@ -75,42 +75,89 @@ RESYNC_WAIT_S = 5.0  # how long a resync waits for its probe's answer (at least 
 
 
 @functools.cache
-def _cached_manager() -> pyvisa.ResourceManager:
-    # One manager for the process: closing a manager closes every resource it opened.
-    return pyvisa.ResourceManager("@py")
+def _cached_manager(library: str) -> pyvisa.ResourceManager:
+    # One manager per VISA library for the process: closing a manager closes every resource
+    # it opened.
+    return pyvisa.ResourceManager(library)
 
 
-def _resource_manager() -> pyvisa.ResourceManager:
+def _resource_manager(library: str = "@py") -> pyvisa.ResourceManager:
     # pyvisa hands every caller the same manager object, so anyone's rm.close() closes ours
     # too (measured, pyvisa 1.16.2): open a fresh one then instead of failing every open.
-    manager = _cached_manager()
+    manager = _cached_manager(library)
     try:
         manager.session  # noqa: B018 - the property raises once the manager is closed
     except visa_errors.InvalidSession:
         _cached_manager.cache_clear()
-        manager = _cached_manager()
+        manager = _cached_manager(library)
     return manager
 
 
-def open_visa(resource: str, *, timeout_s: float = 2.0) -> VisaTransport:
-    """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers *IDN?."""
+# Serial line settings by the words a station file uses (sequencer/recipe/linkspec.py).
+_PARITY = {p.name: p for p in constants.Parity}
+_STOP_BITS = {1: constants.StopBits.one, 1.5: constants.StopBits.one_and_a_half}
+_STOP_BITS[2] = constants.StopBits.two
+_FLOW = {"none": constants.VI_ASRL_FLOW_NONE, "xon_xoff": constants.VI_ASRL_FLOW_XON_XOFF}
+_FLOW |= {"rts_cts": constants.VI_ASRL_FLOW_RTS_CTS, "dtr_dsr": constants.VI_ASRL_FLOW_DTR_DSR}
+
+
+def _serial_options(serial: Mapping[str, Any] | None) -> dict[str, Any]:
+    if not serial:
+        return {}
+    return {
+        "baud_rate": int(serial.get("baud", 9600)),
+        "data_bits": int(serial.get("data_bits", 8)),
+        "parity": _PARITY[serial.get("parity", "none")],
+        "stop_bits": _STOP_BITS[serial.get("stop_bits", 1)],
+        "flow_control": _FLOW[serial.get("flow_control", "none")],
+    }
+
+
+def open_visa(
+    resource: str,
+    *,
+    timeout_s: float = 2.0,
+    probe: str | None = PROBE,
+    read_termination: str = "\n",
+    write_termination: str = "\n",
+    visa_library: str = "@py",
+    serial: Mapping[str, Any] | None = None,
+) -> VisaTransport:
+    """Open `resource` (e.g. 'TCPIP0::127.0.0.1::5025::SOCKET') and check that it answers
+    `probe` (*IDN? by default; the query whose constant answer also resynchronises the link).
+    With `probe` None the instrument is asked nothing: the link is only checked for a refused
+    connection, and a resynchronisation can only drain the input until it is quiet.
+    `visa_library`: pyvisa's backend ("@py", or the path of an installed VISA library);
+    `serial`: line settings for an ASRL resource (baud, data_bits, parity, stop_bits,
+    flow_control as words, and echo: the instrument sends each command back first)."""
     millis = round(check_timeout(timeout_s) * 1000)
     problem = resource_problem(resource)
     if problem:
         raise InstrumentError(resource, None, f"the resource {problem}", hint=RESOURCE_HINT)
+    for text in (read_termination, write_termination):
+        if text not in TERMINATORS.values():
+            raise ValueError(f"a line terminator is LF, CR or CRLF (got {text!r})")
     try:
-        inst = _resource_manager().open_resource(
+        manager = _resource_manager(visa_library)
+    except Exception as exc:  # pyvisa raises OSError, ValueError or its own for a bad library
+        detail = f"the VISA library {visa_library!r} cannot be loaded ({exc})"
+        hint = "leave visa_library out (the pure-Python @py), or give an installed library's path"
+        raise InstrumentError(resource, None, detail, hint=hint) from exc
+    try:
+        inst = manager.open_resource(
             resource,
-            read_termination="\n",
-            write_termination="\n",
+            read_termination=read_termination,
+            write_termination=write_termination,
             timeout=millis,
             open_timeout=millis,
+            **(_serial_options(serial) if resource.upper().startswith("ASRL") else {}),
         )
     except Exception as exc:  # pyvisa-py raises a bare Exception when a connect fails
         raise _open_error(resource, exc, timeout_s) from exc
-    transport = VisaTransport(inst, resource, timeout_s)
+    transport = VisaTransport(inst, resource, timeout_s, read_termination, write_termination)
+    transport.echo = bool(serial and serial.get("echo"))
     try:
-        transport.learn_probe()
+        transport.learn_probe(probe)
     except BaseException:
         transport.close()
         raise
@@ -238,9 +285,22 @@ _VISA_WORDS = {int(k): words for k, words in visa_errors.completion_and_error_me
 class VisaTransport:
     """A Transport over a pyvisa message-based resource; use `open_visa` to make one."""
 
-    def __init__(self, inst: Any, resource: str, timeout_s: float) -> None:
+    def __init__(
+        self,
+        inst: Any,
+        resource: str,
+        timeout_s: float,
+        read_termination: str = "\n",
+        write_termination: str = "\n",
+    ) -> None:
         self._inst = inst
         self.resource = resource
+        # pyvisa ends a read at the last character of the read termination (SCPI.md 1.2)
+        self._end = read_termination.encode()[-1:]
+        self._read_term = read_termination.encode()
+        self._write_term = write_termination
+        self._probe: str | None = PROBE
+        self.echo = False  # the instrument sends every command back before anything else
         self._timeout_s = check_timeout(timeout_s)
         self._session = _pyvisa_py_session(inst)
         self._socket = _tcp_socket(self._session)
@@ -264,16 +324,33 @@ class VisaTransport:
         with self._mapped(None):
             self._inst.timeout = round(self._timeout_s * 1000)
 
-    def learn_probe(self) -> str:
-        """Ask *IDN? once (also proves the connection) and remember it for resynchronising."""
-        self._probe_reply = self.query(PROBE)
+    def learn_probe(self, probe: str | None = PROBE) -> str | None:
+        """Ask `probe` once (also proves the connection) and remember its answer for
+        resynchronising; None: ask nothing, only check that the link was not refused."""
+        self._probe = probe
+        if probe is None:
+            with self._mapped(None):
+                self._check_alive(None)
+            return None
+        self._probe_reply = self.query(probe)
         return self._probe_reply
 
     def write(self, message: str) -> None:
         check_message(message)
+        if any(c in message for c in self._write_term):
+            raise ValueError(f"SCPI message {message!r} must not contain its line terminator")
         with self._mapped(message):
             self._check_alive(message)
             self._inst.write(message)
+            if self.echo:
+                self._take_echo(message)
+
+    def _take_echo(self, message: str) -> None:
+        """Read the instrument's echo of `message`; anything else means the stream is out of
+        step (refused, never read as a reply)."""
+        echoed = self._read(message)
+        if echoed.strip() != message:
+            raise reply_error(echoed[:60], f"the echo of {message[:60]!r}")
 
     def query(self, message: str) -> str:
         self.write(self._in_step(message))
@@ -281,12 +358,17 @@ class VisaTransport:
             return self._read(message)
 
     def query_block(
-        self, message: str, *, datatype: str = "f", big_endian: bool = False
+        self,
+        message: str,
+        *,
+        datatype: str = "f",
+        big_endian: bool = False,
+        items: int | None = None,
     ) -> np.ndarray:
         dtype = block_dtype(datatype, big_endian)
         self.write(self._in_step(message))
         with self._mapped(message):
-            return self._read_block(message, dtype, time.monotonic() + self._timeout_s)
+            return self._read_block(message, dtype, time.monotonic() + self._timeout_s, items)
 
     def clear(self) -> None:
         """Drop everything the instrument sent and nobody read, then check the stream is in step."""
@@ -372,9 +454,9 @@ class VisaTransport:
 
     def _fill_line(self, command: str, deadline: float) -> None:
         """Read until pyvisa-py's buffer holds a whole line (its own read then ends at once)."""
-        if self._socket is None or b"\n" in self._session._pending_buffer:
+        if self._socket is None or self._end in self._session._pending_buffer:
             return  # not a socket: pyvisa's own timeout, which restarts with each chunk
-        while b"\n" not in self._more(command, deadline):
+        while self._end not in self._more(command, deadline):
             if len(self._session._pending_buffer) > MAX_LINE_BYTES:
                 self._session._pending_buffer.clear()
                 detail = f"a reply of more than {MAX_LINE_BYTES:,} bytes with no end of line"
@@ -418,29 +500,36 @@ class VisaTransport:
             return f"connection lost ({exc.strerror or exc})"
         return None
 
-    def _read_block(self, command: str, dtype: np.dtype, deadline: float) -> np.ndarray:
+    def _read_block(
+        self, command: str, dtype: np.dtype, deadline: float, items: int | None
+    ) -> np.ndarray:
         # Reads the payload with the termchar off, so LF bytes in it do not cost a read each.
+        # An indefinite block (#0) has no length and, on a socket, no END: it is read as the
+        # `items` values the caller expects, and must then end with the terminator.
         self._fill_bytes(command, deadline, 2)
         head = self._inst.read_bytes(2)
         digits = int(head[1:2]) if head[:1] == b"#" and head[1:2].isdigit() else 0
         self._fill_bytes(command, deadline, digits)
         length_text = self._inst.read_bytes(digits) if digits else b""
-        _, length = parse_block_header(head + length_text)
-        self._fill_bytes(command, deadline, length + 1)
+        _, length = parse_block_header(head + length_text, items=items, itemsize=dtype.itemsize)
+        tail = len(self._read_term)
+        self._fill_bytes(command, deadline, length + tail)
         attribute = constants.ResourceAttribute.termchar_enabled
         self._inst.set_visa_attribute(attribute, constants.VI_FALSE)
         try:
-            payload = self._inst.read_bytes(length + 1)
+            payload = self._inst.read_bytes(length + tail)
         finally:
             self._inst.set_visa_attribute(attribute, constants.VI_TRUE)
-        if payload[-1:] != b"\n":
-            raise reply_error(f"<block ending {payload[-4:]!r}>", "a block followed by LF")
-        return decode_payload(payload[:-1], dtype)
+        if payload[-tail:] != self._read_term:
+            ended = {b"\n": "LF", b"\r": "CR", b"\r\n": "CRLF"}[self._read_term]
+            expected = f"a block of the expected length followed by {ended}"
+            raise reply_error(f"<block ending {payload[-6:]!r}>", expected)
+        return decode_payload(payload[:-tail], dtype)
 
     def _resync(self, command: str) -> None:
         self._drain(command)
-        if self._probe_reply is not None:
-            self._inst.write(PROBE)
+        if self._probe_reply is not None and self._probe is not None:
+            self._inst.write(self._probe)
             self._probes_out += 1
             self._await_probes(command)
         self._out_of_step = False
@@ -451,10 +540,12 @@ class VisaTransport:
         deadline = time.monotonic() + max(self._timeout_s, RESYNC_WAIT_S)
         stale = 0
         while self._probes_out:
-            reply = self._read(PROBE, max(deadline - time.monotonic(), 1e-3))
+            reply = self._read(self._probe or PROBE, max(deadline - time.monotonic(), 1e-3))
             if reply == self._probe_reply:
                 self._probes_out -= 1
                 continue
+            if self.echo and reply == self._probe:
+                continue  # the echo of the probe itself
             log.warning("%s: discarded a late reply %r", self.resource, reply)
             stale += 1
             if stale >= _MAX_STALE:
@@ -472,10 +563,7 @@ class VisaTransport:
                 raise
             limit_s = max(self._timeout_s, RESYNC_WAIT_S)
             dropped = _read_until_quiet(self._inst, _QUIET_S, limit_s)
-            if self._probe_reply is not None:  # probe answers drained here are answered, too
-                lines = dropped.replace(b"\r", b"").split(b"\n")
-                answered = lines.count(self._probe_reply.encode())
-                self._probes_out = max(self._probes_out - answered, 0)
+            self._count_answered(dropped)
 
     def _drain(self, command: str) -> None:
         """Read and drop input until it has been quiet for 0.1 s (for at most RESYNC_WAIT_S)."""
@@ -496,9 +584,16 @@ class VisaTransport:
             if time.monotonic() > deadline:
                 detail = "the instrument keeps sending; its output has no end to find"
                 raise InstrumentError(self.resource, command, detail, hint="reset it, reconnect")
-        if self._probe_reply is not None:  # probe answers drained here are answered, too
-            answered = dropped.replace(b"\r", b"").split(b"\n").count(self._probe_reply.encode())
-            self._probes_out = max(self._probes_out - answered, 0)
+        self._count_answered(dropped)
+
+    def _count_answered(self, dropped: bytes) -> None:
+        """Probe answers drained are answered, too (lines split at the read terminator)."""
+        if self._probe_reply is None:
+            return
+        lines = dropped.split(self._end)
+        other = b"\n" if self._end == b"\r" else b"\r"
+        answered = [line.strip(other) for line in lines].count(self._probe_reply.encode())
+        self._probes_out = max(self._probes_out - answered, 0)
 
 
 def _read_until_quiet(inst: Any, quiet_s: float, limit_s: float) -> bytes:

@@ -108,6 +108,10 @@ def _set_sense(inst: Instrument, names: tuple[str, ...]) -> None:
     if unknown:
         raise ScpiError(-224, f"sense function {unknown[0]}")
     inst.smu.sense_functions = names
+    # As a SCPI-1999 instrument does, each reading then carries the sensed functions, in the
+    # order named (FORMat:FIELds, our own node, may still choose otherwise afterwards).
+    fields = tuple("VOLTage" if name.upper().startswith("VOLT") else "CURRent" for name in names)
+    inst.format = replace(inst.format, fields=fields)
 
 
 def _set_ese(inst: Instrument, mask: float) -> None:

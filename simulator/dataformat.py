@@ -7,7 +7,10 @@
   reply. Never the indefinite `#0` form.
 - Byte order of REAL: NORMal (the *RST default) sends the most significant byte first, i.e.
   big-endian (numpy '>f4', pyvisa is_big_endian=True); SWAPped sends little-endian ('<f4').
-- FORMat:FIELds (our own node) chooses what each reading carries: VOLTage, CURRent and STATus
+- [SENSe:]FUNCtion[:ON] names what each reading carries, in that order, as a SCPI-1999
+  instrument's readings carry the functions it senses (after *RST: voltage and current).
+- FORMat:FIELds (our own node, sent after it) chooses what each reading carries: VOLTage,
+  CURRent and STATus
   (the QUEStionable condition of that reading, bit 1 = current limit active), in the order
   given; the default VOLTage,CURRent keeps READ? as "<v>,<i>".
 The format applies to READ? and FETCh?; MEASure:...? always answers one NR3 number.

@@ -114,7 +114,13 @@ def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection
     resource = "sim" if sim else spec.resource
     options = recipe.station.simulator_options if resource == "sim" else None
     return connect(
-        resource, dialect=spec.dialect, timeout_s=spec.timeout_s, spy_log=log, sim_options=options
+        resource,
+        dialect=spec.dialect,
+        timeout_s=spec.timeout_s,
+        spy_log=log,
+        sim_options=options,
+        channels=spec.channels,
+        **spec.link.connect_options(),
     )
 
 

@@ -36,6 +36,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "status": ("statuscmd", "how a run stands: progress, output, ending, ETA"),
     "study": ("studycmd", "gauge study or station comparison from stored runs"),
     "upload": ("uploadcmd", "send run folders' results to the shared database"),
+    "probe": ("probecmd", "try a station's instrument and dialect key by key, the output off"),
     "sim": ("simcmd", "serve the simulated SMU standalone over TCP"),
 }
 
@@ -74,6 +75,10 @@ def command_module(key: str) -> tuple[Adder, dict[str, Handler]]:
         from sequencer.cli import uploadcmd as m  # start-up speed: loads the shared store
 
         return m.add_parser, {"upload": m.cmd_upload}
+    if key == "probecmd":
+        from sequencer.cli import probecmd as m  # start-up speed: loads the instruments
+
+        return m.add_parser, {"probe": m.cmd_probe}
     from sequencer.cli import simcmd as m  # start-up speed: as every command
 
     return m.add_parser, m.COMMANDS

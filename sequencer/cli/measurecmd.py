@@ -215,6 +215,8 @@ def _on_one_bench(
             timeout_s=recipe.station.timeout_s,
             spy_log=log,
             sim_options=recipe.station.simulator_options if resource == "sim" else None,
+            channels=recipe.station.channels,
+            **recipe.station.instruments[0].link.connect_options(),
         )
 
         def measure(guard):

@@ -24,6 +24,7 @@ from pathlib import Path
 from typing import Any
 
 from sequencer.recipe.fields import Fields, show
+from sequencer.recipe.linkspec import NO_LINK_SETTINGS, LinkSettings, parse_link
 from sequencer.recipe.yamlsource import Source
 
 DEFAULT_DIALECT = "scpi1999"
@@ -43,6 +44,7 @@ class InstrumentSpec:
     channels: tuple[int, ...]
     write_time_s: float | None = None  # what one write / query costs, for estimates
     query_time_s: float | None = None  # (None: sequencer.run.estimate's measured defaults)
+    link: LinkSettings = NO_LINK_SETTINGS  # VISA library, terminators, serial (linkspec.py)
 
     def __post_init__(self) -> None:
         if not self.channels:
@@ -54,9 +56,10 @@ def instrument_specs(source: Source, top: Fields, folder: Path) -> tuple[Instrum
     if "instruments" not in top.data:
         inst = Fields.at(source, "instrument", top.raw("instrument"))
         settings, timing = _settings(inst, folder), _timing(inst)
+        link = parse_link(inst, settings[0])
         inst.finish()
         channels = parse_channels(source, "tray", top.raw("tray"))
-        return (InstrumentSpec("smu", *settings, channels, *timing),)
+        return (InstrumentSpec("smu", *settings, channels, *timing, link=link),)
     for single in ("instrument", "tray"):
         if single in top.data:
             problem = "goes with one instrument; with 'instruments:' each names its channels"
@@ -73,10 +76,11 @@ def _several(source: Source, value: Any, folder: Path) -> tuple[InstrumentSpec, 
         f = Fields.at(source, f"instruments[{index}]", item)
         name = f.text("name", f"smu{index + 1}")
         settings, timing = _settings(f, folder), _timing(f)
+        link = parse_link(f, settings[0])
         f.used.add("channels")
         channels = parse_channels(source, f.where("channels"), {"channels": f.raw("channels")})
         f.finish()
-        specs.append(InstrumentSpec(name, *settings, channels, *timing))
+        specs.append(InstrumentSpec(name, *settings, channels, *timing, link=link))
         _check_against_earlier(source, index, specs)
     return tuple(specs)
 

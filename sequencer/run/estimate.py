@@ -87,10 +87,12 @@ def estimate(
     lists: bool = False,
     settles: bool = True,
     joined: int | None = None,
+    clamp_checks: bool = False,
 ) -> Estimate:
     """The run's duration. `lanes`: devices per instrument; `lists`, `settles`: whether the
     dialect has source lists and a settling command; `joined`: its `max_message_bytes` (None:
-    one command per message)."""
+    one command per message); `clamp_checks`: whether each list reads the status event before
+    and after it (dialect `list_clamp_event`: two more queries a list)."""
     cost = JOINED if joined else SEPARATE
     instrument = writes = queries = 0.0
     configured = None
@@ -105,8 +107,12 @@ def estimate(
             writes += 1  # the list's first level, sent before the output goes on
         point = cost["point"]
         each = cost["list"] if listed else (point[0] * points, point[1] * points)
+        if listed and clamp_checks:
+            each = (each[0], each[1] + 2)
         if listed and joined and _list_bytes(seg) > joined:
-            each = (each[0] + 2, each[1])  # a list too long to share: it and what came before
+            # a list too long to share: it alone, and what came before (unless that went out
+            # with the event read just before the list)
+            each = (each[0] + (1 if clamp_checks else 2), each[1])
         writes, queries = writes + each[0], queries + each[1] + 1  # + the step's error check
     last = _last_level(plan)
     writes += cost["device"][0] + len(ramp_levels(last)) + 1
@@ -153,9 +159,11 @@ def predict(recipe, plan: Plan, lanes: Sequence[int] | None = None) -> Estimate:
     timing = Timing(write, query)
     settles = dialect.set_settle is not None
     joined = dialect.max_message_bytes
+    checks = dialect.list_clamp_event is not None and dialect.list_compliance_bit is None
     return estimate(
-        plan, guard, lanes, timing, lists=dialect.has_lists, settles=settles, joined=joined
-    )
+        plan, guard, lanes, timing, lists=dialect.has_lists, settles=settles, joined=joined,
+        clamp_checks=checks,
+    )  # fmt: skip
 
 
 def _check_channels(station, plan: Plan, load_dialect, DialectError) -> None:

@@ -44,11 +44,9 @@ def start_safe(smu: ScpiSmu) -> list[tuple[int, str]]:
     stale entries returned, for the screen and the run record), the dialect's setup sent, off
     and 0 V once more (after whatever the setup did) and the output state read back. A bench
     whose output will not read OFF is refused."""
-    smu.output(False)
-    smu.set_voltage(0.0)
+    smu.all_off()  # every channel of a mainframe
     stale = smu.start_up()
-    smu.output(False)
-    smu.set_voltage(0.0)
+    smu.all_off()
     if smu.output_is_on():
         raise SafetyError(
             f"the output of {smu.resource} still reads ON after it was switched off; "

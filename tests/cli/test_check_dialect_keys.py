@@ -54,3 +54,26 @@ def test_the_output_read_back_may_not_be_null() -> None:
         parse_dialect(text, "d.yaml")
     line = next(n for n, t in enumerate(text.splitlines(), 1) if t.startswith("output_query"))
     assert str(caught.value).startswith(f"d.yaml:{line}: key 'output_query': must not be null")
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "key"),
+    [
+        ("read_termination: null", "read_termination: NL", "read_termination"),
+        ("binary_bits: null", "binary_bits: 16", "binary_bits"),
+        ('fetch: "FETC?"', 'fetch: "FETC? {volts}"', "fetch"),
+    ],
+)
+def test_a_bad_link_key_is_one_line_from_check(
+    tmp_path: Path, old: str, new: str, key: str
+) -> None:
+    text = PACKAGED.read_text()
+    assert old in text
+    text = text.replace(old, new)
+    recipe = _station_with_dialect(tmp_path, text, channels=1)
+    done = ccbench("check", str(recipe))
+    assert done.returncode == 2, done.stdout + done.stderr
+    lines = done.stdout.strip().splitlines()
+    line = next(n for n, t in enumerate(text.splitlines(), 1) if t.startswith(f"{key}:"))
+    assert len(lines) == 1, done.stdout
+    assert f"{tmp_path / 'no-switch.yaml'}:{line}: key '{key}'" in lines[0]

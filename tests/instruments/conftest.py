@@ -27,6 +27,7 @@ class ScriptedInstrument:
         self.errors: list[str] = []
         self.replies: dict[str, str | list[str]] = {"*IDN?": "TEST,SCRIPTED-SMU,0001,1.0"}
         self.replies["*OPC?"] = "1"
+        self.replies["STAT:QUES:EVEN?"] = "0"  # no clamp latched (the default dialect's lists)
         self.replies.update(replies or {})
 
     def __call__(self, message: str) -> str | None:

@@ -14,6 +14,7 @@ readings and, separately, for list readings.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 
 @dataclass
@@ -30,6 +31,9 @@ class PlainSmu:
     limit_a: float = 1e-3
     list_v: tuple[float, ...] = ()
     trace: list[tuple[float, float, bool]] = field(default_factory=list)
+    # A two-terminal device instead of the resistor (tests/instruments/standardsmu.py Regulator
+    # or Resistor): its current(volts) and voltage_at(amps, most).
+    device: Any = None
 
     def respond(self, message: str) -> bytes | None:
         replies = [r for r in (self._one(u.strip().lstrip(":")) for u in message.split(";")) if r]
@@ -39,10 +43,12 @@ class PlainSmu:
         """(voltage, current, limiting) at the terminals for `volts` programmed."""
         if not self.output_on:
             return 0.0, 0.0, False
-        wanted = volts / self.ohms
+        wanted = volts / self.ohms if self.device is None else self.device.current(volts)
         if abs(wanted) < self.limit_a:
             return volts, wanted, False
         amps = self.limit_a * (1 - self.clamp_low)
+        if self.device is not None:
+            return self.device.voltage_at(amps, volts), amps, True
         return amps * self.ohms, amps, True
 
     # -- commands ---------------------------------------------------------------------------

@@ -18,29 +18,28 @@ from instruments.transport import open_visa
 from simulator import ServerHandle, SimOptions, start_server
 from tests.instruments.test_dialect_files import PACKAGED, _write_variant
 
-LIST = (
-    "SOUR:VOLT:MODE LIST;:SOUR:LIST:VOLT 0.000000E+00,5.000000E+00,3.000000E+01;"
-    ":TRIG:COUN 3;:FORM:FIEL VOLT,CURR,STAT"
-)
+LIST = "SOUR:VOLT:MODE LIST;:SOUR:LIST:VOLT 0.000000E+00,5.000000E+00,3.000000E+01;:TRIG:COUN 3"
 
 
 def test_one_list_run_and_one_block_fetch(dialect: Dialect, make_instrument) -> None:
-    readings = np.array([0, 1e-9, 0, 5, 1.7e-3, 0, 21.3, 2e-3, 2], dtype="<f4")
+    readings = np.array([0, 1e-9, 5, 1.7e-3, 21.3, 2e-3], dtype="<f4")
     instrument = make_instrument({"FETC?": make_block(readings.tobytes()).decode("latin-1")})
     smu = ScpiSmu(CallableTransport(instrument), dialect)
     voltage, current, limited = smu.list_sweep([0, 5, 30], limit_a=2e-3, nplc=1, settle_s=1e-3)
     np.testing.assert_allclose(voltage, [0, 5, 21.3], rtol=1e-6)
     np.testing.assert_allclose(current, [1e-9, 1.7e-3, 2e-3], rtol=1e-6)
-    assert list(limited) == [False, False, True]  # status 2: QUES bit 1 (compliance_bit)
+    assert list(limited) == [False, False, True]  # at the limit: the clamp-fraction rule
     after_configure = instrument.sent[instrument.sent.index("SYST:ERR?") + 1 :]
     assert after_configure == [
+        "STAT:QUES:EVEN?",  # cleared before the list: what is latched after it is the list's
         LIST,
         "FORM REAL,32;:FORM:BORD SWAP",
         "INIT",
         "SYST:ERR?",  # answered when the run is over: a refused list stops here
         "FETC?",
-        "FORM ASC;:FORM:FIEL VOLT,CURR",
+        "FORM ASC",
         "SOUR:VOLT:MODE FIX;:TRIG:COUN 1",
+        "STAT:QUES:EVEN?",  # nothing latched: no clamp was missed
     ]
 
 
@@ -66,7 +65,7 @@ def test_impossible_levels_are_refused_before_sending(smu: ScpiSmu, instrument, 
         ('initiate: "INIT"', "initiate: null", "needs initiate too"),
         ("binary_big_endian: false", "binary_big_endian: null", "byte order"),
         ("binary_big_endian: false", "binary_big_endian: 0", "true or false"),
-        ("[voltage, current, status]  #", "[voltage, status]  #", "'current' exactly once"),
+        ("fetch_fields: [voltage, current]", "fetch_fields: [voltage]", "'current' exactly once"),
         ("list_max_points: 2500", "list_max_points: 0", "whole number >= 1"),
         ('"INIT"', '"INIT {count}"', "no placeholder"),
     ],
@@ -116,7 +115,21 @@ def reference(smu: ScpiSmu, limit_a: float) -> tuple[np.ndarray, ...]:
 VARIANTS = ["little-endian block", "big-endian block", "ascii", "chunks of 7"]
 
 
+def with_list_status(dialect: Dialect) -> Dialect:
+    """The default dialect with the simulator's own status element per buffered reading
+    (FORM:FIEL, not SCPI-1999), so that a clamp is told by its bit, as point by point: the
+    clamp-fraction rule would also flag the free readings within 2 % of this tight limit."""
+    return dataclasses.replace(
+        dialect,
+        list_voltage=dialect.list_voltage + ";:FORM:FIEL VOLT,CURR,STAT",
+        fetch_fields=("voltage", "current", "status"),
+        list_compliance_bit=1,
+        ascii_format="FORM ASC;:FORM:FIEL VOLT,CURR",
+    )
+
+
 def variants(dialect: Dialect) -> dict[str, Dialect]:
+    dialect = with_list_status(dialect)
     return {
         "little-endian block": dialect,
         "big-endian block": dataclasses.replace(

@@ -36,6 +36,7 @@ def _start_and_measure(smu: ScpiSmu, volts: float):
     reading = smu.measure()
     smu.check_errors()  # nothing the driver sent was refused
     smu.output(False)
+    assert not smu.output_is_on()  # a query: the off has reached the responder before close
     return stale, reading
 
 

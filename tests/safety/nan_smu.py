@@ -5,8 +5,9 @@ Written from a description, not from the simulator: an SMU speaking the SCPI-199
 limit, one program message a line, message units split at ';' and answered in order, joined
 by ';'. After `good_readings` readings it reports every current as `bad_value`: SCPI-1999
 Vol 1 7.2.1.4-7.2.1.5 (as quoted in SCPI.md) gives 9.91E37 for NaN and 9.9E37 for +INF.
-Source lists run at INIT and are fetched with FETC?, in ASCII or as an IEEE 488.2
-definite-length block of little-endian float32 (FORM REAL,32 with FORM:BORD SWAP).
+Source lists run at INIT and are fetched with FETC?, voltage and current per reading (no
+status per reading in SCPI-1999), in ASCII or as an IEEE 488.2 definite-length block of
+little-endian float32 (FORM REAL,32 with FORM:BORD SWAP).
 """
 
 from __future__ import annotations
@@ -102,7 +103,8 @@ class NanSmu:
         return answers.get(header, "0")
 
     def _fetch(self) -> str | bytes:
-        values = [x for point in self.state.buffer for x in point]
+        # SCPI-1999: a buffered reading carries the sensed functions, voltage and current
+        values = [x for volts, amps, _ in self.state.buffer for x in (volts, amps)]
         if not self.state.binary:
             return ",".join(f"{v:+.6E}" for v in values)
         payload = struct.pack(f"<{len(values)}f", *values)

@@ -173,3 +173,17 @@ def test_trailing_carriage_return_and_blank_units_are_ignored(session):
     assert session.handle("") is None
     assert session.handle("*OPC?;;") == "1"
     assert errors(session) == []
+
+
+def test_readings_carry_the_sensed_functions_in_their_order(session):
+    # SCPI-1999 SENSe:FUNCtion (SCPI.md 3.6): a reading holds what the instrument senses
+    session.handle("ROUT:CLOS (@1);:OUTP ON;:VOLT 1")
+    session.handle('SENS:FUNC "CURR"')
+    assert len(session.handle("READ?").split(",")) == 1
+    session.handle('SENS:FUNC "CURR","VOLT"')
+    current, voltage = (float(v) for v in session.handle("READ?").split(","))
+    assert voltage == pytest.approx(1.0, abs=1e-3) and 0 < current < 5e-3
+    session.handle('SENS:FUNC "VOLT","CURR";:FORM:FIEL VOLT,CURR,STAT')  # our node, after it
+    assert len(session.handle("READ?").split(",")) == 3
+    session.handle("OUTP OFF")
+    assert errors(session) == []
