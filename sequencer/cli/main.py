@@ -23,7 +23,7 @@ from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import judgecmd, partcmd, reportcmd, results, studycmd, uploadcmd
+from sequencer.cli import judgecmd, partcmd, reportcmd, results, schemacmd, studycmd, uploadcmd
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.safetyview import limits_table
 from sequencer.cli.screen import Screen
@@ -88,6 +88,7 @@ def build_parser() -> argparse.ArgumentParser:
     results.add_parser(sub)
     studycmd.add_parser(sub)
     uploadcmd.add_parser(sub)
+    schemacmd.add_parser(sub)
 
     sim = sub.add_parser("sim", help="serve the simulated SMU standalone over TCP")
     sim.add_argument("--port", type=int, default=0)
@@ -414,6 +415,7 @@ COMMANDS = {
     "results": results.cmd_results,
     "upload": uploadcmd.cmd_upload,
     "study": studycmd.cmd_study,
+    "schema": schemacmd.cmd_schema,
 }
 
 
