@@ -1,18 +1,27 @@
 """The dialect file formats, described once: every key of an SMU dialect and of a chamber dialect
-with its type and meaning, for the JSON Schema (`ccbench schema dialect`) and the reference page.
-
-The dialect loaders (instruments/dialect.py, instruments/chamber_dialect.py) still check the
-files themselves (placeholders, list keys together, no reset per device); a test keeps their
-keys and these models equal, so the two cannot drift.
+with its type and meaning. From these models come the loaders' key and type checks
+(instruments/dialect.py, instruments/chamber_dialect.py: `first_problem`), the JSON Schema
+(`ccbench schema dialect`) and the reference page. What spans keys stays in the loaders:
+placeholders, the list keys together, no reset per device, the reading's fields.
 """
 
 from __future__ import annotations
 
-from typing import Annotated
+from dataclasses import dataclass
+from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field, StrictBool, StrictFloat, StrictInt
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictBool,
+    StrictFloat,
+    StrictInt,
+    StrictStr,
+    ValidationError,
+)
 
-Command = Annotated[str, Field(min_length=1)]
+Command = Annotated[StrictStr, Field(pattern=r"\S")]  # text with something in it
 FIELD_NAMES = ("voltage", "current", "status", "errors", "ignore")
 
 
@@ -23,12 +32,15 @@ def key(meaning: str, *, optional: bool = False) -> object:
 
 
 class SmuDialect(BaseModel):
-    """An SMU dialect: the SCPI text of each abstract operation (null: the instrument has none)."""
+    """An SMU dialect: the SCPI text of each abstract operation (null: the instrument has none).
+
+    The operations the driver cannot do without are typed without null (output_query: every
+    ending reads the output back as off)."""
 
     model_config = ConfigDict(extra="forbid", title="SMU dialect")
 
-    name: str = key("the dialect's name")
-    description: str | None = key("one line on which instruments it suits")
+    name: Command = key("the dialect's name")
+    description: Command | None = key("one line on which instruments it suits")
     identify: Command = key("the identification query, e.g. *IDN?")
     reset: Command = key("the reset command (sent once, in setup order)")
     clear_status: Command | None = key("clears the status registers")
@@ -45,7 +57,7 @@ class SmuDialect(BaseModel):
     output: Command = key("switches the output; placeholder {state} (ON or OFF)")
     output_query: Command = key("reads the output state back (1 or 0)")
     measure: Command = key("takes one reading")
-    measure_fields: list[str] = key(
+    measure_fields: list[StrictStr] = key(
         f"the reading's fields in order ({', '.join(FIELD_NAMES)}); voltage and current once"
     )
     compliance_bit: Annotated[StrictInt, Field(ge=0, le=15)] | None = key(
@@ -59,7 +71,7 @@ class SmuDialect(BaseModel):
     )
     initiate: Command | None = key("starts the loaded list", optional=True)
     fetch: Command | None = key("reads the list's readings back", optional=True)
-    fetch_fields: list[str] | None = key("the fields of each list reading", optional=True)
+    fetch_fields: list[StrictStr] | None = key("the fields of each list reading", optional=True)
     binary_format: Command | None = key("switches readings to binary blocks", optional=True)
     binary_big_endian: StrictBool | None = key("the byte order binary_format selects",
                                                optional=True)  # fmt: skip
@@ -93,8 +105,8 @@ class ChamberDialect(BaseModel):
 
     model_config = ConfigDict(extra="forbid", title="chamber dialect")
 
-    name: str = key("the dialect's name")
-    description: str | None = key("one line on which chambers it suits")
+    name: Command = key("the dialect's name")
+    description: Command | None = key("one line on which chambers it suits")
     identify: Command = key("the identification query")
     set_point: Command = key("sets the set point; placeholder {celsius}")
     set_point_query: Command = key("answers the set point in force")
@@ -108,3 +120,32 @@ class ChamberDialect(BaseModel):
     valid_range_c: Annotated[list[StrictFloat | StrictInt], Field(min_length=2, max_length=2)] = (
         key("[lowest, highest] in degC: a reading outside is a sensor fault")
     )
+
+
+@dataclass(frozen=True)
+class Problem:
+    """The first thing wrong with a dialect's keys or types, for the loader to put in words:
+    kind "unknown" (a key the format lacks), "missing", "null" (a key that must have a
+    value) or "value" (the wrong type or range)."""
+
+    kind: str
+    key: str
+    value: Any = None
+
+
+def first_problem(model: type[BaseModel], data: dict[Any, Any]) -> Problem | None:
+    """What `model` refuses in `data`: an unknown key first (a misspelt key is named as such,
+    not as the key it was meant to be, missing), then a missing key, then a value in the
+    format's order of keys."""
+    try:
+        model.model_validate(data)
+    except ValidationError as exc:
+        errors = exc.errors()
+        for kind, wanted in (("unknown", "extra_forbidden"), ("missing", "missing")):
+            for error in errors:
+                if error["type"] == wanted:
+                    return Problem(kind, str(error["loc"][0]))
+        key = str(errors[0]["loc"][0])
+        value = data.get(key)
+        return Problem("null" if value is None else "value", key, value)
+    return None
