@@ -42,12 +42,12 @@ def steps(source: Source, items: list[Any]) -> tuple[Step, ...]:
 
 
 def _step(item: Any, index: int) -> Step:
-    if isinstance(item, form.SweepItem):
+    if item.kind == "sweep":
         s = item.sweep
         name = s.name or f"sweep{index + 1}"
         return SweepStep(name, s.start, s.stop, s.level_count, s.compliance, s.settle,
                          s.on_compliance)  # fmt: skip
-    if isinstance(item, form.SpotItem):
+    if item.kind == "spot":
         p = item.spot
         name = p.name or f"spot{index + 1}"
         return SpotStep(name, p.voltage, p.compliance, p.repeats, p.settle, p.on_compliance)

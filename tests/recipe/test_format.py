@@ -133,7 +133,8 @@ def test_a_broken_recipe_is_refused_by_the_schema_and_the_loader(tmp_path, new, 
 def test_the_shipped_broken_recipe_is_refused_by_the_schema():
     data = yaml.safe_load((ROOT / "recipes/broken.yaml").read_text(encoding="utf-8"))
     errors = list(Draft202012Validator(schema("recipe")).iter_errors(data))
-    assert errors and list(errors[0].absolute_path)[:2] == ["steps", 0]
+    # at the value itself, as an editor marks it (not "step 0 matches no kind of step")
+    assert [list(e.absolute_path) for e in errors] == [["steps", 0, "sweep", "stop"]]
 
 
 @pytest.mark.parametrize(
@@ -219,7 +220,7 @@ def test_the_demo_files_load_to_the_same_values_through_the_models():
     assert recipe.station.limits.touch_safe_v == 42.0
 
 
-# --- the dialect loaders are hand-written still: their keys and the schema's are one list --------
+# --- the dialect loaders check keys and types through the dialect format -----------------------
 
 
 def test_the_dialect_format_has_every_key_the_smu_dialect_loader_reads():
@@ -233,6 +234,40 @@ def test_the_dialect_format_has_every_key_the_chamber_dialect_loader_reads():
     keys = [f.name for f in dataclasses.fields(chamber_dialect.ChamberDialect)][:-1]
     assert list(ChamberDialect.model_fields) == keys
     assert all(f.is_required() for f in ChamberDialect.model_fields.values())
+
+
+def test_the_operations_the_driver_needs_are_the_keys_that_may_not_be_null():
+    never_null = {n for n, f in SmuDialect.model_fields.items() if not _nullable(f.annotation)}
+    assert never_null == {
+        "name", "identify", "reset", "next_error", "set_voltage", "set_current_limit", "output",
+        "output_query", "measure", "measure_fields",
+    }  # fmt: skip
+
+
+def _nullable(annotation) -> bool:
+    return type(None) in getattr(annotation, "__args__", ())
+
+
+@pytest.mark.parametrize(
+    ("file", "load", "old", "new", "said"),
+    [
+        ("scpi1999.yaml", dialect.load_dialect, "identify:", "identfy:",
+         "key 'identfy': unknown key; did you mean 'identify'?"),
+        ("scpi1999.yaml", dialect.load_dialect, "measure_fields:", "measure_field:",
+         "key 'measure_field': unknown key; did you mean 'measure_fields'?"),
+        ("chamber_text.yaml", chamber_dialect.load_chamber_dialect, "set_point:", "setpoint:",
+         "key 'setpoint': unknown key; did you mean 'set_point'?"),
+        ("chamber_text.yaml", chamber_dialect.load_chamber_dialect, "start: ", "start: 5 #",
+         "key 'start': must be text (got 5)"),
+    ],
+)  # fmt: skip
+def test_a_dialect_key_is_checked_by_the_format_at_its_line(tmp_path, file, load, old, new, said):
+    text = (ROOT / "instruments/dialects" / file).read_text(encoding="utf-8")
+    path = tmp_path / file
+    path.write_text(text.replace(old, new, 1))
+    with pytest.raises(dialect.DialectError) as caught:
+        load(path)
+    assert str(caught.value).startswith(f"{path}:{_line_of(text, old)}: {said}")
 
 
 # --- start-up -----------------------------------------------------------------------------------

@@ -212,8 +212,8 @@ class Judge(Section):
         Number, rule(lambda v: 0.5 <= v <= 0.999, "must be 0.5 to 0.999 (got {v})"),
         bounds(0.5, 0.999),
     ] = setting("the coverage probability the factor k gives", 0.95)  # fmt: skip
-    shape: Shape = setting("classification thresholds", Shape())
-    limits: FigureLimits = setting("the figures' pass limits", FigureLimits())  # type: ignore[valid-type]
+    shape: Shape = setting("classification thresholds", {})
+    limits: FigureLimits = setting("the figures' pass limits", {})  # type: ignore[valid-type]
     bins: Annotated[list[Bin], BeforeValidator(_some_bins)] | None = setting(  # type: ignore[valid-type]
         "the bins, first match wins; the last must be a catch-all of class fail (default: "
         "pass, guard band, open/short, other failures, aborted)",

@@ -14,7 +14,9 @@ from typing import Annotated, Any, Union
 from pydantic import (
     AfterValidator,
     BeforeValidator,
+    ConfigDict,
     Discriminator,
+    Field,
     Tag,
     WithJsonSchema,
     model_validator,
@@ -149,25 +151,7 @@ class Figures(Section):
     on_compliance: OnCompliance = setting(ON_COMPLIANCE_MEANING, "flag")
 
 
-class SweepItem(Section):
-    sweep: Sweep = setting("a sweep step")
-
-
-class SpotItem(Section):
-    spot: Spot = setting("a spot step")
-
-
-class FiguresItem(Section):
-    figures: Figures = setting("a figures step")
-
-
 STEP_KINDS = ("sweep", "spot", "figures")
-
-
-def _step_kind(value: Any) -> str | None:
-    if isinstance(value, dict) and len(value) == 1:
-        return f"~{next(iter(value))}"
-    return None
 
 
 def _one_step(value: Any) -> Any:
@@ -179,15 +163,24 @@ def _one_step(value: Any) -> Any:
     return value
 
 
-Step = Annotated[
-    Union[  # noqa: UP007
-        Annotated[SweepItem, Tag("~sweep")],
-        Annotated[SpotItem, Tag("~spot")],
-        Annotated[FiguresItem, Tag("~figures")],
-    ],
-    Discriminator(_step_kind),
-    BeforeValidator(_one_step),
-]
+class Step(Section):
+    """One step: a mapping of one key, its kind. (One model with three optional keys rather
+    than a union of three, so an editor's message points inside the step, at the wrong key.)"""
+
+    model_config = ConfigDict(json_schema_extra={"minProperties": 1, "maxProperties": 1})
+
+    sweep: Sweep = Field(None, description="a sweep step: the I-V curve, level by level")
+    spot: Spot = Field(None, description="a spot step: repeated readings at one level")
+    figures: Figures = Field(None, description="a production step: only what the judge needs")
+
+    @model_validator(mode="before")
+    @classmethod
+    def _one_kind(cls, data: Any) -> Any:
+        return _one_step(data)
+
+    @property
+    def kind(self) -> str:
+        return next(k for k in STEP_KINDS if getattr(self, k) is not None)
 
 
 def _some_steps(value: Any) -> Any:
@@ -198,19 +191,21 @@ def _some_steps(value: Any) -> Any:
 
 # --- the run's own rules ------------------------------------------------------------------------
 
-PositiveAsWritten = rule(lambda v: v > 0, "must be positive (got {raw!r})")
+
+def _positive(unit: str) -> Any:
+    return rule(lambda v: v > 0, f"must be positive (got {{v}} {unit})")
 
 
 class RecipeLimits(Section):
     """`limits:` — tighter limits for this product; never above the station's."""
 
-    max_voltage: Annotated[Voltage, PositiveAsWritten] | None = setting(
+    max_voltage: Annotated[Voltage, _positive("V")] | None = setting(
         "the highest level this recipe may set", None
     )
-    max_current: Annotated[Current, PositiveAsWritten] | None = setting(
+    max_current: Annotated[Current, _positive("A")] | None = setting(
         "the highest compliance this recipe may set", None
     )
-    max_power: Annotated[Power, PositiveAsWritten] | None = setting(
+    max_power: Annotated[Power, _positive("W")] | None = setting(
         "the most power, |V| x compliance, this recipe may deliver", None
     )
 
@@ -218,13 +213,13 @@ class RecipeLimits(Section):
 class Ratings(Section):
     """`ratings:` — the device type's absolute maximum ratings (its data sheet)."""
 
-    peak_operating_voltage: Annotated[Voltage, PositiveAsWritten] | None = setting(
+    peak_operating_voltage: Annotated[Voltage, _positive("V")] | None = setting(
         "no level above this", None
     )
-    max_dissipation: Annotated[Power, PositiveAsWritten] | None = setting(
+    max_dissipation: Annotated[Power, _positive("W")] | None = setting(
         "the most a device may dissipate", None
     )
-    worst_case_current: Annotated[Current, PositiveAsWritten] | None = setting(
+    worst_case_current: Annotated[Current, _positive("A")] | None = setting(
         "the most a good device of the type can draw (then dissipation is V x this)", None
     )
 
@@ -345,7 +340,7 @@ class RecipeFile(Section):
     steps: Annotated[list[Step], BeforeValidator(_some_steps)] = setting(
         "what to measure, in order: sweep, spot or figures steps"
     )
-    judge: Judge = setting("how the readings are judged", Judge())
+    judge: Judge = setting("how the readings are judged", {})
     limits: RecipeLimits | None = setting("tighter limits than the station's", None)
     ratings: Ratings | None = setting("the device type's absolute maximum ratings", None)
     on_trip: choice(ON_TRIP, listed="or") = setting(  # type: ignore[valid-type]

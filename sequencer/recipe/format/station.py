@@ -474,8 +474,8 @@ class StationFile(Section):
         | None
     ) = setting("several SMUs, each with its channels, tested in parallel", None)
     limits: StationLimits = setting("the station's absolute limits")
-    fixture: Fixture = setting("the device holder", Fixture())
-    simulator: Simulator = setting("the simulated lot (resource: sim only)", Simulator())
+    fixture: Fixture = setting("the device holder", {})
+    simulator: Simulator = setting("the simulated lot (resource: sim only)", {})
     accuracy: Accuracy | None = setting("what the SMU measures to (default: built-in table)", None)
     results_database: SharedStore | None = setting(
         "a shared PostgreSQL results store besides the run folder: a URL or {url, wait_at_end}",
