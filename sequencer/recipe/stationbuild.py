@@ -96,7 +96,15 @@ def simulator_options(sim: form.Simulator) -> tuple[tuple[str, object], ...]:
 def _fault(fault: Any) -> object:
     if isinstance(fault, str):
         return fault
-    return fault.model_dump(exclude_unset=True)
+    return written(fault)
+
+
+def written(section: Any) -> dict[str, Any]:
+    """The keys a file wrote in a section, in the format's order, with their values as
+    validated (a number as written: the simulators read them)."""
+    return {
+        k: getattr(section, k) for k in type(section).model_fields if k in section.model_fields_set
+    }
 
 
 def accuracy(section: form.Accuracy | None) -> Accuracy:
@@ -129,8 +137,7 @@ def chamber(section: form.Chamber | None) -> ChamberSpec | None:
         ()
         if sim is None
         else tuple(
-            (key, tuple(value) if key == "faults" else value)
-            for key, value in sim.model_dump(exclude_unset=True).items()
+            (key, tuple(value) if key == "faults" else value) for key, value in written(sim).items()
         )
     )
     return ChamberSpec(

@@ -280,3 +280,21 @@ def test_the_help_does_not_import_pydantic():
     )
     run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
     assert run.stdout.strip() == "False", run.stderr
+
+
+def test_simulator_settings_reach_the_simulators_as_written(tmp_path):
+    """The simulators read these numbers themselves: 3 stays 3, not 3.0 (and no warning)."""
+    faults = "  faults:\n    - {kind: close, on: 'READ?', after: 3, chance: 0.5}\n"
+    chamber = (
+        "chamber: {resource: sim, lowest: -40 degC, highest: 125 degC, rate: 5 K/min, "
+        "safe: 25 degC, simulator: {speed: 600, room: 21.5}}\n"
+    )
+    path = tmp_path / "s.yaml"
+    path.write_text(STATION.replace("  clock: real\n", "  clock: real\n" + faults) + chamber)
+    station = load_station(path)
+    (fault,) = station.simulator_options["faults"]
+    assert fault == {"kind": "close", "on": "READ?", "after": 3, "chance": 0.5}
+    assert type(fault["after"]) is int and type(station.simulator_options["seed"]) is int
+    assert station.chamber is not None
+    assert station.chamber.simulator_options == {"speed": 600, "room": 21.5}
+    assert type(station.chamber.simulator_options["speed"]) is int

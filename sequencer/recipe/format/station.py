@@ -13,6 +13,7 @@ from pydantic import (
     AfterValidator,
     BeforeValidator,
     Discriminator,
+    PlainValidator,
     Strict,
     Tag,
     WithJsonSchema,
@@ -241,9 +242,10 @@ class Fixture(Section):
 FAULT_KINDS = ("no-reply", "late-reply", "close", "garbage")
 FAULT_KINDS += ("error", "lid-open", "device-open", "device-short")
 FAULT_KEYS = ("kind", "on", "after", "channel", "delay", "code", "count", "chance")
+# A fault's setting as written (3 stays 3: the simulator reads it), a number or text.
 Scalar = Annotated[
     str | float,
-    BeforeValidator(lambda v: _scalar(v)),
+    PlainValidator(lambda v: _scalar(v)),
     WithJsonSchema({"type": ["string", "number"]}),
 ]
 
