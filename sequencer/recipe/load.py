@@ -157,7 +157,7 @@ def load_recipe(path: Path, *, station_path: Path | None = None) -> Recipe:
         recipe.product,
         recipe.lot,
         station,
-        float(recipe.nplc),
+        recipe.nplc,
         steps,
         judge,
         recipe.operator,

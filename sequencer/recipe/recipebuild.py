@@ -44,16 +44,16 @@ def steps(source: Source, items: list[Any]) -> tuple[Step, ...]:
 def _step(item: Any, index: int) -> Step:
     if item.kind == "sweep":
         s = item.sweep
-        name = s.name or f"sweep{index + 1}"
+        name = f"sweep{index + 1}" if s.name is None else s.name
         return SweepStep(name, s.start, s.stop, s.level_count, s.compliance, s.settle,
                          s.on_compliance)  # fmt: skip
     if item.kind == "spot":
         p = item.spot
-        name = p.name or f"spot{index + 1}"
+        name = f"spot{index + 1}" if p.name is None else p.name
         return SpotStep(name, p.voltage, p.compliance, p.repeats, p.settle, p.on_compliance)
     f = item.figures
     return FiguresStep(
-        f.name or f"figures{index + 1}",
+        f"figures{index + 1}" if f.name is None else f.name,
         f.compliance,
         f.settle,
         f.test_window_readings,

@@ -28,7 +28,9 @@ def instrument_specs(
         assert station.instrument is not None and station.tray is not None  # the format's rule
         return (_spec("smu", station.instrument, station.tray.channels, folder),)
     specs = tuple(
-        _spec(entry.name or f"smu{index + 1}", entry, entry.channels, folder)
+        _spec(
+            f"smu{index + 1}" if entry.name is None else entry.name, entry, entry.channels, folder
+        )
         for index, entry in enumerate(station.instruments)
     )
     check_instruments_together(source, specs)

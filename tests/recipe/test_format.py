@@ -298,3 +298,13 @@ def test_simulator_settings_reach_the_simulators_as_written(tmp_path):
     assert station.chamber is not None
     assert station.chamber.simulator_options == {"speed": 600, "room": 21.5}
     assert type(station.chamber.simulator_options["speed"]) is int
+
+
+def test_written_values_reach_the_dataclasses_as_before(tmp_path):
+    """What the hand-written loader gave: a name written empty stays empty (a default only for
+    a name left out), nplc as written."""
+    text = DEMO.replace("      name: iv\n", "      name: ''\n").replace("nplc: 0.1", "nplc: 1")
+    recipe = load_recipe(_recipe(tmp_path, text))
+    assert recipe.steps[0].name == "" and recipe.nplc == 1 and type(recipe.nplc) is int
+    text = DEMO.replace("      name: iv\n", "")
+    assert load_recipe(_recipe(tmp_path, text)).steps[0].name == "sweep1"
