@@ -32,7 +32,8 @@ def page() -> str:
     parts = [INTRO]
     for kind in KINDS:
         root = schema(kind)
-        parts.append(f"\n## {root['title'].removeprefix('ccbench ').capitalize()}\n")
+        title = root["title"].removeprefix("ccbench ")
+        parts.append(f"\n## {title[:1].upper()}{title[1:]}\n")
         for title, rows in _tables(root):
             if title:
                 parts.append(f"\n### {title}\n")
