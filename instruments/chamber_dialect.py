@@ -11,15 +11,11 @@ from dataclasses import dataclass, fields
 from pathlib import Path
 from typing import Any
 
-from instruments.dialect import DIALECT_DIR, check_placeholders, read_mapping
+from instruments.dialect import DIALECT_DIR, check_placeholders, format_error, read_mapping
 from instruments.errors import DialectError
 from instruments.scpi import format_number
 
 PLACEHOLDERS: dict[str, frozenset[str]] = {"set_point": frozenset({"celsius"})}
-REQUIRED = frozenset(
-    {"name", "identify", "set_point", "set_point_query", "read_temperature", "start", "stop"}
-    | {"valid_range_c"}
-)
 _HINT = "fix the chamber dialect file (keys, placeholders as in dialects/chamber_text.yaml)"
 
 
@@ -52,38 +48,36 @@ _TEXT_KEYS = frozenset(_ALL_KEYS) - {"name", "description", "valid_range_c"}
 
 def parse_chamber_dialect(text: str, source: str | Path = "<text>") -> ChamberDialect:
     """Validate chamber dialect YAML text; errors name `source`, key and line."""
+    # Start-up speed: the format builds a pydantic model at import; only loading a file needs it.
+    from instruments.dialectformat import ChamberDialect as Format
+    from instruments.dialectformat import first_problem
+
     data, lines = read_mapping(text, source)
-    last_line = max(lines.values(), default=None)
-    for key in data:
-        if key not in _ALL_KEYS:
-            detail = f"unknown key (known keys: {', '.join(_ALL_KEYS)})"
-            raise DialectError(source, str(key), lines.get(str(key)), detail, hint=_HINT)
-    for key in _ALL_KEYS:
-        if key not in data:
-            raise DialectError(source, key, last_line, "missing (write null if not supported)")
+    problem = first_problem(Format, data)
+    if problem is not None:
+        raise format_error(problem, _ALL_KEYS, lines, source, VALUE_WORDS, hint=_HINT)
     values = {key: _value(key, data[key], lines.get(key), source) for key in _ALL_KEYS}
     return ChamberDialect(**values, source=str(source))
 
 
+RANGE_WORDS = "must be [lowest, highest] in degC, lowest below highest (got {value!r})"
+VALUE_WORDS = {"valid_range_c": RANGE_WORDS}
+
+
 def _value(key: str, value: Any, line: int | None, source: str | Path) -> Any:
+    """A value the format has checked, with its placeholders and range order checked."""
     if value is None:
-        if key in REQUIRED:
-            raise DialectError(source, key, line, "must not be null: the driver needs it")
         return None
     if key == "valid_range_c":
         return _range(value, line, source)
-    if not isinstance(value, str) or not value.strip():
-        raise DialectError(source, key, line, f"must be text (got {value!r})", hint=_HINT)
     if key in _TEXT_KEYS:
         check_placeholders(key, value, line, source, PLACEHOLDERS)
     return value
 
 
 def _range(value: Any, line: int | None, source: str | Path) -> tuple[float, float]:
-    ok = isinstance(value, list) and len(value) == 2
-    ok = ok and all(isinstance(v, int | float) and not isinstance(v, bool) for v in value)
-    if not ok or not all(math.isfinite(v) for v in value) or value[0] >= value[1]:
-        detail = f"must be [lowest, highest] in degC, lowest below highest (got {value!r})"
+    if not all(math.isfinite(v) for v in value) or value[0] >= value[1]:
+        detail = RANGE_WORDS.format(value=value)
         raise DialectError(source, "valid_range_c", line, detail, hint=_HINT)
     return float(value[0]), float(value[1])
 

@@ -6,6 +6,7 @@ and placeholder once, so a wrong file fails at start-up with file, line and key,
 
 from __future__ import annotations
 
+import difflib
 import re
 import string
 from dataclasses import dataclass, fields
@@ -49,12 +50,6 @@ CHANNEL_KEYS = frozenset(
 # Where one of them names a channel, these must all do: an output switched on one channel must
 # never be set, measured or read back on another.
 CHANNEL_CORE = ("set_voltage", "set_current_limit", "output", "output_query", "measure")
-# Operations the driver cannot do without (output_query: every ending reads the output back as
-# off); every other SCPI key may be null (see the driver).
-REQUIRED = frozenset(
-    {"name", "reset", "next_error", "set_voltage", "set_current_limit", "output"}
-    | {"measure", "measure_fields", "output_query"}
-)
 MEASURE_FIELD_NAMES = frozenset({"voltage", "current", "status", "errors", "ignore"})
 FETCH_FIELD_NAMES = frozenset({"voltage", "current", "status", "ignore"})
 # Keys added for source lists, the reading buffer and binary blocks: a dialect file written
@@ -323,33 +318,74 @@ def _yaml_line(exc: yaml.YAMLError) -> int | None:
 
 
 def _check_keys(data: dict[Any, Any], lines: dict[str, int], source: str | Path) -> None:
-    for key in data:
-        if key not in _ALL_KEYS:
-            detail = f"unknown key (known keys: {', '.join(_ALL_KEYS)})"
-            raise DialectError(source, str(key), lines.get(str(key)), detail)
-    last_line = max(lines.values(), default=None)
-    for key in _ALL_KEYS:
-        if key not in data and key not in OPTIONAL_KEYS:
-            raise DialectError(source, key, last_line, "missing (write null if not supported)")
+    """Keys and types, as the dialect format (instruments.dialectformat) describes them."""
+    # Start-up speed: the format builds a pydantic model at import; only loading a file needs it.
+    from instruments.dialectformat import SmuDialect, first_problem
+
+    problem = first_problem(SmuDialect, data)
+    if problem is not None:
+        raise format_error(problem, _ALL_KEYS, lines, source, VALUE_WORDS)
+
+
+# What a key of the wrong type or range must be ({value!r}: what was written).
+VALUE_WORDS = {
+    "measure_fields": "must be a list of field names",
+    "fetch_fields": "must be a list of field names",
+    "setup": "must be a list of SCPI commands (text)",
+    "clamp_fraction": "must be a number from 0.5 to 1 (got {value!r}): the fraction of the "
+    "current limit from which a reading counts as clamped",
+    **dict.fromkeys(
+        ("binary_big_endian", "boolean_words", "error_text_quoted", "status_as_float"),
+        "must be true or false (got {value!r})",
+    ),
+    **dict.fromkeys(
+        ("list_max_points", "max_message_bytes"), "must be a whole number >= 1 (got {value!r})"
+    ),
+    **dict.fromkeys(
+        ("compliance_bit", "list_compliance_bit"), "must be a bit number 0..15 (got {value!r})"
+    ),
+    **dict.fromkeys(
+        ("read_termination", "write_termination"),
+        f"must be one of {', '.join(TERMINATOR_NAMES)} (got {{value!r}})",
+    ),
+    "binary_bits": "must be 32 or 64 (got {value!r})",
+}
+
+
+def format_error(
+    problem: Any,
+    known: tuple[str, ...],
+    lines: dict[str, int],
+    source: str | Path,
+    words: dict[str, str],
+    hint: str | None = None,
+) -> DialectError:
+    """A dialectformat.Problem as the one-line DialectError of its key and line."""
+    key, line = problem.key, lines.get(problem.key)
+    if problem.kind == "unknown":
+        near = difflib.get_close_matches(key, known, n=1, cutoff=0.75)
+        detail = (
+            f"unknown key; did you mean {near[0]!r}?"
+            if near
+            else (f"unknown key (known keys: {', '.join(known)})")
+        )
+    elif problem.kind == "missing":
+        line = max(lines.values(), default=None)
+        detail = "missing (write null if not supported)"
+    elif problem.kind == "null":
+        detail = "must not be null: the driver needs it"
+    else:
+        detail = words.get(key, "must be text (got {value!r})").format(value=problem.value)
+    return DialectError(source, key, line, detail, hint=hint)
 
 
 def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> Any:
+    """A value the format has checked, in the form the driver takes (tuples, floats), with the
+    placeholders of its text checked."""
     if value is None:
-        if key in REQUIRED:
-            raise DialectError(source, key, line, "must not be null: the driver needs it")
         return None
     if key in ("measure_fields", "fetch_fields"):
-        if not (isinstance(value, list) and all(isinstance(v, str) for v in value)):
-            raise DialectError(source, key, line, "must be a list of field names")
         return tuple(value)
-    if key in ("binary_big_endian", "boolean_words", "error_text_quoted", "status_as_float"):
-        if not isinstance(value, bool):
-            raise DialectError(source, key, line, f"must be true or false (got {value!r})")
-        return value
-    if key in ("list_max_points", "max_message_bytes"):
-        if isinstance(value, bool) or not isinstance(value, int) or value < 1:
-            raise DialectError(source, key, line, f"must be a whole number >= 1 (got {value!r})")
-        return value
     if key == "setup":
         return _check_setup(value, line, source)
     if key in ("read_termination", "write_termination"):
@@ -362,26 +398,13 @@ def _check_value(key: str, value: Any, line: int | None, source: str | Path) -> 
             raise DialectError(source, key, line, f"must be 32 or 64 (got {value!r})")
         return value
     if key == "clamp_fraction":
-        number = value if isinstance(value, (int, float)) and not isinstance(value, bool) else None
-        if number is None or not 0.5 <= number <= 1.0:
-            detail = f"must be a number from 0.5 to 1 (got {value!r}): the fraction of the "
-            detail += "current limit from which a reading counts as clamped"
-            raise DialectError(source, key, line, detail)
-        return float(number)
-    if key in ("compliance_bit", "list_compliance_bit"):
-        if isinstance(value, bool) or not isinstance(value, int) or not 0 <= value <= 15:
-            raise DialectError(source, key, line, f"must be a bit number 0..15 (got {value!r})")
-        return value
-    if not isinstance(value, str) or not value.strip():
-        raise DialectError(source, key, line, f"must be text (got {value!r})")
+        return float(value)
     if key in _TEXT_KEYS:
         check_placeholders(key, value, line, source)
     return value
 
 
 def _check_setup(value: Any, line: int | None, source: str | Path) -> tuple[str, ...]:
-    if not isinstance(value, list) or not all(isinstance(v, str) and v.strip() for v in value):
-        raise DialectError(source, "setup", line, "must be a list of SCPI commands (text)")
     for command in value:
         if "{" in command or "}" in command:
             raise DialectError(source, "setup", line, f"takes no placeholders (got {command!r})")

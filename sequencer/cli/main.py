@@ -36,6 +36,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "status": ("statuscmd", "how a run stands: progress, output, ending, ETA"),
     "study": ("studycmd", "gauge study or station comparison from stored runs"),
     "upload": ("uploadcmd", "send run folders' results to the shared database"),
+    "schema": ("schemacmd", "print the JSON Schema of a recipe, station or dialect"),
     "probe": ("probecmd", "try a station's instrument and dialect key by key, the output off"),
     "sim": ("simcmd", "serve the simulated SMU standalone over TCP"),
 }
@@ -75,6 +76,10 @@ def command_module(key: str) -> tuple[Adder, dict[str, Handler]]:
         from sequencer.cli import uploadcmd as m  # start-up speed: loads the shared store
 
         return m.add_parser, {"upload": m.cmd_upload}
+    if key == "schemacmd":
+        from sequencer.cli import schemacmd as m  # start-up speed: pydantic loads in the command
+
+        return m.add_parser, {"schema": m.cmd_schema}
     if key == "probecmd":
         from sequencer.cli import probecmd as m  # start-up speed: loads the instruments
 

@@ -1,6 +1,7 @@
 """What the judge computes, against which limits, under which decision rule, into which bins.
 
-Frozen dataclasses of SI floats; `judgeconfig` reads them from a recipe's `judge:` section.
+Frozen dataclasses of SI floats; the recipe format reads them from a recipe's `judge:` section
+(sequencer.recipe.format.recipe, recipebuild).
 Defaults are the trade's usual conditions: test voltage 25 V, knee voltage 6 V, limiting voltage
 at 0.8 x the measured regulated current (REFERENCES.md s1, [src: MIL-PRF-19500/463 as reproduced
 in data sheets]).

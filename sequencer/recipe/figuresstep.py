@@ -3,8 +3,8 @@
 Where a `sweep:` step walks the whole I-V curve, a `figures:` step reads each impedance window
 at its edges (and centre), the peak and reverse levels the judge section names, and searches
 for the limiting voltage on a few points chosen at run time (sequencer.plan.kneesearch). The levels
-follow from the recipe's `judge:` section (sequencer.plan.production); this module only reads the
-step's own settings.
+follow from the recipe's `judge:` section (sequencer.plan.production); the step's settings are read
+by the recipe format (sequencer.recipe.format.recipe).
 
     - figures:
         name: production
@@ -22,15 +22,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from sequencer.recipe.fields import Fields, positive
-from sequencer.recipe.limits import ON_COMPLIANCE, parse_choice
-
 if TYPE_CHECKING:
     from sequencer.model.judgesettings import JudgeSettings
     from sequencer.recipe.yamlsource import Source
-
-MAX_WINDOW_READINGS = 50
-MAX_SEARCH_POINTS = 30
 
 
 @dataclass(frozen=True)
@@ -58,41 +52,6 @@ class FiguresStep:
             raise ValueError("knee_resolution_v must be positive")
 
 
-def parse_figures(f: Fields, index: int) -> FiguresStep:
-    """Read one `figures:` mapping; every problem names file, line and field."""
-    name = f.text("name", f"figures{index + 1}")
-    compliance = positive(f, "compliance", "current")
-    settle = f.quantity("settle", "time", "0 s")
-    f.check(0 <= settle <= 10, "settle", f"must be 0 to 10 s (got {settle} s)")
-    readings = {key: _count(f, key, 3, 3, MAX_WINDOW_READINGS) for key in _WINDOW_KEYS}
-    repeats = _count(f, "repeats", 0, 0, 10_000)
-    resolution = positive(f, "knee_resolution", "voltage", "0.5 V")
-    typical = f.optional_quantity("typical_limiting_voltage", "voltage")
-    f.check(typical is None or typical > 0, "typical_limiting_voltage", "must be positive")
-    start = f.quantity("search_from", "voltage", "0 V")
-    f.check(start >= 0, "search_from", f"must be 0 V or more (got {start} V)")
-    most = _count(f, "max_search_points", 8, 2, MAX_SEARCH_POINTS)
-    clamp = parse_choice(f.source, f.where("on_compliance"), f.raw("on_compliance", "flag"),
-                         ON_COMPLIANCE)  # fmt: skip
-    f.finish()
-    return FiguresStep(
-        name,
-        compliance,
-        settle,
-        readings["test_window_readings"],
-        readings["knee_window_readings"],
-        repeats,
-        resolution,
-        typical,
-        start,
-        most,
-        clamp,
-    )
-
-
-_WINDOW_KEYS = ("test_window_readings", "knee_window_readings")
-
-
 def check_against_judge(source: Source, steps: tuple[object, ...], judge: JudgeSettings) -> None:
     """A `figures:` step's search must lie below the knee window the judge section sets."""
     edge = judge.knee_voltage_v - judge.knee_window / 2
@@ -111,9 +70,3 @@ def check_against_judge(source: Source, steps: tuple[object, ...], judge: JudgeS
                 f"lower edge ({edge:g} V) (got {typical:g} V)"
             )
             raise source.error(f"{where}.typical_limiting_voltage", problem)
-
-
-def _count(f: Fields, key: str, default: int, least: int, most: int) -> int:
-    value = int(f.number(key, default, integer=True))
-    f.check(least <= value <= most, key, f"must be {least} to {most} (got {value})")
-    return value

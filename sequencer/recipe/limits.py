@@ -13,13 +13,9 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Any
 
 from sequencer.model.errors import RecipeError
 from sequencer.model.units import format_si
-from sequencer.recipe.fields import Fields, positive
-from sequencer.recipe.units import UnitProblem, parse_quantity
-from sequencer.recipe.yamlsource import Source
 
 # Ceilings no station may set a limit above: (key, kind, attribute, unit, ceiling). ccbench
 # drives bench SMUs for two-terminal regulators; a source beyond these is another kind of bench
@@ -33,10 +29,6 @@ TOUCH_SAFE_DEFAULT_V = 42.0  # common practice, no source (README "Safety")
 # IEC 61010-1: accessible parts are hazardous live above 70 V d.c. (from memory; REFERENCES.md
 # s4). A station may set its touch-safe voltage above it only with a stated reason.
 HAZARDOUS_DC_V = 70.0
-
-ON_TRIP = ("stop", "skip")
-ON_COMPLIANCE = ("flag", "trip")
-ACKNOWLEDGED = "acknowledged"
 
 
 @dataclass(frozen=True)
@@ -176,31 +168,6 @@ def as_effective(limits: Limits | EffectiveLimits) -> EffectiveLimits:
 # --- the station's limits ---------------------------------------------------------------------
 
 
-def parse_station_limits(f: Fields) -> dict[str, Any]:
-    """The station's `limits:` as keyword arguments of recipe.Limits, each rule of
-    `station_limits_problem` refused with file:line."""
-    found: dict[str, Any] = {}
-    for key, kind, attr, unit, ceiling in STATION_CEILINGS:
-        value = positive(f, key, kind)
-        f.check(value <= ceiling, key, f"must be at most {format_si(ceiling, unit)}, the most "
-                f"ccbench drives (got {format_si(value, unit)})")  # fmt: skip
-        found[attr] = value
-    most_v = found["max_voltage_v"]
-    # Unwritten, the touch-safe voltage is the usual 42 V, or the station's maximum if lower.
-    touch = positive(f, "touch_safe_voltage", "voltage", min(TOUCH_SAFE_DEFAULT_V, most_v))
-    reason = f.text("touch_safe_reason", "").strip()
-    f.check(touch <= most_v, "touch_safe_voltage", f"must not exceed max_voltage "
-            f"({format_si(most_v, 'V')}; got {format_si(touch, 'V')})")  # fmt: skip
-    f.check(
-        touch <= HAZARDOUS_DC_V or bool(reason),
-        "touch_safe_voltage",
-        f"must be at most {HAZARDOUS_DC_V:g} V, the d.c. level above which IEC 61010-1 calls "
-        f"accessible parts hazardous live (got {format_si(touch, 'V')}); if this station is "
-        "safe to touch above it, say why in 'touch_safe_reason:' beside it",
-    )
-    return found | {"touch_safe_v": touch, "touch_safe_reason": reason}
-
-
 def station_limits_problem(limits: Limits) -> str | None:
     """What is wrong with a station's limits however they were built, or None."""
     for _, _, attr, unit, ceiling in STATION_CEILINGS:
@@ -215,7 +182,7 @@ def station_limits_problem(limits: Limits) -> str | None:
     return None
 
 
-# --- reading the recipe's sections ------------------------------------------------------------
+# --- refusals ---------------------------------------------------------------------------------
 
 
 class LimitRaised(RecipeError):
@@ -223,86 +190,3 @@ class LimitRaised(RecipeError):
     refusal (exit code 3)."""
 
     exit_code = 3
-
-
-def _quantity(source: Source, path: str, value: Any, kind: str) -> float:
-    try:
-        number = parse_quantity(value, kind)
-    except UnitProblem as exc:
-        raise source.error(path, str(exc)) from None
-    if not (math.isfinite(number) and number > 0):
-        raise source.error(path, f"must be positive (got {value!r})")
-    return number
-
-
-def _section(source: Source, path: str, value: Any, known: tuple[str, ...]) -> dict[str, Any]:
-    if value is None:
-        return {}
-    if not isinstance(value, dict):
-        raise source.error(path, f"must be a mapping of settings (got {type(value).__name__})")
-    for key in value:
-        if key not in known:
-            listed = ", ".join(known)
-            raise source.error(f"{path}.{key}", f"is not a known setting here (known: {listed})")
-    return value
-
-
-RECIPE_LIMIT_KEYS = (
-    ("max_voltage", "voltage", "max_voltage_v", "V"),
-    ("max_current", "current", "max_current_a", "A"),
-    ("max_power", "power", "max_power_w", "W"),
-)
-
-
-def parse_recipe_limits(source: Source, value: Any, station: Limits) -> RecipeLimits:
-    """The recipe's `limits:`; a value above the station's own is refused with file:line."""
-    data = _section(source, "limits", value, tuple(k for k, *_ in RECIPE_LIMIT_KEYS))
-    found: dict[str, float] = {}
-    for key, kind, attr, unit in RECIPE_LIMIT_KEYS:
-        if key not in data:
-            continue
-        path = f"limits.{key}"
-        number = _quantity(source, path, data[key], kind)
-        ceiling = getattr(station, attr)
-        if number > ceiling:
-            problem = (
-                f"must be at most {format_si(ceiling, unit)}, the station's limit (got "
-                f"{format_si(number, unit)}); a recipe can lower a station limit, never raise it"
-            )
-            raise LimitRaised(source.file, source.line(path), path, problem)
-        found[attr] = number
-    return RecipeLimits(**found)
-
-
-RATING_KEYS = (
-    ("peak_operating_voltage", "voltage", "peak_operating_voltage_v"),
-    ("max_dissipation", "power", "max_dissipation_w"),
-    ("worst_case_current", "current", "worst_case_current_a"),
-)
-
-
-def parse_ratings(source: Source, value: Any) -> Ratings:
-    data = _section(source, "ratings", value, tuple(k for k, *_ in RATING_KEYS))
-    found = {
-        attr: _quantity(source, f"ratings.{key}", data[key], kind)
-        for key, kind, attr in RATING_KEYS
-        if key in data
-    }
-    return Ratings(**found)
-
-
-def parse_choice(source: Source, path: str, value: Any, choices: tuple[str, ...]) -> str:
-    if value not in choices:
-        listed = " or ".join(repr(c) for c in choices)
-        raise source.error(path, f"must be {listed} (got {value!r})")
-    return value
-
-
-def parse_acknowledgement(source: Source, value: Any) -> bool:
-    """`hazardous_voltage: acknowledged`; anything else written there is a mistake."""
-    if value is None:
-        return False
-    if value != ACKNOWLEDGED:
-        problem = f"must be '{ACKNOWLEDGED}' or left out (got {value!r})"
-        raise source.error("hazardous_voltage", problem)
-    return True

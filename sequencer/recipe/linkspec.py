@@ -20,8 +20,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-from sequencer.recipe.fields import Fields
-
+# The keys are described (and checked) in sequencer.recipe.format.station; these are their values.
 TERMINATORS = ("LF", "CR", "CRLF")
 BAUDS = (300, 600, 1200, 2400, 4800, 9600, 19200, 38400, 57600, 115200, 230400, 460800, 921600)
 PARITIES = ("none", "odd", "even", "mark", "space")
@@ -55,39 +54,3 @@ class LinkSettings:
 
 
 NO_LINK_SETTINGS = LinkSettings()  # the defaults: "@py", the dialect's terminators, no serial
-
-
-def parse_link(f: Fields, resource: str) -> LinkSettings:
-    """The link keys of one instrument entry (the others are read by instrumentspec)."""
-    library = f.text("visa_library", "@py")
-    terms = []
-    for key in ("read_termination", "write_termination"):
-        value = f.raw(key, None)
-        f.check(value is None or value in TERMINATORS, key, f"must be LF, CR or CRLF ({value!r})")
-        terms.append(value)
-    serial = None
-    if "serial" in f.data:
-        f.check(_is_serial(resource), "serial", f"is for serial (ASRL) resources, not {resource}")
-        serial = _serial(Fields.at(f.source, f.where("serial"), f.raw("serial")))
-    return LinkSettings(library, terms[0], terms[1], serial)
-
-
-def _is_serial(resource: str) -> bool:
-    return resource.upper().startswith("ASRL")
-
-
-def _serial(f: Fields) -> SerialSettings:
-    baud = f.raw("baud", 9600)
-    f.check(baud in BAUDS and not isinstance(baud, bool), "baud", f"must be one of {BAUDS}")
-    bits = f.raw("data_bits", 8)
-    f.check(bits in (5, 6, 7, 8) and not isinstance(bits, bool), "data_bits", "must be 5 to 8")
-    parity = f.raw("parity", "none")
-    f.check(parity in PARITIES, "parity", f"must be one of {', '.join(PARITIES)}")
-    stop = f.raw("stop_bits", 1)
-    f.check(stop in STOP_BITS and not isinstance(stop, bool), "stop_bits", "must be 1, 1.5 or 2")
-    flow = f.raw("flow_control", "none")
-    f.check(flow in FLOW_CONTROLS, "flow_control", f"must be one of {', '.join(FLOW_CONTROLS)}")
-    echo = f.raw("echo", False)
-    f.check(isinstance(echo, bool), "echo", "must be true or false")
-    f.finish()
-    return SerialSettings(baud, bits, parity, stop, flow, echo)

@@ -19,9 +19,6 @@ from typing import Any
 from sequencer.model.errors import RecipeError
 from sequencer.model.units import format_si
 from sequencer.recipe.units import UnitProblem, parse_quantity
-from sequencer.recipe.yamlsource import Source
-
-KEYS = ("every", "for", "passes")
 
 
 @dataclass(frozen=True)
@@ -64,37 +61,6 @@ def _duration(seconds: float) -> str:
         if seconds >= size and (seconds / size) == round(seconds / size, 3):
             return f"{seconds / size:g} {unit}"
     return format_si(seconds, "s")
-
-
-def parse_repeat(source: Source, value: Any) -> Repeat | None:
-    """The recipe's `repeat:` mapping (None when the recipe has none: one pass)."""
-    if value is None:
-        return None
-    if not isinstance(value, dict):
-        raise source.error("repeat", "must be a mapping, e.g. {every: 10 min, for: 8 h}")
-    for key in value:
-        if key not in KEYS:
-            known = ", ".join(KEYS)
-            raise source.error(f"repeat.{key}", f"is not a known setting here (known: {known})")
-    if "every" not in value:
-        raise source.error("repeat", "needs 'every', e.g. {every: 10 min, for: 8 h}")
-
-    def time(key: str) -> float | None:
-        if key not in value:
-            return None
-        try:
-            return parse_quantity(value[key], "time")
-        except UnitProblem as exc:
-            raise source.error(f"repeat.{key}", str(exc)) from None
-
-    passes = value.get("passes")
-    if passes is not None and (isinstance(passes, bool) or not isinstance(passes, int)):
-        raise source.error("repeat.passes", f"must be a whole number (got {passes!r})")
-    every_s, for_s = time("every") or 0.0, time("for")
-    try:
-        return Repeat(every_s, for_s, passes)
-    except ValueError as exc:
-        raise source.error("repeat", str(exc)) from None
 
 
 def repeat_from_options(

@@ -12,11 +12,7 @@ password: the station text is copied into every run record, so the password belo
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
 from urllib.parse import parse_qsl, urlsplit
-
-from sequencer.recipe.fields import Fields
-from sequencer.recipe.yamlsource import Source
 
 SCHEMES = ("postgresql", "postgres")
 WAIT_AT_END_S = 15.0  # how long the end of a run waits for the last results to reach the database
@@ -66,23 +62,3 @@ def url_problem(url: str) -> str:
     if not parts.path.strip("/"):
         return f"must name the database, e.g. postgresql://ccbench@host/ccbench (got {url!r})"
     return ""
-
-
-def parse_results_database(source: Source, value: Any) -> SharedDatabase | None:
-    """The station's optional `results_database:`, a URL or {url, wait_at_end}."""
-    if value is None:
-        return None
-    where = "results_database"
-    if isinstance(value, str):
-        problem = url_problem(value)
-        if problem:
-            raise source.error(where, problem)
-        return SharedDatabase(value)
-    f = Fields.at(source, where, value)
-    url = f.text("url")
-    problem = url_problem(url)
-    f.check(not problem, "url", problem)
-    wait = f.quantity("wait_at_end", "time", WAIT_AT_END_S)
-    f.check(0 <= wait <= 600, "wait_at_end", f"must be 0 to 600 s (got {wait:g} s)")
-    f.finish()
-    return SharedDatabase(url, wait)

@@ -15,13 +15,9 @@ no completed attempt.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
-from typing import Any
 
-from sequencer.recipe.fields import Fields
-from sequencer.recipe.serials import SerialRule, parse_serials
-from sequencer.recipe.yamlsource import Source
+from sequencer.recipe.serials import SerialRule
 
 RESULTS = ("last", "best", "first")
 
@@ -113,24 +109,3 @@ def stands(attempts: list[Attempt], verdict: str, bin_class: str, policy: Retest
 
 def _named(attempt: Attempt) -> str:
     return f"attempt {attempt.number}, {attempt.verdict}"
-
-
-def parse_part_by_part(source: Source, value: Any) -> RetestPolicy:
-    """The recipe's optional `part_by_part:` section (the defaults when it is left out)."""
-    if value is None:
-        return RetestPolicy()
-    f = Fields.at(source, "part_by_part", value)
-    retests = int(f.number("retests", 1, integer=True))
-    f.check(0 <= retests <= 100, "retests", f"must be 0 to 100 (got {retests})")
-    again = f.raw("retest_passed", False)
-    f.check(isinstance(again, bool), "retest_passed", f"must be true or false (got {again!r})")
-    result = f.choice("result", RESULTS, "last")
-    pattern = f.text("serial_pattern", "")
-    if pattern:
-        try:
-            re.compile(pattern)
-        except re.error as exc:
-            f.check(False, "serial_pattern", f"is not a regular expression ({exc})")
-    serials = parse_serials(source, f.raw("serials", None))
-    f.finish()
-    return RetestPolicy(retests, again, result, pattern, serials)

@@ -15,10 +15,6 @@ the part's earlier attempts instead of becoming a new part.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
-
-from sequencer.recipe.fields import Fields
-from sequencer.recipe.yamlsource import Source
 
 CASES = ("as-scanned", "upper", "lower")
 
@@ -46,14 +42,3 @@ class SerialRule:
         if self.drop:
             parts.append(f"without {self.drop!r}")
         return ", ".join(parts)
-
-
-def parse_serials(source: Source, value: Any) -> SerialRule:
-    """`part_by_part.serials:` (the defaults when it is left out)."""
-    if value is None:
-        return SerialRule()
-    f = Fields.at(source, "part_by_part.serials", value)
-    case = f.choice("case", CASES, "as-scanned")
-    drop = f.text("drop", "", longest=20)
-    f.finish()
-    return SerialRule(case, drop)

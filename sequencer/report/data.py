@@ -27,7 +27,6 @@ import pandas as pd
 
 from sequencer.model.errors import CcbenchError, RecipeError, StoreError, StoreReadError
 from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, JudgeSettings
-from sequencer.recipe.judgeconfig import parse_judge
 from sequencer.recipe.yamlsource import parse_yaml
 from sequencer.store.crosscheck import check_folder
 from sequencer.store.frames import read_frame
@@ -401,6 +400,9 @@ def _judge_of(run) -> tuple[JudgeSettings, str]:
     if not text.strip():
         return JudgeSettings(), f"{run.folder}: no recipe stored with the run; limits unknown"
     try:
+        # Start-up speed: the recipe format builds pydantic models at import; only this reads it.
+        from sequencer.recipe.recipebuild import parse_judge
+
         source = parse_yaml(text, where)
         data = source.data if isinstance(source.data, dict) else {}
         return parse_judge(source, data.get("judge", {})), ""

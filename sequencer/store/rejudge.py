@@ -27,7 +27,6 @@ from sequencer.model.accuracy import DEFAULT_ACCURACY, Accuracy
 from sequencer.model.curve import Curve
 from sequencer.model.errors import RecipeError, StoreError, StoreReadError
 from sequencer.model.judgesettings import FIGURES, JudgeSettings
-from sequencer.recipe.judgeconfig import parse_accuracy
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.yamlsource import parse_yaml
 from sequencer.store.crosscheck import check_folder
@@ -172,6 +171,9 @@ def stored_accuracy(run: StoredRun) -> Accuracy:
         return DEFAULT_ACCURACY
     source = parse_yaml(run.station_text, f"{run.database} (station stored with the run)")
     data = source.data if isinstance(source.data, dict) else {}
+    # Start-up speed: the station format builds pydantic models at import; only this reads it.
+    from sequencer.recipe.stationbuild import parse_accuracy
+
     return parse_accuracy(source, data.get("accuracy"))
 
 

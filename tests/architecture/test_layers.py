@@ -39,6 +39,9 @@ ROOMS = {
     "psycopg": ("sequencer.store.shared.",),
     "simulator": ("simulator.", "instruments.embedded"),
     "pint": ("sequencer.recipe.units",),
+    # The file formats are described once, as pydantic models, beside their loaders.
+    "pydantic": ("sequencer.recipe.", "instruments.dialectformat"),
+    "pydantic_core": ("sequencer.recipe.", "instruments.dialectformat"),
 }
 
 
@@ -192,6 +195,7 @@ def test_every_sequencer_module_is_in_a_layer():
         (("sequencer.run.device", "pyvisa"), out_of_room),
         (("sequencer.report.plots", "psycopg"), out_of_room),
         (("sequencer.bench.lotrun", "simulator"), out_of_room),
+        (("sequencer.plan.make", "pydantic"), out_of_room),
     ],
 )
 def test_a_planted_wrong_way_import_is_caught(planted, check):

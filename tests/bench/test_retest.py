@@ -7,7 +7,8 @@ import pickle
 import pytest
 
 from sequencer.model.errors import RecipeError
-from sequencer.recipe.retest import Attempt, RetestPolicy, admit, parse_part_by_part, stands
+from sequencer.recipe.recipebuild import parse_part_by_part
+from sequencer.recipe.retest import Attempt, RetestPolicy, admit, stands
 from sequencer.recipe.yamlsource import parse_yaml
 
 

@@ -125,9 +125,9 @@ def test_a_station_naming_another_file_does_not_echo_it(tmp_path):
     ("old", "new", "said"),
     [
         ("      compliance: 5 mA\n      settle: 1 ms", "      complance: 5 mA\n      settle: 1 ms",
-         "15: steps[0].sweep.complance is not a known setting; did you mean 'compliance'?"),
-        ("nplc: 0.1", "nplcc: 0.1", "7: nplcc is not a known setting; did you mean 'nplc'?"),
-        ("nplc: 0.1", "NPLC: 0.1", "7: NPLC is not a known setting; did you mean 'nplc'?"),
+         "16: steps[0].sweep.complance is not a known setting; did you mean 'compliance'?"),
+        ("nplc: 0.1", "nplcc: 0.1", "8: nplcc is not a known setting; did you mean 'nplc'?"),
+        ("nplc: 0.1", "NPLC: 0.1", "8: NPLC is not a known setting; did you mean 'nplc'?"),
     ],
 )  # fmt: skip
 def test_an_unknown_key_is_named_at_its_own_line_with_the_nearest_known(tmp_path, old, new, said):

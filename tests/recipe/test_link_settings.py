@@ -54,7 +54,7 @@ def test_left_out_the_link_is_the_default(tmp_path: Path) -> None:
         ("  serial: {stop_bits: 3}\n", "instrument.serial.stop_bits", "1, 1.5 or 2"),
         ("  serial: {echo: yes please}\n", "instrument.serial.echo", "true or false"),
         ("  serial: {speed: 9600}\n", "instrument.serial.speed", "speed"),
-        ("  read_termination: NL\n", "instrument.read_termination", "LF, CR or CRLF"),
+        ("  read_termination: NL\n", "instrument.read_termination", "one of LF, CR, CRLF"),
     ],
 )
 def test_a_bad_link_key_names_its_place(tmp_path: Path, keys: str, where: str, match: str) -> None:

@@ -8,6 +8,7 @@ import pytest
 
 from sequencer.model.errors import RecipeError
 from sequencer.recipe import load as recipe_module
+from sequencer.recipe.format import station as station_format
 from simulator import Session, SimOptions, build_instrument
 from simulator import __main__ as cli
 from simulator.errors import OptionError
@@ -170,8 +171,8 @@ def test_command_line_and_file(tmp_path: Path):
 
 
 def test_station_file_vocabulary_matches_the_simulator():
-    assert recipe_module.FAULT_KINDS == KINDS
-    assert recipe_module.FAULT_KEYS == KEYS
+    assert station_format.FAULT_KINDS == KINDS
+    assert station_format.FAULT_KEYS == KEYS
 
 
 STATION = """station: bench

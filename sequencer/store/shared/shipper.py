@@ -24,7 +24,7 @@ from pathlib import Path
 from typing import Any
 
 from sequencer.model.errors import RecipeError, StoreError
-from sequencer.recipe.resultsdb import SharedDatabase, parse_results_database
+from sequencer.recipe.resultsdb import SharedDatabase
 from sequencer.recipe.yamlsource import parse_yaml
 from sequencer.store.runfolder import MANIFEST_FILE, read_manifest
 from sequencer.store.runstore import JOURNAL_FILE
@@ -254,4 +254,7 @@ def station_database(folder: Path) -> SharedDatabase | None:
     source = parse_yaml(manifest.get("station_text") or "{}", f"{folder}/{MANIFEST_FILE}")
     if not isinstance(source.data, dict):
         return None
+    # Start-up speed: the station format builds pydantic models at import; only this reads it.
+    from sequencer.recipe.stationbuild import parse_results_database
+
     return parse_results_database(source, source.data.get("results_database"))
