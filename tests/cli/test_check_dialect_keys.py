@@ -73,7 +73,7 @@ def test_a_bad_link_key_is_one_line_from_check(
     recipe = _station_with_dialect(tmp_path, text, channels=1)
     done = ccbench("check", str(recipe))
     assert done.returncode == 2, done.stdout + done.stderr
-    lines = done.stdout.strip().splitlines()
+    lines = done.stderr.strip().splitlines()  # not a terminal: the error goes to stderr
     line = next(n for n, t in enumerate(text.splitlines(), 1) if t.startswith(f"{key}:"))
-    assert len(lines) == 1, done.stdout
+    assert len(lines) == 1 and not done.stdout, done.stdout + done.stderr
     assert f"{tmp_path / 'no-switch.yaml'}:{line}: key '{key}'" in lines[0]
