@@ -167,3 +167,16 @@ def test_any_bytes_are_a_recipe_or_one_line(data):
             load_recipe(path)
         except RecipeError as exc:
             _one_line(exc, folder)
+
+
+def test_a_key_of_a_superscript_digit_is_one_line(tmp_path):
+    """Found by the fuzz above: '¹' passes str.isdigit() but not int() (was a traceback)."""
+    recipe = yaml.safe_load(yaml.safe_dump(DEMO))
+    recipe["judge"] = {"¹": None}
+    path = _write(tmp_path, recipe, STATION)
+    try:
+        load_recipe(path)
+    except RecipeError as exc:
+        _one_line(exc, tmp_path)
+    else:
+        raise AssertionError("an unknown judge key was accepted")

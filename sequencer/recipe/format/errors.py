@@ -72,7 +72,7 @@ def as_recipe_error(exc: ValidationError, source: Source, base: str = "") -> Rec
         return source.error(key, "is missing")
     if "at" in ctx:
         loc = [*loc, *str(ctx["at"]).split(".")]
-        loc = [int(part) if isinstance(part, str) and part.isdigit() else part for part in loc]
+        loc = [int(p) if isinstance(p, str) and p.isascii() and p.isdigit() else p for p in loc]
     return source.error(dotted(base, loc), message(first))
 
 

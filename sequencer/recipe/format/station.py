@@ -60,6 +60,11 @@ CEILING = {key: (ceiling, unit) for key, _, _, unit, ceiling in STATION_CEILINGS
 # --- instruments --------------------------------------------------------------------------------
 
 
+def _whole(text: str) -> bool:
+    """ASCII digits only: str.isdigit() also takes '¹' and '٣', which int() refuses or reads."""
+    return text.strip().isascii() and text.strip().isdigit()
+
+
 def _channels(raw: Any) -> tuple[int, ...]:
     """A count (20), a list of channels ([1, 3, 5]) or a range ('1-20')."""
     found: tuple[int, ...] | range | None = None
@@ -69,7 +74,7 @@ def _channels(raw: Any) -> tuple[int, ...]:
         found = tuple(raw)
     elif isinstance(raw, str) and "-" in raw:
         first, _, last = raw.partition("-")
-        if first.strip().isdigit() and last.strip().isdigit() and 0 < int(first) <= int(last):
+        if _whole(first) and _whole(last) and 0 < int(first) <= int(last):
             found = range(int(first), int(last) + 1)
     if found is None:
         raise problem(f"must be a count, a list of channels or a range '1-20' (got {raw!r})")
