@@ -8,6 +8,10 @@ and, apart from those, raw bytes. The oracle for limits is written here from the
 safety rules, not from sequencer.recipe.limits: finite positive limits, station maxima within
 1 kV, 10 A and 1 kW, a touch-safe voltage at most the station's maximum and, without a stated
 reason, at most 70 V d.c. (IEC 61010-1, from memory; REFERENCES.md s4).
+
+The examples are derandomized so that CI sees the same ones each time; to explore further, run
+this file with `-p no:randomly --hypothesis-seed=N` after removing `derandomize` locally, and
+keep what it finds as a test of its own (as the last test here).
 """
 
 from __future__ import annotations
@@ -119,7 +123,9 @@ def _within_rules(station) -> None:
     assert limits.touch_safe_v <= 70 or limits.touch_safe_reason
 
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(
+    max_examples=150, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow]
+)
 @given(recipe=edited(DEMO), station=edited(STATION))
 def test_an_edited_recipe_loads_or_is_refused_in_one_line(recipe, station):
     with tempfile.TemporaryDirectory() as tmp:
@@ -141,7 +147,9 @@ def test_an_edited_recipe_loads_or_is_refused_in_one_line(recipe, station):
             assert math.isfinite(segment.compliance_a) and segment.compliance_a > 0
 
 
-@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(
+    max_examples=150, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow]
+)
 @given(station=edited(STATION))
 def test_an_edited_station_loads_within_the_rules_or_is_refused(station):
     with tempfile.TemporaryDirectory() as tmp:
@@ -156,7 +164,7 @@ def test_an_edited_station_loads_within_the_rules_or_is_refused(station):
         _within_rules(loaded)
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=200, deadline=None, derandomize=True)
 @given(data=st.binary(max_size=400))
 def test_any_bytes_are_a_recipe_or_one_line(data):
     with tempfile.TemporaryDirectory() as tmp:
