@@ -78,6 +78,27 @@ def test_a_journal_line_deleted_is_named(ended, reader):
         READERS[reader](ended)
 
 
+@pytest.mark.parametrize("reader", READERS)
+def test_a_verdict_edited_in_the_journal_alone_is_named_though_the_size_is_the_same(ended, reader):
+    """`"fail"` and `"pass"` are the same length: the size alone would not tell."""
+    journal = ended / "journal.jsonl"
+    text = journal.read_bytes()
+    edited = text.replace(b'"verdict":"pass"', b'"verdict":"fail"', 1)
+    if edited == text:
+        edited = text.replace(b'"verdict":"fail"', b'"verdict":"pass"', 1)
+    assert edited != text and len(edited) == len(text)
+    journal.write_bytes(edited)
+    with pytest.raises(StoreReadError, match=r"journal\.jsonl does not hold the bytes"):
+        READERS[reader](ended)
+
+
+def test_a_run_recorded_before_the_journal_digest_is_checked_by_size(ended):
+    manifest = json.loads((ended / "manifest.json").read_text())
+    del manifest["records"]["journal_sha256"]
+    (ended / "manifest.json").write_text(json.dumps(manifest))
+    assert len(export.load_run(ended)) > 0
+
+
 def test_a_run_that_never_ended_is_read_as_it_is(tmp_path, recipe_file):
     """A crash leaves no end record (its resume checks and brings the files together)."""
     recipe = load(recipe_file)
