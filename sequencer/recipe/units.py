@@ -21,6 +21,8 @@ import re
 from functools import lru_cache
 from typing import TYPE_CHECKING
 
+from sequencer.model.errors import one_line
+
 if TYPE_CHECKING:
     import pint
 
@@ -165,8 +167,8 @@ def _split_number(text: str, value: object, example: str) -> tuple[str, str]:
 
 def _comma_hint(number: str, unit: str = "") -> str:
     """What to write instead of a number with a comma (a decimal comma, or thousands)."""
-    after = f" {unit.strip()}" if unit.strip() else ""
-    whole, _, rest = number.partition(",")
+    after = f" {one_line(unit.strip())}" if unit.strip() else ""  # a unit may hold a newline
+    whole, _, rest = one_line(number).partition(",")
     if "," not in rest and "." not in number and len(rest) != 3:
         return f"has a decimal comma: write {whole}.{rest}{after}: a decimal point, not a comma"
     if "," not in rest and "." not in number:
