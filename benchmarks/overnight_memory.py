@@ -40,7 +40,7 @@ from instruments.dialect import load_dialect  # noqa: E402
 from instruments.loopback import CallableTransport, SpyTransport  # noqa: E402
 from instruments.smu import ScpiSmu  # noqa: E402
 from sequencer.bench.lotrun import run_lot  # noqa: E402
-from sequencer.bench.schedule import run_passes  # noqa: E402
+from sequencer.bench.schedule import run_rounds  # noqa: E402
 from sequencer.plan.make import make_plan  # noqa: E402
 from sequencer.recipe.load import load_recipe  # noqa: E402
 from sequencer.recipe.repeat import Repeat  # noqa: E402
@@ -214,12 +214,12 @@ def run(folder: Path, passes: int, sample_every: float, remember: bool) -> tuple
             instrument.tray.history.clear()
 
         started = time.monotonic()
-        run_passes(
+        run_rounds(
             store,
             plan,
             Repeat(600.0, passes=passes),
             measure,
-            on_pass=pass_done,
+            on_round=pass_done,
             clock=clock,
             sleep=clock.sleep,
         )

@@ -68,7 +68,10 @@ def _kind(reason: str) -> str:
     return reason.split(":")[0]
 
 
-def device_name(lot: str, channel: int) -> str:
+def device_name(lot: str, channel: int, serials: dict[int, str] | None = None) -> str:
+    """The channel's serial where the run was given a tray map, else `<lot>-NNN`."""
+    if serials:
+        return serials[channel]
     return f"{lot}-{channel:03d}"
 
 
@@ -89,7 +92,7 @@ def run_lot(
     start = clock()
     for index, channel in enumerate(plan.channels):
         recorder = Recorder()
-        device = device_name(recipe.lot, channel)
+        device = device_name(recipe.lot, channel, recipe.tray_serials)
         t0 = clock()
         try:
             measure_device(smu, plan, channel, guard, recorder, clock)

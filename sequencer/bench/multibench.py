@@ -30,7 +30,7 @@ if TYPE_CHECKING:
     from sequencer.run.shutdown import Shutdown
 
 
-# For one pass over `total` devices: the callback that shows each device as it is stored.
+# For one round over `total` devices: the callback that shows each device as it is stored.
 Showing = Callable[[int], AbstractContextManager[Callable[[DeviceDone], None]]]
 
 
@@ -70,15 +70,15 @@ def measure_on_benches(
     sim: bool,
     out: Path,
     store: RunStore,
-    measure_passes: Callable[[Callable[[Plan], RunSummary]], RunSummary],
+    measure_rounds: Callable[[Callable[[Plan], RunSummary]], RunSummary],
     announce: Callable[[str], None],
     showing: Showing,
     benches: Benches,
     gate: SignalGate,
 ) -> RunSummary:
-    """Connect every instrument of the station, run `measure_passes(one_pass)` on all of them,
+    """Connect every instrument of the station, run `measure_rounds(one_round)` on all of them,
     then switch every output off. Call it from the CLI with the run's store open. `announce`
-    takes a line for the screen; `showing(total)` gives, for one pass, the callback that shows
+    takes a line for the screen; `showing(total)` gives, for one round, the callback that shows
     each device as it is stored."""
     specs = recipe.station.instruments
     conns: list[Connection] = []
@@ -101,11 +101,11 @@ def measure_on_benches(
             for spec, conn, guard in zip(specs, conns, guards, strict=True)
         ]
 
-        def one_pass(part: Plan) -> RunSummary:
+        def one_round(part: Plan) -> RunSummary:
             return _measure(showing, recipe, part, lanes, store)
 
         with gate.raising():
-            return measure_passes(one_pass)
+            return measure_rounds(one_round)
 
 
 def _connect(recipe: Recipe, spec: InstrumentSpec, sim: bool, log) -> Connection:

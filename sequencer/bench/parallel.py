@@ -231,7 +231,7 @@ class _Collector:
             self._store(self.waiting.pop(index))
 
     def _store(self, item: _Result) -> None:
-        device = device_name(self.recipe.lot, item.channel)
+        device = device_name(self.recipe.lot, item.channel, self.recipe.tray_serials)
         curve = item.recorder.curve(device, item.channel, self.plan)
         if item.error is None:
             judgement = judge_curve(curve, self.recipe.judge)

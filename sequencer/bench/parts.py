@@ -3,7 +3,7 @@
 Each loop: ask for a serial; decide under the recipe's retest policy whether the part may be
 tested (sequencer.recipe.retest); wait for the part in the socket (sequencer.bench.prompts);
 measure it on
-its socket's channel; judge, bin and store it (device = the serial, pass = the attempt); then
+its socket's channel; judge, bin and store it (device = the serial, round = the attempt); then
 show the verdict big. Between parts the output is off (the runner switches it off after every
 device), so quitting at the prompt leaves nothing on and everything stored.
 
@@ -168,7 +168,7 @@ def measure_part(
     and shown; then the run goes on only after a device trip under `on_trip: skip`."""
     recipe, store = station.recipe, station.store
     recorder = Recorder()
-    store.begin_pass(attempt)
+    store.begin_round(attempt)
     try:
         measure_device(station.smu, station.plan, channel, station.guard, recorder, station.clock)
     except BaseException as exc:

@@ -1,7 +1,7 @@
-"""A run over temperatures: the chamber is opened beside the SMU; before each pass (one pass per
+"""A run over temperatures: the chamber is opened beside the SMU; before each round (one round per
 set point) it soaks, the temperatures go to the store, and every ending leaves the chamber safe.
 
-Pass n runs at the recipe's n-th set point, so a resumed run goes on at the set point it was at.
+Round n runs at the recipe's n-th set point, so a resumed run goes on at the set point it was at.
 The simulated chamber's time runs `speed` times the wall clock, so on it the soak's clock does
 too: its poll and its timeout are then counted on the chamber's own time line.
 """
@@ -25,13 +25,13 @@ if TYPE_CHECKING:
 
 
 def schedule(recipe: Recipe, repeat: Repeat | None) -> Repeat | None:
-    """One pass per set point, straight after one another; a schedule beside it is refused."""
+    """One round per set point, straight after one another; a schedule beside it is refused."""
     if not recipe.temperatures:
         return repeat
     if repeat is not None:
         raise RunError(
             f"{recipe.file}: 'temperatures:' and a repeat schedule cannot be combined yet: "
-            "remove 'repeat:' (or --every/--for/--passes); each set point is one pass"
+            "remove 'repeat:' (or --every/--for/--rounds); each set point is one round"
         )
     return Repeat(0.0, None, len(recipe.temperatures))
 
@@ -53,10 +53,10 @@ class TemperatureRun:
         )
         announce(f"chamber: {self.link.chamber.identify()} at {self.link.chamber.resource}")
 
-    def before_pass(self, store: RunStore) -> None:
+    def before_round(self, store: RunStore) -> None:
         points = self.recipe.temperatures
-        point = points[min(store.pass_no, len(points)) - 1]
-        self.announce(f"set point {store.pass_no} of {len(points)}: {point.describe()}")
+        point = points[min(store.round_no, len(points)) - 1]
+        self.announce(f"set point {store.round_no} of {len(points)}: {point.describe()}")
         done = soak(
             self.link.chamber, point, self.spec, now=self._now, sleep=self._sleep,
         )  # fmt: skip

@@ -19,7 +19,7 @@ from sequencer.bench import multibench, temperaturerun
 from sequencer.bench.benchrun import GATE, Bench, Terminated, exchange_log, on_bench
 from sequencer.bench.lotrun import run_lot
 from sequencer.bench.parts import PartBench
-from sequencer.cli import detach, operatorview, partcmd, reportcmd, statuscmd, uploadcmd
+from sequencer.cli import detach, operatorview, partcmd, reportcmd, statuscmd, traycmd, uploadcmd
 from sequencer.cli import runcmd as runsession
 from sequencer.cli.checkcmd import HAZARD_HELP, judge_can_work, preflight_all
 from sequencer.cli.exits import EXIT_OUTPUT_MAY_BE_ON, Stopped, why_stopped
@@ -41,6 +41,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     run.add_argument("--sim", action="store_true", help="use the embedded simulated SMU")
     run.add_argument("--out", type=Path, help="run folder (default runs/<lot>-<time>)")
     run.add_argument("--lot", help="the lot under test (default: the recipe's lot); recorded")
+    traycmd.add_options(run)
     run.add_argument("--send-dry-run", action="store_true", help=uploadcmd.SEND_DRY_RUN_HELP)
     run.add_argument("--station", type=Path, help="station file instead of the recipe's")
     run.add_argument("--operator", default="", help="operator name for the records")
@@ -71,6 +72,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     partcmd.check_options(args)
     recipe = _lot_option(load_recipe(args.recipe, station_path=args.station), args.lot)
     plan = make_plan(recipe)
+    recipe = traycmd.with_serials(recipe, plan, args)  # the map is checked before anything opens
     preflight_all(recipe, plan, args)  # refuses before anything is started or opened
     for warning in judge_can_work(recipe, plan):  # else a plan the judge cannot use fails all
         console.print(f"[yellow]ccbench: warning:[/] {warning}", soft_wrap=True)
@@ -81,7 +83,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         console.print(plan_summary(recipe, plan, prediction), soft_wrap=True)
     out = args.out or _default_folder(recipe.lot, console)
     repeat = temperaturerun.schedule(recipe, runsession.repeat_for(recipe, args))
-    if args.resume and repeat is not None and (args.every, args.for_, args.passes) == (None,) * 3:
+    if args.resume and repeat is not None and (args.every, args.for_, args.rounds) == (None,) * 3:
         console.print(f"resume: the run's schedule goes on: {repeat.describe()}", soft_wrap=True)
     several = len(recipe.station.instruments) > 1
     if recipe.temperatures and (several or args.part_by_part):
@@ -94,6 +96,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
     manifest = _manifest(recipe, plan, args, resource)
     manifest |= runsession.manifest_extras(recipe, resource, repeat)
     manifest |= partcmd.manifest_extras(recipe, args, repeat)
+    manifest |= traycmd.manifest_extras(recipe)
     manifest["planned"] = statuscmd.planned(plan, prediction, repeat, args.part_by_part)
     shipper.check_driver(recipe.station.results_database)
     store = runsession.open_store(out, manifest, args, console)
@@ -108,7 +111,7 @@ def cmd_run(args: argparse.Namespace, console: Console) -> int:
         if several:  # one worker per instrument; sequencer/multibench.py
             summary = multibench.measure_on_benches(
                 recipe, plan, args.sim, out, store,
-                lambda one: runsession.measure_passes(console, store, plan, repeat, one),
+                lambda one: runsession.measure_rounds(console, store, plan, repeat, one),
                 lambda text: console.print(text, soft_wrap=True),
                 lambda total: showing_devices(console, total), bench, GATE,
             )  # fmt: skip
@@ -227,13 +230,13 @@ def _on_one_bench(
                 write, sim = conn.smu.transport.write, resource == "sim"
                 return partcmd.from_command_line(console, tester, sim, write, operator_view)
 
-            def one_pass(part):
-                if chamber is not None:  # the output is off between passes: soak first
+            def one_round(part):
+                if chamber is not None:  # the output is off between rounds: soak first
                     with GATE.raising():
-                        chamber.before_pass(store)
+                        chamber.before_round(store)
                 return _measure(console, recipe, part, conn.smu, store, guard)
 
-            return runsession.measure_passes(console, store, plan, repeat, one_pass)
+            return runsession.measure_rounds(console, store, plan, repeat, one_round)
 
         return on_bench(conn, recipe, plan, measure, bench, GATE, announce)
 

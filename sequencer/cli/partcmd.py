@@ -26,11 +26,11 @@ FLAG_HELP = (
 
 
 def manifest_extras(recipe: Recipe, args: argparse.Namespace, repeat: Repeat | None) -> dict:
-    """The run record's `schedule` for part-by-part testing (which has no passes to repeat)."""
+    """The run record's `schedule` for part-by-part testing (which has no rounds to repeat)."""
     if not args.part_by_part:
         return {}
     if repeat is not None:
-        option = "--every/--for/--passes" if args.every or args.passes else "the recipe's repeat"
+        option = "--every/--for/--rounds" if args.every or args.rounds else "the recipe's repeat"
         raise RecipeError("command line", None, "--part-by-part", f"cannot be used with {option}")
     if len(recipe.station.instruments) > 1:
         problem = f"needs a station with one instrument ({recipe.station.file} names several)"

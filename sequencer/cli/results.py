@@ -136,7 +136,7 @@ def runs_table(frame: pd.DataFrame, *, show_yield: bool = True) -> Table:
             r.lot,
             r.started[:16].replace("T", " "),
             r.status,
-            f"{r.devices}" + (f" in {r.passes} passes" if r.passes > 1 else ""),
+            f"{r.devices}" + (f" in {r.rounds} rounds" if r.rounds > 1 else ""),
             str(r.passed),
             str(r.failed),
             f"{100 * share:.1f}%" if not math.isnan(share) and show_yield else "—",
@@ -146,14 +146,14 @@ def runs_table(frame: pd.DataFrame, *, show_yield: bool = True) -> Table:
 
 def devices_table(frame: pd.DataFrame) -> Table:
     table = Table(title="Devices", title_justify="left", box=box.SIMPLE_HEAD)
-    for column in ("folder", "device", "pass", "verdict", *(s for _, s, _ in SHOWN_FIGURES)):
+    for column in ("folder", "device", "round", "verdict", *(s for _, s, _ in SHOWN_FIGURES)):
         table.add_column(column)
     for values in frame.to_dict("records"):
         figures = [_figure(values.get(col), unit) for col, _, unit in SHOWN_FIGURES]
         table.add_row(
             Path(values["folder"]).name,
             str(values["device"]),
-            str(values["pass"]),
+            str(values["round"]),
             str(values["verdict"]),
             *figures,
         )

@@ -47,7 +47,7 @@ def results_document(
 def _run(r: RunRow, *, show_yield: bool) -> dict[str, Any]:
     return {
         "folder": r.folder, "lot": r.lot, "started": r.started or None, "status": r.status,
-        "devices": r.devices, "rounds": r.passes, "verdicts": {"pass": r.passed, "fail": r.failed},
+        "devices": r.devices, "rounds": r.rounds, "verdicts": {"pass": r.passed, "fail": r.failed},
         "yield": r.judged_yield if show_yield else None,
     }  # fmt: skip
 
@@ -68,7 +68,7 @@ def _device(row: dict[str, Any]) -> dict[str, Any]:
         if f"{figure}_at_least" in row:
             flag = row[f"{figure}_at_least"]
             out[f"{figure}_at_least"] = None if flag is None or flag != flag else bool(flag)
-    number = row.get("pass")  # the repetition number, stored as `pass` in today's folders
+    number = row.get("round")  # the repetition number
     out["round"] = None if number is None or number != number else int(number)
     out["measured"] = row.get("measured")
     return out

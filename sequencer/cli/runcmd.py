@@ -1,4 +1,4 @@
-"""The `run` command's folder and schedule: new or resumed run, passes, what the screen says.
+"""The `run` command's folder and schedule: new or resumed run, rounds, what the screen says.
 
 cli.cmd_run calls these so that the command itself stays a short list of steps.
 """
@@ -15,7 +15,7 @@ from typing import Any
 from rich.console import Console
 
 from sequencer.bench.lotrun import RunSummary
-from sequencer.bench.schedule import Wait, run_passes, work_left
+from sequencer.bench.schedule import Wait, run_rounds, work_left
 from sequencer.model.errors import RecipeError, StoreError
 from sequencer.plan.segments import Plan
 from sequencer.recipe.load import Recipe
@@ -44,23 +44,23 @@ def add_run_options(run: argparse.ArgumentParser) -> None:
         metavar="TIME",
         help="with --every: repeat for TIME from the start, e.g. '8 h' (else until stopped)",
     )
-    run.add_argument("--passes", type=int, metavar="N", help="at most N passes over the tray")
+    run.add_argument("--rounds", type=int, metavar="N", help="at most N rounds over the tray")
 
 
 def repeat_for(recipe: Recipe, args: argparse.Namespace) -> Repeat | None:
     """The schedule: the command line's options, else (resuming) the one the run began with,
-    else the recipe's `repeat`, else one pass. A resumed overnight run given no options keeps
-    its passes: it used to finish the pass in flight and stop."""
-    given = (args.every, args.for_, args.passes) != (None, None, None)
+    else the recipe's `repeat`, else one round. A resumed overnight run given no options keeps
+    its rounds: it used to finish the round in flight and stop."""
+    given = (args.every, args.for_, args.rounds) != (None, None, None)
     if args.resume and not given and args.out is not None:
         stored = stored_repeat(args.out)
         if stored is not None:
             return stored
-    return repeat_from_options(args.every, args.for_, args.passes, recipe.repeat)
+    return repeat_from_options(args.every, args.for_, args.rounds, recipe.repeat)
 
 
 def stored_repeat(folder: Path) -> Repeat | None:
-    """The schedule a run folder's manifest records (None: one pass, or an older manifest)."""
+    """The schedule a run folder's manifest records (None: one round, or an older manifest)."""
     try:
         kept = read_manifest(folder).get("repeat")
     except (FolderRefused, StoreError, OSError, ValueError):
@@ -68,7 +68,8 @@ def stored_repeat(folder: Path) -> Repeat | None:
     if not isinstance(kept, dict):
         return None
     try:
-        return Repeat(float(kept["every_s"]), kept.get("for_s"), kept.get("passes"))
+        rounds = kept.get("rounds", kept.get("passes"))  # `passes` in manifests before schema 8
+        return Repeat(float(kept["every_s"]), kept.get("for_s"), rounds)
     except (KeyError, TypeError, ValueError):
         return None
 
@@ -102,7 +103,7 @@ def open_store(
     p = store.progress
     if p.stored:
         console.print(
-            f"resume: session {p.session}; {p.stored} devices stored; pass {p.pass_no} has "
+            f"resume: session {p.session}; {p.stored} devices stored; round {p.round_no} has "
             f"{len(p.done)} devices done",
             soft_wrap=True,
         )
@@ -125,33 +126,33 @@ def nothing_left(
     return True
 
 
-def measure_passes(
+def measure_rounds(
     console: Console,
     store: RunStore,
     plan: Plan,
     repeat: Repeat | None,
     measure: Callable[[Plan], RunSummary],
 ) -> RunSummary:
-    """Every pass the schedule asks for (one without a schedule), with a line per pass."""
+    """Every round the schedule asks for (one without a schedule), with a line per round."""
     if repeat is not None:
         console.print(f"schedule: {repeat.describe()}", soft_wrap=True)
 
-    def passed(number: int, part: RunSummary) -> None:
+    def round_done(number: int, part: RunSummary) -> None:
         if repeat is not None:
-            console.print(f"pass {number} done: {_counts(part)}", soft_wrap=True)
+            console.print(f"round {number} done: {_counts(part)}", soft_wrap=True)
 
     def waiting(wait: Wait) -> None:
         at = dt.datetime.fromtimestamp(wait.due).strftime("%H:%M:%S")
         console.print(
-            f"pass {wait.pass_no} starts at {at} (in {wait.seconds:.0f} s); output off; "
+            f"round {wait.round_no} starts at {at} (in {wait.seconds:.0f} s); output off; "
             "Ctrl-C stops the run",
             soft_wrap=True,
         )
 
-    summary = run_passes(store, plan, repeat, measure, on_pass=passed, on_wait=waiting)
+    summary = run_rounds(store, plan, repeat, measure, on_round=round_done, on_wait=waiting)
     if repeat is not None or store.progress.stored:
-        devices, passes = store.counts()
-        over = f"{passes} pass" + ("es" if passes != 1 else "")
+        devices, rounds = store.counts()
+        over = f"{rounds} round" + ("s" if rounds != 1 else "")
         console.print(f"run in all: {devices} devices stored over {over}", soft_wrap=True)
     return summary
 

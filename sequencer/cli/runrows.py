@@ -20,7 +20,7 @@ class RunRow:
     started: str
     status: str
     devices: int
-    passes: int
+    rounds: int
     passed: int
     failed: int
 
@@ -44,7 +44,7 @@ def run_rows(frame: pd.DataFrame) -> list[RunRow]:
                 _text(group["run_started"].iloc[0]),
                 _text(group["run_status"].iloc[0]),
                 len(group),
-                int(group["pass"].nunique()),
+                int(group["round"].nunique()),
                 int(verdicts.get("pass", 0)),
                 int(verdicts.get("fail", 0)),
             )

@@ -34,7 +34,7 @@ def planned(
     plan: Plan, estimate: Estimate | None, repeat: Repeat | None, part_by_part: bool
 ) -> dict[str, Any]:
     """What the run manifest keeps of the plan for `status`: devices per round over the tray
-    (the repetition the recipe's `repeat:` calls a pass), the estimate per device, the
+    (the repetition the recipe's `repeat:` schedules), the estimate per device, the
     schedule (None: one round; part by part: no fixed count)."""
     per_device = estimate.per_device_s if estimate else plan.seconds_per_device()
     return {
@@ -45,7 +45,7 @@ def planned(
 
 
 def _schedule(repeat: Repeat) -> dict[str, Any]:
-    return {"every_s": repeat.every_s, "for_s": repeat.for_s, "rounds": repeat.passes}
+    return {"every_s": repeat.every_s, "for_s": repeat.for_s, "rounds": repeat.rounds}
 
 
 def cmd_status(args: argparse.Namespace, console: Console) -> int:

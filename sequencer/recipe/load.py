@@ -86,11 +86,13 @@ class Recipe:
     ratings: Ratings = field(default_factory=Ratings)
     on_trip: str = "stop"  # after a device trip: "stop" the run, or "skip" to the next device
     hazardous_voltage_acknowledged: bool = False
-    repeat: Repeat | None = None  # passes over the tray on a schedule; None: one pass
+    repeat: Repeat | None = None  # rounds over the tray on a schedule; None: one round
     part_by_part: RetestPolicy = field(default_factory=RetestPolicy)  # --part-by-part
     lists: bool = False  # run steps as instrument-side lists where safe (sequencer.run.segment)
     temperatures: tuple[SetPoint, ...] = ()  # set points to run the steps at (recipe.temperatures)
     tempco: TempCoLimits = field(default_factory=TempCoLimits)  # recipe.format.recipe TempCo
+    # channel -> serial for a tray run, given at run time (recipe.traymap); empty: <lot>-NNN
+    tray_serials: dict[int, str] = field(default_factory=dict, compare=False, hash=False)
 
     @property
     def effective_limits(self) -> EffectiveLimits:

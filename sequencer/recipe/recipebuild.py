@@ -216,7 +216,7 @@ def ratings(written: form.Ratings | None) -> Ratings:
 
 
 def repeat(written: form.Repeat | None) -> Repeat | None:
-    return None if written is None else Repeat(written.every, written.for_, written.passes)
+    return None if written is None else Repeat(written.every, written.for_, written.rounds)
 
 
 def part_by_part(written: form.PartByPart | None) -> RetestPolicy:

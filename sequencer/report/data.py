@@ -3,9 +3,10 @@ reports that reads a run folder.
 
 Tables are read by column name (`SELECT *`), so columns the store adds later are carried along
 and columns an older schema lacks are filled in. A device measured more than once (a retest in
-a later run folder of the same lot, or a later pass in one folder) keeps every row in
+a later run folder of the same lot, or a later round in one folder) keeps every row in
 `devices`; the last one is its result (`final`). Points are matched to their device row by every
-column the point and device tables share (today run, pass and device).
+column the point and device tables share (today run, round and device; `round` is read
+under its name before schema 8, `pass`, from a folder that could not be migrated).
 
 Points are not loaded with the lot: a lot of 100,000 devices holds some 9 million of them, and
 the summaries need none. A device's readings are read from its run's SQLite when a picture or
@@ -30,6 +31,7 @@ from sequencer.model.judgesettings import FIGURE_UNIT, FIGURES, FigureLimit, Jud
 from sequencer.recipe.yamlsource import parse_yaml
 from sequencer.store.crosscheck import check_folder
 from sequencer.store.frames import read_frame
+from sequencer.store.oldnames import OLD_NAMES, current_frame
 from sequencer.store.readonly import open_for_reading
 from sequencer.store.yields import final_mask
 
@@ -78,7 +80,8 @@ class FigureData:
 @dataclass(frozen=True, eq=False)
 class PointSource:
     """Where the points of one run are: its results.sqlite, its run id, and the columns that
-    tie a point to its device besides the run (`pass`, `device`)."""
+    tie a point to its device besides the run (`round`, `device`), as the file names them
+    (`frame_key` gives a key's name in the device table, which has today's names)."""
 
     path: Path
     run_id: object
@@ -97,6 +100,10 @@ class PointSource:
             raise StoreReadError(f"{self.path}: cannot be read ({exc})") from None
         finally:
             db.close()
+
+    @staticmethod
+    def frame_key(key: str) -> str:
+        return OLD_NAMES.get(key, key)
 
     def run_filter(self) -> tuple[str, tuple]:
         return ("run_id = ?", (self.run_id,)) if self.run_id is not None else ("1", ())
@@ -172,10 +179,10 @@ class Lot:
         source = self.sources[int(device["run"])]
         where, params = source.run_filter()
         for key in source.keys:
-            where += f" AND {key} = ?"
-            params += (_plain(device[key]),)
+            where += f' AND "{key}" = ?'
+            params += (_plain(device[source.frame_key(key)]),)
         names, rows = source.read(f"SELECT * FROM point WHERE {where} ORDER BY rowid", params)
-        points = pd.DataFrame.from_records(rows, columns=names)
+        points = current_frame(pd.DataFrame.from_records(rows, columns=names))
         points = points.assign(run=int(device["run"]), row=row)
         return _typed(_with_point_columns(points))
 
@@ -219,14 +226,15 @@ class Lot:
             if "time_s" not in source.columns:
                 continue
             where, params = source.run_filter()
-            keys = ", ".join(source.keys) or "1"
+            keys = ", ".join(f'"{k}"' for k in source.keys) or "1"
             sql = (
                 f"SELECT {keys}, MAX(time_s) FROM point WHERE {where} "
                 f"AND abs(time_s) < 1e308 GROUP BY {keys}"
             )  # abs(...) < 1e308: finite readings only, as a curve's own maximum takes them
             last = {tuple(found[:-1]): found[-1] for found in source.read(sql, params)[1]}
             mine = owners[owners["run"] == run]
-            columns = [mine[k].map(_plain) for k in source.keys] or [pd.Series(1, mine.index)]
+            columns = [mine[source.frame_key(k)].map(_plain) for k in source.keys]
+            columns = columns or [pd.Series(1, mine.index)]
             for row, *key in zip(mine["row"], *columns, strict=True):
                 if last.get(tuple(key)) is not None:
                     out[int(row)] = float(last[tuple(key)])
@@ -236,7 +244,8 @@ class Lot:
     def _owners(self) -> set[int]:
         """The device rows that own points: the last row of each key (run and the shared
         columns), as the points were matched when the whole table was read."""
-        keys = ["run", *sorted({k for source in self.sources for k in source.keys})]
+        shared = {source.frame_key(k) for source in self.sources for k in source.keys}
+        keys = ["run", *sorted(shared)]
         keys = [k for k in keys if k in self.devices]
         rows = self.devices.drop_duplicates(keys, keep="last")["row"]
         return {int(r) for r in rows}
@@ -290,7 +299,7 @@ def _read_folder(folder: Path) -> list[Entry]:
     try:
         check_folder(folder, db)
         runs = pd.read_sql_query("SELECT * FROM run ORDER BY id", db)
-        devices = read_frame(db, "SELECT * FROM device ORDER BY rowid")
+        devices = current_frame(read_frame(db, "SELECT * FROM device ORDER BY rowid"))
         point_columns = [r[1] for r in db.execute("PRAGMA table_info(point)")]
     except (sqlite3.Error, pd.errors.DatabaseError) as exc:
         raise StoreReadError(f"{path}: cannot be read ({exc})") from None
@@ -299,7 +308,11 @@ def _read_folder(folder: Path) -> list[Entry]:
     if runs.empty:
         raise StoreError(f"{path}: holds no run")
     runs = runs.rename(columns={"id": "run_id"})
-    keys = tuple(c for c in point_columns if c in devices.columns and c not in ("run_id", "row"))
+    keys = tuple(
+        c
+        for c in point_columns
+        if OLD_NAMES.get(c, c) in devices.columns and c not in ("run_id", "row")
+    )
     by_run = "run_id" in point_columns and "run_id" in devices.columns
     out = []
     for run in runs.to_dict("records"):

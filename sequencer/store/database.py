@@ -15,6 +15,7 @@ from typing import Any
 from sequencer.model.errors import StoreError
 from sequencer.store.journal import decode_floats, encode_floats
 from sequencer.store.migrations import migrate, transaction
+from sequencer.store.oldnames import current
 
 POINT_FIELDS = ("step", "level_V", "voltage_V", "current_A", "time_s", "in_compliance")
 SESSION_FIELDS = (
@@ -92,23 +93,23 @@ def write_device(db: sqlite3.Connection, run_id: int, entry: dict[str, Any]) -> 
     """Store one journal entry (device row and its points) in one transaction. An entry for a
     device already stored (an aborted one, measured again on resume) replaces it. Returns
     whether it replaced one."""
-    row = {k: v for k, v in entry.items() if k != "points"}
-    key = (run_id, row["pass"], row["device"])
+    row = {k: v for k, v in current(entry).items() if k != "points"}
+    key = (run_id, row["round"], row["device"])
     points = entry["points"]
     with transaction(db):
         replaced = db.execute(
-            "SELECT 1 FROM device WHERE run_id = ? AND pass = ? AND device = ?", key
+            "SELECT 1 FROM device WHERE run_id = ? AND round = ? AND device = ?", key
         ).fetchone()
         if replaced:
-            db.execute("DELETE FROM point WHERE run_id = ? AND pass = ? AND device = ?", key)
-            db.execute("DELETE FROM device WHERE run_id = ? AND pass = ? AND device = ?", key)
+            db.execute("DELETE FROM point WHERE run_id = ? AND round = ? AND device = ?", key)
+            db.execute("DELETE FROM device WHERE run_id = ? AND round = ? AND device = ?", key)
         cols = ["run_id", *row]
         db.execute(
             f"INSERT INTO device ({', '.join(cols)}) VALUES ({', '.join('?' * len(cols))})",
             [run_id, *row.values()],
         )
         db.executemany(
-            "INSERT INTO point (run_id, pass, device, idx, step, level_V, voltage_V, current_A,"
+            "INSERT INTO point (run_id, round, device, idx, step, level_V, voltage_V, current_A,"
             " time_s, in_compliance) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
             _point_rows(key, points),
         )
@@ -132,9 +133,9 @@ def journal_entry(db: sqlite3.Connection, run_id: int, seq: int) -> dict[str, An
         return None
     names = [d[0] for d in cur.description]
     entry = {n: v for n, v in zip(names, row, strict=True) if n != "run_id"}
-    key = (run_id, entry["pass"], entry["device"])
+    key = (run_id, entry["round"], entry["device"])
     points = db.execute(
-        f"SELECT {', '.join(POINT_FIELDS)} FROM point WHERE run_id = ? AND pass = ? AND "
+        f"SELECT {', '.join(POINT_FIELDS)} FROM point WHERE run_id = ? AND round = ? AND "
         "device = ? ORDER BY idx",
         key,
     ).fetchall()
@@ -165,7 +166,7 @@ def device_rows(db: sqlite3.Connection, run_id: int, columns: list[str]) -> Iter
     """Device rows in the order they were measured, for the CSV (streamed, not listed)."""
     quoted = ", ".join(f'"{c}"' for c in columns)
     yield from db.execute(
-        f"SELECT {quoted} FROM device WHERE run_id = ? ORDER BY pass, seq", (run_id,)
+        f"SELECT {quoted} FROM device WHERE run_id = ? ORDER BY round, seq", (run_id,)
     )
 
 

@@ -1,7 +1,8 @@
 """Run folders as one pandas table: every stored device with the run it belongs to.
 
 Files are only read here, never migrated or otherwise changed: a run folder of any schema
-version is read with the columns it has (a file from before repeated passes has pass 1).
+version is read with the columns it has (a file from before repeated rounds has round 1;
+`pass`, the round's name before schema 8, is read as `round`).
 Written out as CSV or as Parquet (pyarrow), in the same columns.
 """
 
@@ -19,6 +20,7 @@ import pandas as pd
 from sequencer.model.errors import RecipeError, StoreError, StoreReadError
 from sequencer.store.crosscheck import check_folder
 from sequencer.store.frames import read_frame
+from sequencer.store.oldnames import current_frame, round_column
 from sequencer.store.readonly import open_for_reading
 
 DATABASE_FILE = "results.sqlite"
@@ -82,16 +84,18 @@ def _query(db: sqlite3.Connection, folder: Path) -> pd.DataFrame:
     if not run_cols or not device_cols:  # an empty file, or a killed run's WAL lost
         missing = "run" if not run_cols else "device"
         raise sqlite3.DatabaseError(f"no {missing} table: the file is empty or damaged")
-    order = "device.pass, device.seq" if "seq" in device_cols else "device.rowid"
+    rounds = round_column(db)
+    order = f'device."{rounds}", device.seq' if rounds and "seq" in device_cols else "device.rowid"
     wanted = [f'device."{c}"' for c in device_cols if c != "run_id"]
     frame = read_frame(
         db,
         f"SELECT {', '.join(picked + wanted)} FROM device JOIN run ON device.run_id = run.id "
         f"ORDER BY run.id, {order}",
     )
+    frame = current_frame(frame)
     frame.insert(0, "folder", str(folder))
-    if "pass" not in frame:
-        frame.insert(frame.columns.get_loc("device") + 1, "pass", 1)
+    if "round" not in frame:
+        frame.insert(frame.columns.get_loc("device") + 1, "round", 1)
     if "run" not in frame:
         frame.insert(0, "run", folder.name)
     return frame
@@ -103,7 +107,7 @@ def merge_runs(folders: Iterable[Path], keep: Filter = Filter()) -> pd.DataFrame
     parts = [select(load_run(folder), keep) for folder in folders]
     parts = [p for p in parts if not p.empty]
     if not parts:
-        return pd.DataFrame(columns=["folder", "run", "lot", "product", "device", "pass"])
+        return pd.DataFrame(columns=["folder", "run", "lot", "product", "device", "round"])
     return pd.concat(parts, ignore_index=True)
 
 

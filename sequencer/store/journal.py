@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from sequencer.model.errors import StoreError
+from sequencer.store.oldnames import current
 
 log = logging.getLogger(__name__)
 
@@ -101,7 +102,7 @@ def read_entries(path: Path) -> Iterator[dict[str, Any]]:
         for number, raw in enumerate(f, start=1):
             if not raw.endswith(b"\n"):
                 return  # the torn last line
-            yield _parse(path, number, raw)
+            yield current(_parse(path, number, raw))
 
 
 def recover(path: Path, *, cut: bool = True) -> Recovered:

@@ -130,6 +130,24 @@ def _coverage_factors(db: sqlite3.Connection) -> None:
         db.execute(f"ALTER TABLE device ADD COLUMN {name}_dof REAL")
 
 
+def _rounds(db: sqlite3.Connection) -> None:
+    """The repetition number is called `round`, a word no one reads as a verdict (it was
+    `pass`, beside the verdict "pass"); SQLite carries the rename into keys and indexes."""
+    for table, old, new in RENAMED:
+        have = {row[1] for row in db.execute(f"PRAGMA table_info({table})")}
+        if old in have:  # rejudge_device exists only where a run was re-judged
+            db.execute(f'ALTER TABLE {table} RENAME COLUMN "{old}" TO "{new}"')
+
+
+# (table, name up to version 7, name from version 8)
+RENAMED = (
+    ("device", "pass", "round"),
+    ("device", "pass_started", "round_started"),
+    ("point", "pass", "round"),
+    ("rejudge_device", "pass", "round"),
+)
+
+
 MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (
     _v1,
     _v2,
@@ -138,6 +156,7 @@ MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (
     _v5,
     _v6_temperatures,
     _coverage_factors,
+    _rounds,
 )
 LATEST = len(MIGRATIONS)
 

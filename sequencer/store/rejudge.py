@@ -30,6 +30,7 @@ from sequencer.model.judgesettings import FIGURES, JudgeSettings
 from sequencer.recipe.load import Recipe
 from sequencer.recipe.yamlsource import parse_yaml
 from sequencer.store.crosscheck import check_folder
+from sequencer.store.oldnames import round_column
 from sequencer.store.readonly import read_only_place as _read_only_place
 from sequencer.store.runstore import CSV_COLUMNS, SCHEMA_VERSION, _csv, _figure_sql, device_row
 
@@ -40,11 +41,11 @@ CREATE TABLE IF NOT EXISTS rejudge (
 );
 CREATE TABLE IF NOT EXISTS rejudge_device (
     rejudge_id INTEGER NOT NULL REFERENCES rejudge(id),
-    device TEXT NOT NULL, pass INTEGER NOT NULL DEFAULT 1, channel INTEGER,
+    device TEXT NOT NULL, round INTEGER NOT NULL DEFAULT 1, channel INTEGER,
     verdict TEXT NOT NULL, hard_bin INTEGER, bin_class TEXT, soft_bin TEXT,
     {figure_columns},
     classification TEXT, reasons TEXT, original_verdict TEXT,
-    PRIMARY KEY (rejudge_id, pass, device)
+    PRIMARY KEY (rejudge_id, round, device)
 );
 """
 
@@ -54,7 +55,7 @@ class StoredDevice:
     curve: Curve
     verdict: str
     reasons: str
-    pass_number: int = 1  # a repeated run measures each device once per pass
+    round_number: int = 1  # a repeated run measures each device once per round
 
 
 @dataclass(frozen=True)
@@ -98,17 +99,18 @@ def load_run(folder: Path) -> StoredRun:
         if run is None:
             raise StoreError(f"{folder}/results.sqlite: holds no run")
         run_id, status, station_text = run
-        # Folders older than schema 3 have one pass and no pass column.
-        passes = "pass" if _has_column(db, "device", "pass") else "1"
+        # Folders older than schema 3 have one round and no round column; 3 to 7 call it pass.
+        rounds = round_column(db)
+        number = f'"{rounds}"' if rounds else "1"
         devices = db.execute(
-            f"SELECT {passes}, device, channel, verdict, reasons FROM device WHERE run_id = ? "
+            f"SELECT {number}, device, channel, verdict, reasons FROM device WHERE run_id = ? "
             "ORDER BY rowid",
             (run_id,),
         ).fetchall()
         points = db.execute(
-            f"SELECT {passes}, device, step, level_V, voltage_V, current_A, time_s, "
-            "in_compliance FROM point WHERE run_id = ? ORDER BY pass, device, idx"
-            if passes == "pass"
+            f"SELECT {number}, device, step, level_V, voltage_V, current_A, time_s, "
+            f"in_compliance FROM point WHERE run_id = ? ORDER BY {number}, device, idx"
+            if rounds
             else "SELECT 1, device, step, level_V, voltage_V, current_A, time_s, in_compliance "
             "FROM point WHERE run_id = ? ORDER BY device, idx",
             (run_id,),
@@ -122,15 +124,11 @@ def load_run(folder: Path) -> StoredRun:
     return StoredRun(folder, run_id, status, station_text or "", stored)
 
 
-def _has_column(db: sqlite3.Connection, table: str, column: str) -> bool:
-    return any(row[1] == column for row in db.execute(f"PRAGMA table_info({table})"))
-
-
-def _curves(devices: list, points: list, passes: list) -> dict[tuple[int, str], Curve]:
-    """Curves keyed by (pass, device); each point row starts with its pass number."""
+def _curves(devices: list, points: list, rounds: list) -> dict[tuple[int, str], Curve]:
+    """Curves keyed by (round, device); each point row starts with its round number."""
     steps: list[str] = []
     per_device: dict[tuple[int, str], list] = {
-        (p, d): [] for p, (d, *_) in zip(passes, devices, strict=True)
+        (p, d): [] for p, (d, *_) in zip(rounds, devices, strict=True)
     }
     for row in points:
         if row[2] not in steps:
@@ -219,6 +217,9 @@ def save(
             )
             rejudge_id = int(cur.lastrowid or 0)
             rows = _rows(run, judgements)
+            named = round_column(db, "rejudge_device")  # `pass` in a table made before schema 8
+            if named and named != "round":
+                rows = [{named if k == "round" else k: v for k, v in row.items()} for row in rows]
             cols = ["rejudge_id", *rows[0]] if rows else []
             marks = ", ".join("?" * len(cols))
             db.executemany(
@@ -241,7 +242,7 @@ def _rows(run: StoredRun, judgements: list[Judgement]) -> list[dict]:
     rows = []
     for device, judgement in zip(run.devices, judgements, strict=True):
         row = device_row(judgement, device.curve.channel)
-        row = {"device": row.pop("device"), "pass": device.pass_number, **row}
+        row = {"device": row.pop("device"), "round": device.round_number, **row}
         row["original_verdict"] = device.verdict
         rows.append(row)
     return rows
@@ -261,7 +262,7 @@ def _publish(part: Path, path: Path, now: str) -> Path:
 
 
 def _write_csv(path: Path, rows: list[dict]) -> None:
-    columns = ["device", "pass", *CSV_COLUMNS[1:], "original_verdict"]
+    columns = ["device", "round", *CSV_COLUMNS[1:], "original_verdict"]
     try:
         with open(path, "w", newline="", encoding="utf-8") as f:
             out = csv.writer(f)

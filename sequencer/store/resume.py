@@ -3,7 +3,7 @@
 The journal is the record of truth. A crash can leave it with a torn last line (dropped), and
 the database and CSV behind it by the device whose journal line was fsynced just before the
 crash (redone from the journal here, so that nothing is stored twice and nothing is lost).
-What is left to do is read from the database afterwards: the devices of the last pass that
+What is left to do is read from the database afterwards: the devices of the last round that
 have no complete result (never measured, or aborted) are measured again.
 """
 
@@ -27,14 +27,14 @@ DATABASE_FILE = "results.sqlite"
 
 @dataclass(frozen=True)
 class Progress:
-    """Where a run stands when a session starts: the pass to continue, its channels with a
-    complete result, when that pass and the run began, how many devices are stored, and what
+    """Where a run stands when a session starts: the round to continue, its channels with a
+    complete result, when that round and the run began, how many devices are stored, and what
     the resume found (lines for the screen)."""
 
     session: int = 1
-    pass_no: int = 1
+    round_no: int = 1
     done: frozenset[int] = frozenset()
-    pass_started: str | None = None
+    round_started: str | None = None
     run_started: str = ""
     stored: int = 0
     notes: tuple[str, ...] = ()
@@ -143,17 +143,17 @@ def catch_up(db: sqlite3.Connection, run_id: int, folder: Path, journal_seq: int
 def progress(
     db: sqlite3.Connection, run_id: int, session: int, run_started: str, notes: list[str]
 ) -> Progress:
-    """The pass to continue and its channels with a complete result (not aborted)."""
-    last = db.execute("SELECT MAX(pass) FROM device WHERE run_id = ?", (run_id,)).fetchone()[0]
+    """The round to continue and its channels with a complete result (not aborted)."""
+    last = db.execute("SELECT MAX(round) FROM device WHERE run_id = ?", (run_id,)).fetchone()[0]
     stored = db.execute("SELECT COUNT(*) FROM device WHERE run_id = ?", (run_id,)).fetchone()[0]
     if last is None:
         return Progress(session, 1, frozenset(), None, run_started, 0, tuple(notes))
     done = db.execute(
-        "SELECT channel FROM device WHERE run_id = ? AND pass = ? AND verdict != 'aborted'",
+        "SELECT channel FROM device WHERE run_id = ? AND round = ? AND verdict != 'aborted'",
         (run_id, last),
     ).fetchall()
     started = db.execute(
-        "SELECT MIN(pass_started) FROM device WHERE run_id = ? AND pass = ?", (run_id, last)
+        "SELECT MIN(round_started) FROM device WHERE run_id = ? AND round = ?", (run_id, last)
     ).fetchone()[0]
     channels = frozenset(int(c) for (c,) in done)
     return Progress(session, int(last), channels, started, run_started, int(stored), tuple(notes))

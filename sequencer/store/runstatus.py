@@ -42,7 +42,7 @@ class Holder:
 @dataclass(frozen=True)
 class Tally:
     """The devices the journal holds: counts by verdict, the latest round (the repetition
-    number, stored as `pass` in today's journals), the channels done in it, and when devices
+    number; `pass` in journals of before schema 8), the channels done in it, and when devices
     of the current session were measured."""
 
     stored: int = 0

@@ -6,10 +6,10 @@ Layout of a run folder:
     manifest.json    the run: recipe and station text, hash, instrument, software, sessions
     journal.jsonl    one JSON object per device, the first place a result is written
     results.sqlite   tables run, session, device, point (schema version in PRAGMA user_version)
-    devices.csv      one row per device and pass, figures with their uncertainties beside them
+    devices.csv      one row per device and round, figures with their uncertainties beside them
     scpi.log         every SCPI exchange with a timestamp (written by the driver's spy)
 
-A device's key is (pass, device): a repeated run measures each tray position once per pass.
+A device's key is (round, device): a repeated run measures each tray position once per round.
 """
 
 from __future__ import annotations
@@ -52,7 +52,8 @@ from sequencer.store.runfolder import (
     write_manifest,
 )
 
-SCHEMA_VERSION = LATEST  # 2: bins, reverse and peak figures; 3: passes; 4: standing; 5: ended
+# 2: bins, reverse and peak figures; 3: rounds; 4: standing; 5: ended; 8: `pass` -> `round`
+SCHEMA_VERSION = LATEST
 UNITS = FIGURE_UNIT
 BIN_COLUMNS = ["hard_bin", "bin_class", "soft_bin"]
 
@@ -75,8 +76,8 @@ CSV_COLUMNS = [
     "classification",
     "reasons",
 ]
-# devices.csv: a device row with its pass number and the time it was measured
-RUN_CSV_COLUMNS = ["device", "pass", *CSV_COLUMNS[1:], "measured"]
+# devices.csv: a device row with its round number and the time it was measured
+RUN_CSV_COLUMNS = ["device", "round", *CSV_COLUMNS[1:], "measured"]
 
 
 def _num(x: float) -> float | None:
@@ -111,7 +112,7 @@ LOST = "ended unrecorded"  # a session whose process died (SIGKILL, power cut) b
 @dataclass
 class RunStore:
     """An open run folder, locked for this process. Open it with `create` (a new run) or
-    `resume` (continue one); close it with `finish`. `begin_pass` names the pass the next
+    `resume` (continue one); close it with `finish`. `begin_round` names the round the next
     devices belong to."""
 
     folder: Path
@@ -122,8 +123,8 @@ class RunStore:
     lock: FolderLock
     manifest: dict[str, Any]
     progress: Progress = field(default_factory=Progress)
-    pass_no: int = 1
-    pass_started: str | None = None
+    round_no: int = 1
+    round_started: str | None = None
     temperature: dict[str, float | None] = field(default_factory=dict)  # see at_temperature
 
     @property
@@ -240,24 +241,24 @@ class RunStore:
             "fixture_C": fixture_c,
         }
 
-    def begin_pass(self, pass_no: int, started: str | None = None) -> None:
-        """The devices stored from now on belong to pass `pass_no`, which began at `started`.
+    def begin_round(self, round_no: int, started: str | None = None) -> None:
+        """The devices stored from now on belong to round `round_no`, which began at `started`.
         Refused (LockLost) once the folder's lock was taken away, before a device is measured."""
         self.lock.check()
-        self.pass_no = pass_no
-        self.pass_started = started or utc_now()
+        self.round_no = round_no
+        self.round_started = started or utc_now()
 
     def add_device(
         self, curve: Curve, judgement: Judgement, extra: dict[str, Any] | None = None
     ) -> None:
         """Journal (fsync) first, then one SQLite transaction, then the CSV row. `extra`: more
         device columns (part-by-part testing adds `standing`)."""
-        entry: dict[str, Any] = {"pass": self.pass_no, "session": self.session}
+        entry: dict[str, Any] = {"round": self.round_no, "session": self.session}
         entry.update(device_row(judgement, curve.channel))
         entry.update(self.temperature)
         entry.update(extra or {})
         entry["measured"] = utc_now()
-        entry["pass_started"] = self.pass_started or entry["measured"]
+        entry["round_started"] = self.round_started or entry["measured"]
         entry["points"] = _points(curve)
         self.lock.check()  # another run may own the folder now: write nothing then
         try:
@@ -286,17 +287,17 @@ class RunStore:
         self.csv_file.flush()
 
     def counts(self) -> tuple[int, int]:
-        """Devices stored in the run so far, and over how many passes."""
+        """Devices stored in the run so far, and over how many rounds."""
         row = self.db.execute(
-            "SELECT COUNT(*), COUNT(DISTINCT pass) FROM device WHERE run_id = ?", (self.run_id,)
+            "SELECT COUNT(*), COUNT(DISTINCT round) FROM device WHERE run_id = ?", (self.run_id,)
         ).fetchone()
         return int(row[0]), int(row[1])
 
     def attempt_rows(self) -> list[tuple]:
-        """(device, pass, verdict, bin_class, standing, channel) of every stored device of the
+        """(device, round, verdict, bin_class, standing, channel) of every stored device of the
         run, in the order they were stored: the attempts a part-by-part run resumes with."""
         return self.db.execute(
-            "SELECT device, pass, verdict, bin_class, standing, channel FROM device "
+            "SELECT device, round, verdict, bin_class, standing, channel FROM device "
             "WHERE run_id = ? ORDER BY seq",
             (self.run_id,),
         ).fetchall()

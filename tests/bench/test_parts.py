@@ -64,7 +64,7 @@ class Bench:
         self.store.finish("completed", "2026-05-04T07:00:00.000+00:00")
         db = sqlite3.connect(self.store.folder / "results.sqlite")
         rows = db.execute(
-            "SELECT device, pass, channel, verdict, hard_bin, standing FROM device ORDER BY seq"
+            "SELECT device, round, channel, verdict, hard_bin, standing FROM device ORDER BY seq"
         ).fetchall()
         db.close()
         return rows

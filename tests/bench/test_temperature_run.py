@@ -1,5 +1,5 @@
 """`ccbench run` over temperatures as a user runs it: real processes for ccbench, the simulated
-SMU and the simulated chamber. Each set point is one pass, its temperatures stored with every
+SMU and the simulated chamber. Each set point is one round, its temperatures stored with every
 device; every ending leaves the output off first, then the chamber at its safe set point, and
 says both in the last line."""
 
@@ -32,11 +32,11 @@ def run(tmp_path: Path, temps: str, faults: str = "") -> subprocess.CompletedPro
 
 def stored(tmp_path: Path) -> list[tuple]:
     db = sqlite3.connect(tmp_path / "r" / "results.sqlite")
-    query = "SELECT pass, device, set_point_C, chamber_C, fixture_C FROM device ORDER BY seq"
+    query = "SELECT round, device, set_point_C, chamber_C, fixture_C FROM device ORDER BY seq"
     return db.execute(query).fetchall()
 
 
-def test_each_set_point_is_a_pass_with_its_temperatures_stored(tmp_path):
+def test_each_set_point_is_a_round_with_its_temperatures_stored(tmp_path):
     done = run(tmp_path, "[25 degC, {set: 85 degC, band: 0.5 K, for: 2 min}]")
     assert done.returncode == 0, done.stdout + done.stderr
     rows = stored(tmp_path)
@@ -61,5 +61,5 @@ def test_a_soak_that_never_settles_is_one_line_output_off_chamber_safe_nothing_l
     assert len(lines) == 1, done.stdout + done.stderr
     assert "did not settle at 85 degC within 600 s" in lines[0]
     assert "output off (read back" in lines[0] and "chamber set to 25 degC (read back)" in lines[0]
-    assert [(r[0], r[2]) for r in stored(tmp_path)] == [(1, 25.0), (1, 25.0)]  # pass 1 kept
+    assert [(r[0], r[2]) for r in stored(tmp_path)] == [(1, 25.0), (1, 25.0)]  # round 1 kept
     assert "Traceback" not in done.stderr

@@ -146,7 +146,7 @@ def test_status_never_takes_the_lock_a_run_needs(tmp_path):
     before = sorted(p.name for p in out.iterdir())
     assert status(out)["state"] == "completed"
     assert sorted(p.name for p in out.iterdir()) == before  # nothing written, nothing added
-    again = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume", "--passes", "2")
+    again = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume", "--rounds", "2")
     assert again.returncode == 0, again.stdout + again.stderr
 
 
@@ -226,7 +226,7 @@ def test_detach_into_a_folder_in_use_is_refused_before_writing_there(tmp_path):
     recipe, out = bench(tmp_path, "1-2"), tmp_path / "busy"
     run = subprocess.Popen(  # holds its folder while it waits a minute for its second round
         [sys.executable, "-m", "sequencer.cli", "run", str(recipe), "--sim", "--out", str(out),
-         "--every", "60 s", "--passes", "2"],
+         "--every", "60 s", "--rounds", "2"],
         cwd=ROOT, env=ENV, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
     )  # fmt: skip
     try:

@@ -191,8 +191,8 @@ def test_rejudge_keeps_each_pass_of_a_repeated_run(tmp_path):
     folder = tmp_path / "run"
     store = RunStore.create(folder, {"started": "t0", "lot": recipe.lot})
     curves = [replace(c, channel=k + 1) for k, c in enumerate(mixed_lot()[:3])]
-    for pass_no in (1, 2):
-        store.begin_pass(pass_no)
+    for round_no in (1, 2):
+        store.begin_round(round_no)
         for c in curves:
             store.add_device(c, judge_curve(c, recipe.judge))
     store.finish("completed", "t1")
@@ -201,7 +201,7 @@ def test_rejudge_keeps_each_pass_of_a_repeated_run(tmp_path):
     assert code == 0, text
     with open(folder / "rejudged-1.csv", newline="") as f:
         rows = list(csv.DictReader(f))
-    assert [(r["pass"], r["device"]) for r in rows] == [
+    assert [(r["round"], r["device"]) for r in rows] == [
         (str(p), c.device) for p in (1, 2) for c in curves
     ]
     assert [r["verdict"] for r in rows[:3]] == [r["verdict"] for r in rows[3:]]

@@ -107,5 +107,5 @@ def test_a_dry_run_stays_out_of_the_shared_database(tmp_path, pg_url):
 def test_part_by_part_refuses_a_schedule(tmp_path):
     station = write_station(tmp_path / "recipes")
     recipe = write_recipe(tmp_path / "recipes", station)
-    code, text = ccbench("run", str(recipe), "--sim", "--part-by-part", "--passes", "2")
-    assert code == 2 and "--part-by-part cannot be used with --every/--for/--passes" in text
+    code, text = ccbench("run", str(recipe), "--sim", "--part-by-part", "--rounds", "2")
+    assert code == 2 and "--part-by-part cannot be used with --every/--for/--rounds" in text

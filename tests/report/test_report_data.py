@@ -72,8 +72,8 @@ def test_added_columns_are_carried_and_a_pass_key_matches_points(lot_folder, tmp
     db = sqlite3.connect(folder / "results.sqlite")
     with db:
         db.execute("ALTER TABLE device ADD COLUMN temperature_C REAL DEFAULT 25")
-        db.execute("ALTER TABLE device ADD COLUMN pass_no INTEGER DEFAULT 1")
-        db.execute("ALTER TABLE point ADD COLUMN pass_no INTEGER DEFAULT 1")
+        db.execute("ALTER TABLE device ADD COLUMN round_no INTEGER DEFAULT 1")
+        db.execute("ALTER TABLE point ADD COLUMN round_no INTEGER DEFAULT 1")
         db.execute("ALTER TABLE run ADD COLUMN site TEXT DEFAULT 'B2'")
         db.execute("PRAGMA user_version = 9")
     db.close()

@@ -110,17 +110,17 @@ def load(path: Path) -> Recipe:
 
 
 # What differs between a resumed and an uninterrupted run by design: when and in which session.
-SKIP = ("measured", "session", "seq", "pass_started")
+SKIP = ("measured", "session", "seq", "round_started")
 
 
 def stored(out: Path) -> tuple[list[dict], list[tuple]]:
     """Every device row (less SKIP) and every raw point of a run folder, in a stable order."""
     db = sqlite3.connect(out / "results.sqlite")
     db.row_factory = sqlite3.Row
-    rows = [dict(r) for r in db.execute("SELECT * FROM device ORDER BY pass, device")]
+    rows = [dict(r) for r in db.execute("SELECT * FROM device ORDER BY round, device")]
     points = db.execute(
-        "SELECT pass, device, idx, step, level_V, voltage_V, current_A, in_compliance "
-        "FROM point ORDER BY pass, device, idx"
+        "SELECT round, device, idx, step, level_V, voltage_V, current_A, in_compliance "
+        "FROM point ORDER BY round, device, idx"
     ).fetchall()
     db.close()
     return [{k: v for k, v in r.items() if k not in SKIP} for r in rows], [tuple(p) for p in points]

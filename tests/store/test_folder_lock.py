@@ -87,7 +87,7 @@ def test_a_store_whose_lock_was_taken_writes_nothing_more(tmp_path, recipe_file)
     with pytest.raises(LockLost):
         store.set_identity("TCPIP0::127.0.0.1::5025::SOCKET", "TEST,SMU,1,1")
     with pytest.raises(LockLost):
-        store.begin_pass(2)  # a pass does not begin: nothing is measured to be thrown away
+        store.begin_round(2)  # a pass does not begin: nothing is measured to be thrown away
     problem = store.finish("failed", "2026-05-04T22:05:00.000+00:00")
     assert problem.endswith(f"the run's lock was taken away: {LOCK_FILE} was removed)")
     for name, data in written.items():  # the manifest, too: the run's end is not ours to write
@@ -98,16 +98,16 @@ def test_a_store_whose_lock_was_taken_writes_nothing_more(tmp_path, recipe_file)
 
 def test_two_real_runs_never_write_one_folder_when_run_lock_is_deleted(tmp_path):
     """The red-team reproduction with real processes: `ccbench run` in a folder, run.lock
-    deleted while it waits for its second pass, a second `ccbench run --resume` into the same
+    deleted while it waits for its second round, a second `ccbench run --resume` into the same
     folder. The second is refused while the first lives, or (if the first reached its next write
     first) the first stopped safely before the second came in; each device is journalled once."""
     recipe = write_recipe(tmp_path / "recipes", channels=4)
     out = tmp_path / "run"
-    first = _run(recipe, out, "--every", "6 s", "--passes", "2")
+    first = _run(recipe, out, "--every", "6 s", "--rounds", "2")
     seen = []
     for line in first.stdout:  # the first pass done, the second not begun: a wait, no writes
         seen.append(line)
-        if line.startswith("pass 2 starts at"):
+        if line.startswith("round 2 starts at"):
             break
     assert first.poll() is None, "".join(seen)
     (out / LOCK_FILE).unlink()
@@ -125,12 +125,12 @@ def test_two_real_runs_never_write_one_folder_when_run_lock_is_deleted(tmp_path)
     else:  # came in after the first had stopped: it finished the run alone
         assert second.returncode == 0, second_screen
     entries = [json.loads(line) for line in (out / "journal.jsonl").read_text().splitlines()]
-    keys = [(e["pass"], e["device"]) for e in entries]
+    keys = [(e["round"], e["device"]) for e in entries]
     assert len(keys) == len(set(keys)), keys  # no device measured twice
     assert [e["seq"] for e in entries] == list(range(1, len(entries) + 1))
     sessions = [e["session"] for e in entries]
     assert sessions == sorted(sessions)  # one writer after the other, never both at once
-    expected = 8 if second.returncode == 0 else 4  # two passes of 4, or the first pass alone
+    expected = 8 if second.returncode == 0 else 4  # two rounds of 4, or the first round alone
     assert len(entries) == expected, (first_screen, second_screen)
 
 

@@ -37,7 +37,7 @@ def test_a_new_database_is_at_the_latest_version_with_every_table(tmp_path):
     assert db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
     key = [r[1] for r in sorted(db.execute("PRAGMA table_info(device)"), key=lambda r: r[5])
            if r[5]]  # fmt: skip
-    assert key == ["run_id", "pass", "device"]
+    assert key == ["run_id", "round", "device"]
     db.close()
 
 
@@ -54,18 +54,18 @@ def test_a_version_1_database_migrates_and_keeps_every_device_and_point(tmp_path
     db = open_database(path)
     assert migrations.version(db) == migrations.LATEST
     after = db.execute(
-        "SELECT device, verdict, dynamic_impedance_ohm, pass, session, seq FROM device "
+        "SELECT device, verdict, dynamic_impedance_ohm, round, session, seq FROM device "
         "ORDER BY device"
     ).fetchall()
     assert [row[:3] for row in after] == devices_before
     assert [row[3:] for row in after] == [(1, 1, 1), (1, 1, 2)]
-    points = db.execute("SELECT device, idx, current_A, pass FROM point ORDER BY 1, 2").fetchall()
+    points = db.execute("SELECT device, idx, current_A, round FROM point ORDER BY 1, 2").fetchall()
     assert [p[:3] for p in points] == points_before and {p[3] for p in points} == {1}
     session = db.execute("SELECT session, status, identity, host FROM session").fetchall()
     assert session == [(1, "completed", "CCBENCH,SIMULATED-SMU,SIM000003,0.1.0", "bench-b2")]
-    for column in ("hard_bin", "peak_dissipation_W", "measured", "pass_started"):
+    for column in ("hard_bin", "peak_dissipation_W", "measured", "round_started"):
         assert column in _columns(db, "device")
-    assert "pass" in _columns(db, "point") and "uid" in _columns(db, "run")
+    assert "round" in _columns(db, "point") and "uid" in _columns(db, "run")
     db.close()
 
 
@@ -74,7 +74,7 @@ def test_a_migrated_version_1_folder_reads_like_a_new_one(tmp_path):
     folder.mkdir()
     _v1_database(folder / "results.sqlite")
     before = load_run(folder)  # read as it is, without migrating
-    assert list(before["pass"]) == [1, 1] and list(before["lot"]) == ["FK2611-03"] * 2
+    assert list(before["round"]) == [1, 1] and list(before["lot"]) == ["FK2611-03"] * 2
     open_database(folder / "results.sqlite").close()
     after = load_run(folder)
     assert list(after["device"]) == list(before["device"])
@@ -89,7 +89,7 @@ def test_the_judge_schema_2_migrates_to_the_latest(tmp_path):
     db.execute("UPDATE device SET hard_bin = 1, bin_class = 'good' WHERE verdict = 'pass'")
     db.close()
     db = open_database(path)
-    rows = db.execute("SELECT device, hard_bin, bin_class, pass FROM device ORDER BY 1").fetchall()
+    rows = db.execute("SELECT device, hard_bin, bin_class, round FROM device ORDER BY 1").fetchall()
     assert rows == [("FK2611-03-001", None, None, 1), ("FK2611-03-002", 1, "good", 1)]
     db.close()
 

@@ -50,7 +50,7 @@ def test_find_and_merge_every_run_under_a_folder(runs):
     assert folders == sorted(made.values())
     table = merge_runs(folders)
     assert len(table) == 15 and table.groupby("lot").size().to_dict() == dict.fromkeys(made, 5)
-    for column in ("folder", "run", "lot", "product", "device", "pass", "verdict",
+    for column in ("folder", "run", "lot", "product", "device", "round", "verdict",
                    "regulated_current_A", "identity", "recipe_sha256", "measured"):  # fmt: skip
         assert column in table.columns, column
 

@@ -43,7 +43,7 @@ def die(store: RunStore) -> None:
 
 def csv_devices(folder):
     with open(folder / "devices.csv", newline="") as f:
-        return [(r["pass"], r["device"], r["verdict"]) for r in csv.DictReader(f)]
+        return [(r["round"], r["device"], r["verdict"]) for r in csv.DictReader(f)]
 
 
 @pytest.fixture
@@ -67,7 +67,7 @@ def test_an_interrupted_device_is_measured_again_and_stored_once(tmp_path, recip
     assert [v for *_, v in csv_devices(tmp_path / "run")] == ["pass", "pass", "aborted"]
 
     store = RunStore.resume(tmp_path / "run", manifest_of(recipe))
-    assert store.progress.done == {1, 2} and store.progress.pass_no == 1
+    assert store.progress.done == {1, 2} and store.progress.round_no == 1
     remaining = replace(plan, channels=tuple(c for c in plan.channels if c not in {1, 2}))
     measure_into(store, recipe, remaining)
     store.finish("completed", "t2")

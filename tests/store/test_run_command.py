@@ -1,4 +1,4 @@
-"""`ccbench run` with the store's options, in process: repeated passes, resume, refusals."""
+"""`ccbench run` with the store's options, in process: repeated rounds, resume, refusals."""
 
 from __future__ import annotations
 
@@ -21,7 +21,7 @@ def ccbench(*argv: str) -> tuple[int, str]:
 
 def rows(folder):
     with open(folder / "devices.csv", newline="") as f:
-        return [(r["pass"], r["device"]) for r in csv.DictReader(f)]
+        return [(r["round"], r["device"]) for r in csv.DictReader(f)]
 
 
 @pytest.fixture
@@ -30,29 +30,29 @@ def recipe(tmp_path):
 
 
 @pytest.mark.sim
-def test_passes_from_the_command_line_are_stored_with_their_number(tmp_path, recipe):
+def test_rounds_from_the_command_line_are_stored_with_their_number(tmp_path, recipe):
     out = tmp_path / "run"
-    code, text = ccbench("run", str(recipe), "--sim", "--out", str(out), "--passes", "2")
+    code, text = ccbench("run", str(recipe), "--sim", "--out", str(out), "--rounds", "2")
     assert code == 0, text
-    assert "schedule: one pass straight after another, at most 2 passes" in text
-    assert "pass 1 done: 3 devices" in text and "pass 2 done: 3 devices" in text
-    assert "run in all: 6 devices stored over 2 passes" in text
+    assert "schedule: one round straight after another, at most 2 rounds" in text
+    assert "round 1 done: 3 devices" in text and "round 2 done: 3 devices" in text
+    assert "run in all: 6 devices stored over 2 rounds" in text
     names = [f"FK2611-07-{c:03d}" for c in (1, 2, 3)]
     assert rows(out) == [(p, n) for p in ("1", "2") for n in names]
 
     code, text = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume",
-                         "--passes", "2")  # fmt: skip
+                         "--rounds", "2")  # fmt: skip
     assert code == 0 and "nothing left to measure" in text and "instrument:" not in text
     code, text = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume",
-                         "--passes", "3")  # fmt: skip
+                         "--rounds", "3")  # fmt: skip
     assert code == 0, text
     assert [p for p, _ in rows(out)] == ["1"] * 3 + ["2"] * 3 + ["3"] * 3
 
 
 @pytest.mark.sim
-def test_the_recipe_repeat_key_drives_the_passes(tmp_path):
+def test_the_recipe_repeat_key_drives_the_rounds(tmp_path):
     recipe = write_recipe(tmp_path / "r", channels=2, points=21,
-                          extra="repeat: {every: 0 s, passes: 2}\n")  # fmt: skip
+                          extra="repeat: {every: 0 s, rounds: 2}\n")  # fmt: skip
     code, text = ccbench("run", str(recipe), "--sim", "--out", str(tmp_path / "run"))
     assert code == 0, text
     assert [p for p, _ in rows(tmp_path / "run")] == ["1", "1", "2", "2"]

@@ -128,8 +128,8 @@ def test_manifest_and_run_table_trace_recipe_station_instrument_and_software(tmp
     assert run[1:] == (on_disk["uid"], recipe.digest, on_disk["identity"], 2611,
                        on_disk["finished"])  # fmt: skip
     orphans = db.execute(
-        "SELECT COUNT(*) FROM point p LEFT JOIN device d ON (p.run_id, p.pass, p.device) = "
-        "(d.run_id, d.pass, d.device) WHERE d.device IS NULL"
+        "SELECT COUNT(*) FROM point p LEFT JOIN device d ON (p.run_id, p.round, p.device) = "
+        "(d.run_id, d.round, d.device) WHERE d.device IS NULL"
     ).fetchone()[0]
     per_device = db.execute(
         "SELECT COUNT(*) FROM point WHERE run_id = ? GROUP BY device", (run[0],)

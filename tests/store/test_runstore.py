@@ -53,7 +53,7 @@ def test_results_in_journal_sqlite_and_csv(tmp_path):
     with open(tmp_path / "run" / "devices.csv", newline="") as f:
         table = list(csv.DictReader(f))
     assert list(table[0]) == RUN_CSV_COLUMNS
-    assert [r["pass"] for r in table] == ["1", "1"]
+    assert [r["round"] for r in table] == ["1", "1"]
     assert table[0]["verdict"] == "fail" and "below min" in table[0]["reasons"]
     for col in (
         "regulated_current_A",

@@ -112,7 +112,7 @@ def test_a_full_disk_at_the_database_is_caught_up_on_resume(tmp_path, recipe, mo
     code, text = ccbench("run", str(recipe), "--sim", "--out", str(out), "--resume")
     assert code == 0, text
     assert "caught up with the journal" in text
-    assert "resume: session 2; 2 devices stored; pass 1 has 2 devices done" in text
+    assert "resume: session 2; 2 devices stored; round 1 has 2 devices done" in text
     journal, in_db, in_csv = stored(out)
     assert in_csv == in_db == journal == [f"FK2611-07-{c:03d}" for c in range(1, 6)]
 

@@ -15,7 +15,7 @@ ROWS = [  # station, lot, device, pass, verdict, bin_class, standing, measured
     ("P2", "FK2611-07", "0003", 2, "pass", "pass", 1, "2026-05-05T00:01:00+00:00"),
     ("P2", "FK2611-08", "0001", 1, "guard-band", "fail", None, "2026-05-05T08:00:00+00:00"),
 ]
-COLUMNS = ["station", "lot", "device", "pass", "verdict", "bin_class", "standing", "measured"]
+COLUMNS = ["station", "lot", "device", "round", "verdict", "bin_class", "standing", "measured"]
 
 
 def frame() -> pd.DataFrame:

@@ -9,7 +9,7 @@ judge, step names, bins together).
 from __future__ import annotations
 
 import re
-from typing import Annotated, Any, Union
+from typing import Annotated, Any, ClassVar, Union
 
 from pydantic import (
     AfterValidator,
@@ -236,14 +236,17 @@ Acknowledgement = Annotated[str, BeforeValidator(_acknowledged),
 
 
 class Repeat(Section):
-    """`repeat:` — passes over the tray on a schedule."""
+    """`repeat:` — rounds over the tray on a schedule."""
 
-    every: Time = setting("from the start of one pass to the start of the next")
+    # `passes` until schema 8: a repetition number must never read as a verdict
+    renamed: ClassVar[dict[str, str]] = {"passes": "rounds"}
+
+    every: Time = setting("from the start of one round to the start of the next")
     for_: Time | None = setting(
-        "how long from the run's first start (default: until stopped or passes)", None,
+        "how long from the run's first start (default: until stopped or rounds)", None,
         alias="for",
     )  # fmt: skip
-    passes: Whole | None = setting("the most passes (default: until stopped or for)", None)
+    rounds: Whole | None = setting("the most rounds (default: until stopped or for)", None)
 
     @model_validator(mode="after")
     def _sensible(self) -> Repeat:
@@ -251,8 +254,8 @@ class Repeat(Section):
             raise problem(f"every must be 0 s or more (got {self.every} s)")
         if self.for_ is not None and not self.for_ > 0:
             raise problem(f"for must be positive (got {self.for_} s)")
-        if self.passes is not None and self.passes < 1:
-            raise problem(f"passes must be 1 or more (got {self.passes})")
+        if self.rounds is not None and self.rounds < 1:
+            raise problem(f"rounds must be 1 or more (got {self.rounds})")
         return self
 
 
@@ -362,7 +365,7 @@ class RecipeFile(Section):
     hazardous_voltage: Acknowledgement | None = setting(
         "write 'acknowledged' to allow levels above the station's touch-safe voltage", None
     )
-    repeat: Repeat | None = setting("passes over the tray on a schedule (default: one pass)", None)
+    repeat: Repeat | None = setting("rounds over the tray on a schedule (default: one round)", None)
     part_by_part: PartByPart | None = setting("the retest policy of --part-by-part", None)
     lists: Flag = setting("run steps as instrument-side lists where safe", False)
     temperatures: Annotated[list[Point], BeforeValidator(_some_points)] | None = setting(

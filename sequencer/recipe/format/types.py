@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 import re
 from collections.abc import Callable
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, ClassVar, Literal
 
 from pydantic import (
     AfterValidator,
@@ -53,6 +53,7 @@ class Section(BaseModel):
     misspelt required key is named as misspelt ("did you mean 'compliance'?"), not as missing."""
 
     model_config = ConfigDict(extra="forbid", frozen=True, hide_input_in_errors=False)
+    renamed: ClassVar[dict[str, str]] = {}  # a key an earlier ccbench knew -> its name now
 
     @model_validator(mode="before")
     @classmethod
@@ -61,6 +62,9 @@ class Section(BaseModel):
             raise problem(f"must be a mapping of settings (got {show(data)})")
         known = cls.file_keys()
         for key in data:
+            if key in cls.renamed:
+                new = cls.renamed[key]
+                raise problem(f"is now called '{new}'; write '{new}:' instead", at=str(key))
             if key not in known:
                 near = close_to(str(key), known)
                 hint = f"did you mean '{near[0]}'?" if near else f"known here: {', '.join(known)}"

@@ -44,7 +44,7 @@ FIGURE_COLUMNS = (
     ("knee_impedance", "ohm"),
 )
 LATER_FIGURES = (("reverse_current", "A"), ("peak_current", "A"), ("peak_dissipation", "W"))
-POINT_COLUMNS = ("run_id", "pass", "device", "idx", "step", "level_V", "voltage_V")
+POINT_COLUMNS = ("run_id", "round", "device", "idx", "step", "level_V", "voltage_V")
 POINT_COLUMNS += ("current_A", "time_s", "in_compliance")
 
 
@@ -164,6 +164,17 @@ def _coverage_factors(cur: psycopg.Cursor) -> None:
         cur.execute(f"ALTER TABLE device ADD COLUMN {q(name + '_dof')} DOUBLE PRECISION")
 
 
+def _rounds(cur: psycopg.Cursor) -> None:
+    """The repetition number is `round`, no longer `pass` (a verdict's word), as in run folders
+    from schema 8; PostgreSQL carries the rename into the keys."""
+    for table, old, new in (
+        ("device", "pass", "round"),
+        ("device", "pass_started", "round_started"),
+        ("point", "pass", "round"),
+    ):
+        cur.execute(f"ALTER TABLE {table} RENAME COLUMN {q(old)} TO {q(new)}")
+
+
 MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (
     _v1,
     _v2,
@@ -172,6 +183,7 @@ MIGRATIONS: tuple[Callable[[psycopg.Cursor], None], ...] = (
     _v5,
     _v6_temperatures,
     _coverage_factors,
+    _rounds,
 )
 LATEST = len(MIGRATIONS)
 
@@ -291,14 +303,14 @@ def _write_entry(cur: psycopg.Cursor, run_id: int, entry: dict[str, Any], known:
     sets = ", ".join(f"{q(k)} = EXCLUDED.{q(k)}" for k in row)
     cur.execute(
         f"INSERT INTO device ({names}) VALUES ({marks}) "
-        f'ON CONFLICT (run_id, "pass", device) DO UPDATE SET {sets} '
+        f'ON CONFLICT (run_id, "round", device) DO UPDATE SET {sets} '
         "WHERE device.seq IS NULL OR device.seq < EXCLUDED.seq",
         [run_id, *row.values()],
     )
     if cur.rowcount != 1:
         return 0
-    key = (run_id, int(entry["pass"]), str(entry["device"]))
-    cur.execute('DELETE FROM point WHERE run_id = %s AND "pass" = %s AND device = %s', key)
+    key = (run_id, int(entry["round"]), str(entry["device"]))
+    cur.execute('DELETE FROM point WHERE run_id = %s AND "round" = %s AND device = %s', key)
     with cur.copy(f"COPY point ({', '.join(q(c) for c in POINT_COLUMNS)}) FROM STDIN") as copy:
         for point in point_rows(key, entry["points"]):
             copy.write_row(point)

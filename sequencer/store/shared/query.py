@@ -21,14 +21,14 @@ def load_shared(database: SharedDatabase, keep: Filter | None = None) -> pd.Data
     with pgstore.connect(database.url) as conn:
         version = pgstore.version_or_none(conn)
         if version is None:
-            return pd.DataFrame(columns=["folder", "run", "lot", "product", "device", "pass"])
+            return pd.DataFrame(columns=["folder", "run", "lot", "product", "device", "round"])
         device_columns = [c for c in pgstore.columns(conn, "device") if c != "run_id"]
         picked = [f"run.{pgstore.q(c)} AS {pgstore.q(n)}" for c, n in RUN_COLUMNS.items()]
         wanted = [f"device.{pgstore.q(c)}" for c in device_columns]
         where, params = _conditions(keep or Filter())
         sql = (
             f"SELECT {', '.join(picked + wanted)} FROM device JOIN run ON device.run_id = run.id"
-            f'{where} ORDER BY device.measured, run.id, device."pass", device.seq'
+            f'{where} ORDER BY device.measured, run.id, device."round", device.seq'
         )
         names, rows = pgstore.query(conn, sql, params)
     frame = pd.DataFrame(rows, columns=names)

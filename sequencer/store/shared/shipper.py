@@ -26,6 +26,7 @@ from typing import Any
 from sequencer.model.errors import RecipeError, StoreError
 from sequencer.recipe.resultsdb import SharedDatabase
 from sequencer.recipe.yamlsource import parse_yaml
+from sequencer.store.oldnames import current
 from sequencer.store.runfolder import MANIFEST_FILE, read_manifest
 from sequencer.store.runstore import JOURNAL_FILE
 
@@ -227,7 +228,7 @@ def _entry(path: Path, raw: bytes) -> dict[str, Any]:
         raise StoreError(f"{path}: a damaged line stops the upload here") from None
     if not isinstance(entry, dict) or "seq" not in entry:
         raise StoreError(f"{path}: a line that is not a journal entry stops the upload here")
-    return entry
+    return current(entry)  # a journal of before schema 8 says `pass` for the round
 
 
 # --- the run command's side --------------------------------------------------------------------

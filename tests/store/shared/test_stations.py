@@ -125,11 +125,11 @@ def test_three_stations_one_database_restarted_in_the_middle(tmp_path, pg_server
     journals = [_journal(out) for _, out in stations]
     with psycopg.connect(pg_url) as conn:
         shared = conn.execute(
-            'SELECT run.uid, device."pass", device.device, device.seq, COUNT(point.idx) '
+            'SELECT run.uid, device."round", device.device, device.seq, COUNT(point.idx) '
             "FROM device JOIN run ON run.id = device.run_id "
-            'LEFT JOIN point ON (point.run_id, point."pass", point.device) = '
-            '(device.run_id, device."pass", device.device) '
-            'GROUP BY run.uid, device."pass", device.device, device.seq'
+            'LEFT JOIN point ON (point.run_id, point."round", point.device) = '
+            '(device.run_id, device."round", device.device) '
+            'GROUP BY run.uid, device."round", device.device, device.seq'
         ).fetchall()
         runs = conn.execute("SELECT station, status FROM run ORDER BY station").fetchall()
     expected = sorted(key for journal in journals for key in journal)
@@ -146,5 +146,5 @@ def _journal(out: Path) -> list[tuple]:
     for line in (out / "journal.jsonl").read_text().splitlines():
         entry = json.loads(line)
         points = len(entry["points"]["step"])
-        keys.append((uid, entry["pass"], entry["device"], entry["seq"], points))
+        keys.append((uid, entry["round"], entry["device"], entry["seq"], points))
     return keys
